@@ -1,0 +1,69 @@
+"""Command line entry point: ``bench [run|demo|notes|temperaments|analyze|devices] ...``."""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+from collections.abc import Sequence
+
+from bench.errors import BenchError
+
+# Each module exposes ``register(subparsers)``, which adds its sub-command and sets
+# ``func(args) -> int`` as the parser default.
+COMMAND_MODULES = (
+    "bench.commands.run",  # run, demo
+    "bench.commands.devices",
+    "bench.commands.notes",  # notes, temperaments
+    "bench.commands.analyze",
+)
+DEFAULT_COMMAND = "run"
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse with a one-line error and exit status 2."""
+
+    def error(self, message: str) -> None:  # type: ignore[override]
+        self.exit(2, f"error: {message} (see '{self.prog} --help')\n")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="bench",
+        description="Tuner and register monitor for recorders and other duct flutes.",
+    )
+    from bench import __version__
+
+    parser.add_argument("--version", action="version", version=f"bench {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    for name in COMMAND_MODULES:
+        importlib.import_module(name).register(sub)
+    return parser
+
+
+def _with_default_command(argv: list[str], parser: argparse.ArgumentParser) -> list[str]:
+    commands = set()
+    for action in parser._subparsers._group_actions if parser._subparsers else ():  # noqa: SLF001
+        commands.update(getattr(action, "choices", {}) or {})
+    if argv and (argv[0] in commands or argv[0] in ("-h", "--help", "--version")):
+        return argv
+    return [DEFAULT_COMMAND, *argv]
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; return the exit status."""
+    parser = build_parser()
+    args_list = _with_default_command(list(sys.argv[1:] if argv is None else argv), parser)
+    args = parser.parse_args(args_list)
+    try:
+        return int(args.func(args) or 0)
+    except BenchError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())
