@@ -16,6 +16,7 @@ COMMAND_MODULES = (
     "bench.commands.devices",
     "bench.commands.notes",  # notes, temperaments
     "bench.commands.analyze",
+    "bench.commands.chart",  # chart, compare
 )
 DEFAULT_COMMAND = "run"
 
@@ -37,7 +38,13 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"bench {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for name in COMMAND_MODULES:
-        importlib.import_module(name).register(sub)
+        try:
+            module = importlib.import_module(name)
+        except ModuleNotFoundError as exc:
+            if exc.name != name:  # a missing dependency is a real error
+                raise
+            continue  # command not built yet
+        module.register(sub)
     return parser
 
 
