@@ -110,10 +110,12 @@ class CsvFrameLog:
     Parameters
     ----------
     path : Path
-        File to create (its folder is created too). An existing file is not overwritten:
-        :class:`LogError` is raised.
+        File to create (its folder is created too). An existing file is not overwritten
+        (:class:`LogError` is raised) unless ``overwrite`` is true.
     flush_interval_s : float >= 0, seconds
         Longest time a written row waits in Python's buffer; 0 flushes every row.
+    overwrite : bool
+        Replace an existing file (``bench analyze`` re-running on the same input).
     fsync : bool
         Also ask the OS to put flushed rows on disk (survives power loss, costs time).
     clock : callable returning seconds
@@ -131,6 +133,7 @@ class CsvFrameLog:
         *,
         flush_interval_s: float = 0.5,
         fsync: bool = False,
+        overwrite: bool = False,
         clock=time.monotonic,
     ) -> None:
         self.path = Path(path)
@@ -141,7 +144,7 @@ class CsvFrameLog:
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
             self._file: io.TextIOWrapper | None = open(  # noqa: SIM115 - closed in close()
-                self.path, "x", encoding="utf-8", newline=""
+                self.path, "w" if overwrite else "x", encoding="utf-8", newline=""
             )
         except FileExistsError:
             raise LogError(f"log file {self.path} exists already; choose another name") from None

@@ -1,0 +1,87 @@
+"""``bench analyze FILE...``: frame logs and held-note summaries of recordings."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from bench.commands.options import add_tuning_options, settings_from_args
+from bench.errors import AudioFileError, BenchError, SettingsError
+
+AUDIO_SUFFIXES = {".wav", ".flac", ".ogg", ".oga", ".aif", ".aiff"}
+
+
+def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
+    p = sub.add_parser(
+        "analyze",
+        help="analyse recordings: frame log (CSV) and a per-note summary",
+        description="Analyse WAV/FLAC/OGG recordings (any channel count and rate). Prints each "
+        "held note with its offset in cents and register events; --csv/--csv-dir write the "
+        "frame log. A folder given as FILE is searched for audio files.",
+    )
+    p.add_argument("files", nargs="+", metavar="FILE", help="audio files or folders")
+    out = p.add_mutually_exclusive_group()
+    out.add_argument("--csv", type=Path, metavar="PATH", help="frame log of the single input")
+    out.add_argument("--csv-dir", type=Path, metavar="DIR", help="one <stem>.csv per input")
+    p.add_argument("--lock", metavar="NOTE", help="judge every frame against this note, e.g. F4")
+    add_tuning_options(p)
+    p.set_defaults(func=run_analyze)
+
+
+def _expand(items: list[str]) -> list[Path]:
+    paths: list[Path] = []
+    for item in items:
+        path = Path(item)
+        if path.is_dir():
+            paths += sorted(q for q in path.rglob("*") if q.suffix.lower() in AUDIO_SUFFIXES)
+        else:
+            paths.append(path)
+    return paths
+
+
+def run_analyze(args: argparse.Namespace) -> int:
+    from bench.analyze import ProgressBar, analyse_file, format_summary
+
+    settings = settings_from_args(args)
+    locked = None
+    if args.lock:
+        from bench.tuning.notes import parse_note
+
+        locked = parse_note(args.lock)
+    paths = _expand(args.files)
+    if not paths:
+        raise AudioFileError(f"no audio files found in {' '.join(args.files)}")
+    if args.csv and len(paths) > 1:
+        raise SettingsError(f"--csv takes one input, got {len(paths)}; use --csv-dir DIR")
+    if args.csv_dir:
+        stems = [p.stem for p in paths]
+        dupes = sorted({s for s in stems if stems.count(s) > 1})
+        if dupes:
+            raise SettingsError(
+                f"inputs share the stem {dupes[0]!r}, their CSVs would collide in --csv-dir; "
+                "analyse them in separate runs"
+            )
+    failed: list[str] = []
+    for i, path in enumerate(paths):
+        csv_path = args.csv if args.csv else (args.csv_dir / f"{path.stem}.csv" if args.csv_dir else None)
+        bar = ProgressBar(path.name)
+        try:
+            result = analyse_file(path, settings, csv_path=csv_path, locked_midi=locked, progress=bar)
+        except BenchError as exc:
+            bar.close()
+            failed.append(str(exc))
+            print(f"error: {exc}", file=sys.stderr)
+            continue
+        bar.close()
+        if i:
+            print()
+        print(format_summary(result, settings))
+    if failed:
+        print(f"\n{len(failed)} of {len(paths)} files could not be analysed:", file=sys.stderr)
+        for line in failed:
+            print(f"  {line}", file=sys.stderr)
+        return 1
+    if not args.csv and not args.csv_dir:
+        print("(no frame log written; add --csv PATH or --csv-dir DIR)")
+    return 0
