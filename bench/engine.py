@@ -1,0 +1,629 @@
+"""The engine: source -> analyser -> tuning -> log, in a thread of its own.
+
+The engine thread reads blocks from an :class:`~bench.sources.base.AudioSource`, feeds
+them to the streaming analyser, maps each voiced frame onto the tuning in force (or onto
+the locked note), writes a session-log row per frame with the settings it was measured
+under, and publishes the newest :class:`~bench.reading.Reading` by swapping one
+reference. The screen polls :meth:`Engine.latest` and :meth:`Engine.history`; rare
+events (register jump, source ended, device lost...) go to the ``on_event`` callback,
+called from the engine thread (the screen turns them into messages without waiting).
+
+The engine never imports textual or sounddevice.
+"""
+
+from __future__ import annotations
+
+import collections
+import threading
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Literal, Protocol
+
+import numpy as np
+from numpy.typing import NDArray
+
+from bench.errors import BenchError, DeviceError, LogError
+from bench.framelog import CsvFrameLog, new_log_path
+from bench.reading import Reading
+from bench.sources.base import AudioSource, Clock
+from bench.tuning import NoteMapping, TuningSettings, map_frequency
+from dsp.frame import Frame
+
+EventKind = Literal[
+    "jump",
+    "weakening",
+    "source_ended",
+    "device_lost",
+    "device_back",
+    "source_error",
+    "log_error",
+    "log_started",
+    "log_stopped",
+]
+EngineState = Literal["idle", "running", "device_lost", "ended", "stopped", "error"]
+
+HISTORY_S = 60.0
+"""Seconds of readings kept for :meth:`Engine.history`."""
+
+READ_TIMEOUT_S = 0.05
+"""Longest the engine waits for a block before checking for stop and flushing the log."""
+
+RETRY_DELAYS_S = (0.5, 1.0, 2.0, 4.0)
+"""Back-off between attempts to reopen a lost device (the last one repeats)."""
+
+MAX_SOURCE_ERRORS = 20
+"""Consecutive non-device errors from a source before the engine gives up on it."""
+
+
+@dataclass(frozen=True, slots=True)
+class EngineEvent:
+    """Something rare the screen should tell the user about.
+
+    Attributes
+    ----------
+    kind : str
+        "jump", "weakening", "source_ended", "device_lost", "device_back",
+        "source_error", "log_error", "log_started" or "log_stopped".
+    message : str
+        One line for the user.
+    time_s : float, seconds
+        Input time (same clock as ``Reading.stream_time_s``) when it happened.
+    """
+
+    kind: EventKind
+    message: str
+    time_s: float
+
+
+@dataclass(frozen=True, slots=True)
+class EngineStats:
+    """Counters for the status line and the benchmarks.
+
+    Attributes
+    ----------
+    frames : int
+        Analysis frames produced.
+    dropped_blocks : int
+        Input blocks lost (the source's count).
+    source : str
+        The source's description.
+    state : str
+        "idle", "running", "device_lost", "ended", "stopped" or "error".
+    cpu_s : float, seconds
+        CPU time the engine thread has used.
+    blocks : int
+        Blocks read from the source.
+    log_rows : int
+        Rows written to session logs.
+    log_path : str or None
+        Current session log, None when logging is off.
+    latency_s : float or None, seconds
+        Last frame's delay from the instant it describes reaching the input to its
+        reading being published (plus the driver's reported input latency).
+    max_latency_s : float, seconds
+        Largest ``latency_s`` seen.
+    source_errors : int
+        Errors the source raised (device losses included).
+    wall_s : float, seconds
+        Wall time since the engine thread started.
+    """
+
+    frames: int
+    dropped_blocks: int
+    source: str
+    state: str
+    cpu_s: float
+    blocks: int = 0
+    log_rows: int = 0
+    log_path: str | None = None
+    latency_s: float | None = None
+    max_latency_s: float = 0.0
+    source_errors: int = 0
+    wall_s: float = 0.0
+
+
+class Analyser(Protocol):
+    """What the engine needs of :class:`dsp.analyser.StreamingAnalyser`."""
+
+    sample_rate: int
+    frame_size: int
+    hop_size: int
+
+    def process(self, block: NDArray[np.float32]) -> list[Frame]: ...
+
+    def lock(self, target_hz: float | None) -> None: ...
+
+    def reset(self) -> None: ...
+
+
+def _default_analyser_factory(sample_rate: int) -> Analyser:
+    from dsp.analyser import StreamingAnalyser
+
+    return StreamingAnalyser(sample_rate)
+
+
+class Engine:
+    """Run the measuring chain in a background thread.
+
+    Parameters
+    ----------
+    source : AudioSource
+        Where blocks come from. :meth:`start` starts it (a ``DeviceError`` or
+        ``AudioFileError`` from there reaches the caller).
+    settings : TuningSettings
+        Settings in force at the start.
+    log_path : Path, optional
+        Session log file to write from the start (must not exist yet).
+    log_rows_per_s : float > 0 or None
+        Rows per second written to the log; None writes every frame.
+    on_event : callable(EngineEvent), optional
+        Called from the engine thread for rare events; must not block.
+    analyser_factory : callable(sample_rate) -> analyser
+        Builds the streaming analyser; :class:`dsp.analyser.StreamingAnalyser` by default.
+    on_reading : callable(Reading), optional
+        Called from the engine thread with every reading (unattended logging summaries).
+    clock : Clock, optional
+        Used for back-off waits and latency; the system clock by default.
+    """
+
+    def __init__(
+        self,
+        source: AudioSource,
+        settings: TuningSettings,
+        *,
+        log_path: Path | None = None,
+        log_rows_per_s: float | None = None,
+        on_event: Callable[[EngineEvent], None] | None = None,
+        analyser_factory: Callable[[int], Any] | None = None,
+        on_reading: Callable[[Reading], None] | None = None,
+        clock: Clock | None = None,
+    ) -> None:
+        if not isinstance(settings, TuningSettings):
+            raise TypeError(f"settings must be TuningSettings, not {type(settings).__name__}")
+        if log_rows_per_s is not None and not log_rows_per_s > 0:
+            raise LogError(f"log rate {log_rows_per_s} rows/s must be above 0; leave it out for every frame")
+        self._source = source
+        self._settings = settings
+        self._initial_log_path = Path(log_path) if log_path is not None else None
+        self._log_interval_s = None if log_rows_per_s is None else 1.0 / float(log_rows_per_s)
+        self._on_event = on_event
+        self._on_reading = on_reading
+        self._analyser_factory = analyser_factory or _default_analyser_factory
+        self._clock = clock
+        self._analyser: Any = None
+
+        self._latest: Reading | None = None
+        self._history: collections.deque[Reading] = collections.deque()
+        self._history_lock = threading.Lock()
+
+        self._locked_midi: int | None = None
+        self._locked_note: str | None = None
+        self._lock_generation = 0
+
+        self._log: CsvFrameLog | None = None
+        self._log_lock = threading.Lock()
+        self._next_log_time_s = -1.0
+        self._log_rows = 0
+
+        self._thread: threading.Thread | None = None
+        self._stop_event = threading.Event()
+        self._state: EngineState = "idle"
+        self._frames = 0
+        self._blocks = 0
+        self._cpu_s = 0.0
+        self._started_wall_s = 0.0
+        self._latency_s: float | None = None
+        self._max_latency_s = 0.0
+        self._source_errors = 0
+        self._last_register: str | None = None
+        self._samples_fed = 0
+
+    # -- read side (any thread) -------------------------------------------------------
+
+    def latest(self) -> Reading | None:
+        """The newest reading, or None before the first frame. Never blocks."""
+        return self._latest
+
+    def history(self, seconds: float) -> list[Reading]:
+        """Readings of the last ``seconds`` of input time (oldest first; a copy)."""
+        with self._history_lock:
+            items = list(self._history)
+        if not items:
+            return []
+        since_s = items[-1].stream_time_s - float(seconds)
+        lo, hi = 0, len(items)
+        while lo < hi:  # first reading at or after since_s
+            mid = (lo + hi) // 2
+            if items[mid].stream_time_s < since_s:
+                lo = mid + 1
+            else:
+                hi = mid
+        return items[lo:]
+
+    @property
+    def settings(self) -> TuningSettings:
+        """Settings in force (an immutable object)."""
+        return self._settings
+
+    def set_settings(self, s: TuningSettings) -> None:
+        """Replace the settings; the engine picks them up at its next frame."""
+        if not isinstance(s, TuningSettings):
+            raise TypeError(f"settings must be TuningSettings, not {type(s).__name__}")
+        self._settings = s
+
+    def lock(self, midi: int | None) -> None:
+        """Lock the reading to target note ``midi`` (MIDI number), or release with None."""
+        if midi is not None:
+            midi = int(midi)
+            if not 0 <= midi <= 127:
+                raise ValueError(f"MIDI note {midi} is out of range; use 0-127")
+        self._locked_midi = midi
+        self._lock_generation += 1
+
+    @property
+    def locked_midi(self) -> int | None:
+        """Target note the reading is locked to, or None."""
+        return self._locked_midi
+
+    @property
+    def log_path(self) -> Path | None:
+        """Session log being written, or None when logging is off."""
+        log = self._log
+        return log.path if log is not None else None
+
+    @property
+    def source(self) -> AudioSource:
+        return self._source
+
+    @property
+    def stats(self) -> EngineStats:
+        """Counters now (a snapshot)."""
+        log = self._log
+        started = self._started_wall_s
+        return EngineStats(
+            frames=self._frames,
+            dropped_blocks=int(self._source.dropped_blocks),
+            source=self._source.description,
+            state=self._state,
+            cpu_s=self._cpu_s,
+            blocks=self._blocks,
+            log_rows=self._log_rows,
+            log_path=str(log.path) if log is not None else None,
+            latency_s=self._latency_s,
+            max_latency_s=self._max_latency_s,
+            source_errors=self._source_errors,
+            wall_s=(time.monotonic() - started) if started else 0.0,
+        )
+
+    # -- logging ----------------------------------------------------------------------
+
+    def start_log(self, folder: Path) -> Path:
+        """Start a new timestamped session log in ``folder``; returns its path.
+
+        Raises
+        ------
+        LogError
+            The folder cannot be created or written (logging stays as it was).
+        """
+        path = new_log_path(folder)
+        new_log = CsvFrameLog(path)
+        self._swap_log(new_log)
+        self._emit("log_started", f"logging to {path}")
+        return path
+
+    def stop_log(self) -> None:
+        """Close the session log (every row already measured is kept)."""
+        if self._log is None:
+            return
+        path = self._log.path
+        self._swap_log(None)
+        self._emit("log_stopped", f"log closed: {path}")
+
+    def _swap_log(self, new_log: CsvFrameLog | None) -> None:
+        with self._log_lock:
+            old, self._log = self._log, new_log
+            self._next_log_time_s = -1.0
+        if old is not None:
+            try:
+                old.close()
+            except (OSError, LogError) as exc:
+                self._emit("log_error", f"closing the log {old.path} failed: {exc}")
+
+    # -- life cycle -------------------------------------------------------------------
+
+    def start(self) -> None:
+        """Start the source and the engine thread (no-op when already running).
+
+        Raises
+        ------
+        DeviceError, AudioFileError
+            The source cannot start.
+        RuntimeError
+            The engine was stopped; build a new one.
+        """
+        if self._thread is not None:
+            if self._state == "stopped":
+                raise RuntimeError("this engine was stopped; make a new Engine to start again")
+            return
+        self._analyser = self._analyser_factory(int(self._source.sample_rate))
+        self._source.start()
+        if int(self._source.sample_rate) != int(self._analyser.sample_rate):
+            # A microphone may only learn its rate on opening.
+            self._analyser = self._analyser_factory(int(self._source.sample_rate))
+        if self._initial_log_path is not None:
+            try:
+                self._swap_log(CsvFrameLog(self._initial_log_path))
+                self._emit("log_started", f"logging to {self._initial_log_path}")
+            except LogError as exc:
+                self._emit("log_error", f"{exc}; measuring goes on without a log")
+        self._state = "running"
+        self._started_wall_s = time.monotonic()
+        self._thread = threading.Thread(target=self._run, name="bench-engine", daemon=True)
+        self._thread.start()
+
+    def stop(self, timeout_s: float = 1.0) -> None:
+        """Stop the thread and the source, close the log; safe to call twice."""
+        self._stop_event.set()
+        thread = self._thread
+        if thread is not None and thread is not threading.current_thread():
+            thread.join(timeout_s)
+        if thread is None or not thread.is_alive():
+            self._finish()
+        self._state = "stopped" if self._state not in ("ended", "error") else self._state
+        if thread is None:
+            self._thread = threading.Thread()  # marks the engine as used
+
+    @property
+    def running(self) -> bool:
+        """True while the engine thread is alive."""
+        return self._thread is not None and self._thread.is_alive()
+
+    def join(self, timeout_s: float | None = None) -> bool:
+        """Wait for the engine thread to end by itself (a file ending); True if it has."""
+        thread = self._thread
+        if thread is None or not thread.ident:
+            return True
+        thread.join(timeout_s)
+        return not thread.is_alive()
+
+    def _finish(self) -> None:
+        """Close the log and the source (thread gone, or never started)."""
+        with self._log_lock:
+            log, self._log = self._log, None
+        if log is not None:
+            try:
+                log.close()
+            except (OSError, LogError) as exc:
+                self._emit("log_error", f"closing the log {log.path} failed: {exc}")
+        try:
+            self._source.stop()
+        except Exception:  # noqa: BLE001 - stopping a broken source must not hide the rows
+            pass
+
+    # -- the engine thread -------------------------------------------------------------
+
+    def _run(self) -> None:
+        cpu0_s = time.thread_time()
+        applied_lock = (-1, None)
+        consecutive_errors = 0
+        try:
+            while not self._stop_event.is_set():
+                settings = self._settings
+                if applied_lock != (self._lock_generation, settings):
+                    applied_lock = (self._lock_generation, settings)
+                    self._apply_lock(settings)
+                try:
+                    block = self._source.read(READ_TIMEOUT_S)
+                except DeviceError as exc:
+                    self._source_errors += 1
+                    if not self._recover(str(exc)):
+                        break
+                    continue
+                except Exception as exc:  # noqa: BLE001 - reported, then the engine goes on
+                    self._source_errors += 1
+                    consecutive_errors += 1
+                    self._emit("source_error", f"input failed: {exc}")
+                    if consecutive_errors >= MAX_SOURCE_ERRORS:
+                        self._state = "error"
+                        self._emit("source_error", f"input failed {consecutive_errors} times in a row; stopped")
+                        break
+                    continue
+                consecutive_errors = 0
+                if block is None:
+                    self._flush_log_if_idle()
+                    if self._source.ended:
+                        self._state = "ended"
+                        self._emit("source_ended", f"{self._source.description}: end of input")
+                        break
+                    continue
+                arrival_s = self._now()
+                self._blocks += 1
+                self._process_block(block, arrival_s)
+                self._cpu_s = time.thread_time() - cpu0_s
+        except Exception as exc:  # noqa: BLE001 - the engine reports its own errors
+            self._state = "error"
+            self._emit("source_error", f"engine stopped by an error: {type(exc).__name__}: {exc}")
+        finally:
+            self._cpu_s = time.thread_time() - cpu0_s
+            self._finish()
+            if self._state == "running" or self._state == "device_lost":
+                self._state = "stopped"
+
+    def _now(self) -> float:
+        return self._clock.monotonic() if self._clock is not None else time.monotonic()
+
+    def _wait(self, seconds: float) -> bool:
+        """Back-off wait; True if stop was asked meanwhile."""
+        if self._clock is None:
+            return self._stop_event.wait(seconds)
+        self._clock.sleep(seconds)
+        return self._stop_event.is_set()
+
+    def _apply_lock(self, settings: TuningSettings) -> None:
+        midi = self._locked_midi
+        if midi is None:
+            self._locked_note = None
+            self._analyser.lock(None)
+            return
+        target = map_frequency(settings.a4_hz, settings, locked_midi=midi)
+        self._locked_note = target.note
+        self._analyser.lock(target.target_hz)
+
+    def _recover(self, message: str) -> bool:
+        """Report a lost device and reopen it with back-off; False if stopped meanwhile."""
+        self._state = "device_lost"
+        self._emit("device_lost", f"{message}; retrying")
+        attempt = 0
+        while True:
+            delay_s = RETRY_DELAYS_S[min(attempt, len(RETRY_DELAYS_S) - 1)]
+            if self._wait(delay_s):
+                return False
+            attempt += 1
+            try:
+                self._source.start()
+            except BenchError:
+                continue
+            except Exception:  # noqa: BLE001 - keep retrying whatever the driver says
+                continue
+            self._state = "running"
+            self._emit("device_back", f"input back after {attempt} attempt(s): {self._source.description}")
+            return True
+
+    def _flush_log_if_idle(self) -> None:
+        with self._log_lock:
+            log = self._log
+            if log is None:
+                return
+            try:
+                log.flush()
+            except (OSError, LogError) as exc:
+                self._log_failed(log, exc)
+
+    def _log_failed(self, log: CsvFrameLog, exc: Exception) -> None:
+        """Called with the log lock held: logging goes off, measuring goes on."""
+        self._log = None
+        try:
+            log.close()
+        except Exception:  # noqa: BLE001 - the file is already broken
+            pass
+        self._emit("log_error", f"{exc}; logging is off, measuring goes on")
+
+    def _process_block(self, block: NDArray[np.float32], arrival_s: float) -> None:
+        frames = self._analyser.process(block)
+        self._samples_fed += len(block)
+        if not frames:
+            return
+        sample_rate = float(self._analyser.sample_rate)
+        block_end_s = self._samples_fed / sample_rate
+        input_latency_s = float(getattr(self._source, "input_latency_s", 0.0) or 0.0)
+        dropped = int(self._source.dropped_blocks)
+        with self._log_lock:
+            log = self._log
+            log_path = str(log.path) if log is not None else None
+            for frame in frames:
+                settings = self._settings  # read once per frame
+                locked = self._locked_midi
+                mapping = self._map(frame, settings, locked)
+                reading = Reading(
+                    frame=frame,
+                    mapping=mapping,
+                    settings=settings,
+                    locked_midi=locked,
+                    stream_time_s=frame.time_s,
+                    dropped_blocks=dropped,
+                    log_path=log_path,
+                )
+                if log is not None and self._log_due(frame.time_s):
+                    try:
+                        log.write(frame, mapping, settings, self._locked_note if locked is not None else None)
+                        self._log_rows += 1
+                    except (OSError, LogError) as exc:
+                        self._log_failed(log, exc)
+                        log, log_path = None, None
+                self._publish(reading)
+                self._check_events(frame, mapping)
+        now_s = self._now()
+        for frame in frames[-1:]:
+            heard_s = arrival_s - (block_end_s - frame.time_s)
+            latency_s = now_s - heard_s + input_latency_s
+            self._latency_s = latency_s
+            if latency_s > self._max_latency_s:
+                self._max_latency_s = latency_s
+
+    def _log_due(self, time_s: float) -> bool:
+        if self._log_interval_s is None:
+            return True
+        if time_s >= self._next_log_time_s:
+            if self._next_log_time_s < 0 or time_s - self._next_log_time_s > self._log_interval_s:
+                self._next_log_time_s = time_s + self._log_interval_s
+            else:
+                self._next_log_time_s += self._log_interval_s
+            return True
+        return False
+
+    @staticmethod
+    def _map(frame: Frame, settings: TuningSettings, locked: int | None) -> NoteMapping | None:
+        if frame.f0_hz is None or not frame.f0_hz > 0:
+            return None
+        try:
+            return map_frequency(frame.f0_hz, settings, locked)
+        except (ValueError, ArithmeticError):
+            return None
+
+    def _publish(self, reading: Reading) -> None:
+        self._frames += 1
+        with self._history_lock:
+            self._history.append(reading)
+            oldest_s = reading.stream_time_s - HISTORY_S
+            while self._history[0].stream_time_s < oldest_s:
+                self._history.popleft()
+        self._latest = reading  # one reference swap: readers never wait
+        if self._on_reading is not None:
+            try:
+                self._on_reading(reading)
+            except Exception:  # noqa: BLE001 - a consumer's bug must not stop measuring
+                self._on_reading = None
+                self._emit("source_error", "reading consumer failed; it was detached")
+
+    def _check_events(self, frame: Frame, mapping: NoteMapping | None) -> None:
+        register = frame.register
+        previous, self._last_register = self._last_register, register
+        if register == previous:
+            return
+        if register == "jumped":
+            self._emit("jump", _jump_message(frame, self._settings), frame.time_s)
+        elif register == "weakening" and previous == "steady":
+            note = mapping.note if mapping is not None else "note"
+            self._emit("weakening", f"{note}: register weakening, about to jump", frame.time_s)
+
+    def _emit(self, kind: EventKind, message: str, time_s: float | None = None) -> None:
+        if time_s is None:
+            rate = max(int(getattr(self._source, "sample_rate", 1) or 1), 1)
+            time_s = self._samples_fed / rate
+        callback = self._on_event
+        if callback is None:
+            return
+        try:
+            callback(EngineEvent(kind, message, float(time_s)))
+        except Exception:  # noqa: BLE001 - a UI bug must not stop measuring
+            pass
+
+
+def _jump_message(frame: Frame, settings: TuningSettings) -> str:
+    kind = frame.jump or "register jump"
+    sounding = _note_of(frame.f0_hz, settings)
+    held = _note_of(frame.held_f0_hz, settings)
+    if held and sounding and held != sounding:
+        return f"{held} {kind}: sounding {sounding}"
+    return f"{sounding or 'note'} {kind}"
+
+
+def _note_of(freq_hz: float | None, settings: TuningSettings) -> str | None:
+    if freq_hz is None or not freq_hz > 0:
+        return None
+    try:
+        return map_frequency(freq_hz, settings).note
+    except (ValueError, ArithmeticError):
+        return None

@@ -1,0 +1,178 @@
+"""The built-in demo instrument: a synthetic player working through the scale of the
+"Wren", an alto recorder in F from the (invented) Hollin Lane Flute Works.
+
+The loop is rendered once by :mod:`dsp.synth` when the source starts, then handed out
+block by block at real-time pace, over and over. It climbs the first register and
+into the second, with a few things worth fixing on the bench: a flat A4, a sharp-ish
+C6, a slightly flat E5, one note overblown into the octave and one vented octave.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from bench.errors import DeviceError
+from bench.sources.base import DEFAULT_BLOCK_SIZE, Clock, PacedBlocks, SystemClock
+
+INSTRUMENT = "Hollin Lane Flute Works 'Wren' alto in F"
+"""What the demo plays (an invented instrument from the project's invented workshop)."""
+
+
+@dataclass(frozen=True, slots=True)
+class DemoNote:
+    """One note of the demo loop.
+
+    Attributes
+    ----------
+    midi : int
+        Fingered note (MIDI number) at A4 = 440 Hz, equal temperament.
+    cents : float, cents
+        How far off the Wren plays it.
+    duration_s : float, seconds
+    jump : "overblown" | "vented" | None
+        A register jump part-way through the note.
+    """
+
+    midi: int
+    cents: float = 0.0
+    duration_s: float = 1.1
+    jump: str | None = None
+    level_dbfs: float = -20.0
+
+
+# F major over two registers, lowest note F4 (MIDI 65), then a short way down.
+DEMO_SCALE: tuple[DemoNote, ...] = (
+    DemoNote(65, +2),  # F4
+    DemoNote(67, -3),  # G4
+    DemoNote(69, -19),  # A4: flat, the thumb hole wants undercutting
+    DemoNote(70, +4),  # Bb4
+    DemoNote(72, +1, duration_s=1.6, jump="overblown"),  # C5 blown too hard: jumps up
+    DemoNote(74, -2),  # D5
+    DemoNote(76, -12),  # E5: a little flat
+    DemoNote(77, +3),  # F5
+    DemoNote(79, +5, level_dbfs=-17),  # G5 (second register)
+    DemoNote(81, +2, level_dbfs=-16),  # A5
+    DemoNote(82, -4, level_dbfs=-16),  # Bb5
+    DemoNote(84, +14, level_dbfs=-15),  # C6: sharp
+    DemoNote(79, 0, level_dbfs=-17),  # G5
+    DemoNote(69, -17),  # A4 again: still flat
+    DemoNote(67, -2, duration_s=1.6, jump="vented"),  # G4 vented into its octave
+    DemoNote(65, +1, duration_s=1.6),  # F4
+)
+
+
+def demo_events(a4_hz: float = 440.0):
+    """The demo loop as :class:`dsp.synth.NoteEvent` objects (pitch at ``a4_hz``)."""
+    from dsp.synth import NoteEvent
+
+    events = []
+    for i, note in enumerate(DEMO_SCALE):
+        f0_hz = a4_hz * 2 ** ((note.midi - 69) / 12) * 2 ** (note.cents / 1200)
+        kwargs = {}
+        if note.jump is not None:
+            kwargs = {"jump_at_s": note.duration_s * 0.45, "jump_kind": note.jump}
+        events.append(
+            NoteEvent(
+                f0_hz,
+                note.duration_s,
+                level_dbfs=note.level_dbfs,
+                vibrato_cents=4.0 if i % 3 == 2 else 0.0,
+                gap_s=0.18,
+                **kwargs,
+            )
+        )
+    return events
+
+
+def render_demo_loop(sample_rate: int, seed: int = 7) -> NDArray[np.float32]:
+    """Render one pass of the demo loop (mono float32 at ``sample_rate`` Hz, ~25 s)."""
+    from dsp.synth import render
+
+    audio = np.asarray(render(demo_events(), sample_rate, seed=seed).audio, dtype=np.float32)
+    return np.ascontiguousarray(audio.reshape(-1))
+
+
+class DemoSource:
+    """The demo instrument as an input, looping forever at real-time pace.
+
+    Parameters
+    ----------
+    sample_rate : int, Hz
+        8000..192000.
+    block_size : int >= 16, samples
+    realtime : bool
+        False hands blocks out as fast as they are read (benchmarks, tests).
+    clock : Clock, optional
+        Time source for pacing; the system clock by default.
+    loops : int or None
+        Passes to play before ``ended`` turns True; None loops forever.
+    """
+
+    def __init__(
+        self,
+        sample_rate: int = 48000,
+        *,
+        block_size: int = DEFAULT_BLOCK_SIZE,
+        realtime: bool = True,
+        clock: Clock | None = None,
+        loops: int | None = None,
+    ) -> None:
+        if not 8000 <= sample_rate <= 192000:
+            raise DeviceError(f"demo sample rate {sample_rate} Hz is out of range; use 8000-192000")
+        if block_size < 16:
+            raise DeviceError(f"block size {block_size} is too small; use 16 samples or more")
+        self.sample_rate = int(sample_rate)
+        self.block_size = int(block_size)
+        self.loops = loops
+        self.dropped_blocks = 0
+        self.ended = False
+        self.description = f"demo: {INSTRUMENT}, {self.sample_rate} Hz"
+        self._pacer = PacedBlocks(
+            self.sample_rate, self.block_size, realtime=realtime, clock=clock or SystemClock()
+        )
+        self._audio: NDArray[np.float32] | None = None
+        self._pos = 0
+        self._pass = 0
+        self._running = False
+
+    @property
+    def loop_duration_s(self) -> float:
+        """Length of one pass, seconds (renders the loop if needed)."""
+        return len(self._rendered()) / self.sample_rate
+
+    def _rendered(self) -> NDArray[np.float32]:
+        if self._audio is None:
+            self._audio = render_demo_loop(self.sample_rate)
+        return self._audio
+
+    def start(self) -> None:
+        self._rendered()
+        self._pos = 0
+        self._pass = 0
+        self.ended = False
+        self._running = True
+        self._pacer.start()
+
+    def read(self, timeout_s: float) -> NDArray[np.float32] | None:
+        if not self._running or self.ended:
+            return None
+        audio = self._rendered()
+        n = min(self.block_size, len(audio) - self._pos)
+        if not self._pacer.wait_due(n, timeout_s):
+            return None
+        block = audio[self._pos : self._pos + n].copy()
+        self._pacer.delivered(n)
+        self._pos += n
+        if self._pos >= len(audio):
+            self._pos = 0
+            self._pass += 1
+            if self.loops is not None and self._pass >= self.loops:
+                self.ended = True
+        return block
+
+    def stop(self) -> None:
+        self._running = False
+

@@ -1,0 +1,311 @@
+"""The microphone: a PortAudio input stream through sounddevice.
+
+This is the only module that imports :mod:`sounddevice`, and only when a microphone is
+actually listed or opened, so the rest of the application runs where PortAudio is missing.
+
+The stream callback does one thing: copy ``indata`` (channel 0, or the mean of the
+channels) into a pre-sized :class:`~bench.sources.base.BlockRing`, counting input
+overflows and blocks that found the ring full. No printing, no allocation beyond the
+copy, no locks, no waiting (sounddevice ``examples/rec_unlimited.py`` and rtmixer do the
+same with a queue or ring).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from bench.errors import DeviceError
+from bench.sources.base import DEFAULT_BLOCK_SIZE, BlockRing, Clock, SystemClock
+
+
+def import_sounddevice() -> Any:
+    """Import sounddevice, turning a missing PortAudio library into a one-line DeviceError."""
+    try:
+        import sounddevice as sd
+    except OSError as exc:  # raised by sounddevice when libportaudio cannot be loaded
+        raise DeviceError(
+            f"the PortAudio library is not installed ({exc}); install libportaudio2 to use a microphone"
+        ) from None
+    return sd
+
+
+@dataclass(frozen=True, slots=True)
+class InputDevice:
+    """An audio input PortAudio lists.
+
+    Attributes
+    ----------
+    index : int
+        PortAudio device index (what ``--device`` takes).
+    name : str
+    channels : int
+        Input channels.
+    default_rate_hz : float, Hz
+    host_api : str
+        ALSA, JACK Audio Connection Kit, Core Audio, WASAPI...
+    """
+
+    index: int
+    name: str
+    channels: int
+    default_rate_hz: float
+    host_api: str
+
+    def label(self) -> str:
+        """``3 'USB Audio' (ALSA)``."""
+        return f"{self.index} '{self.name}' ({self.host_api})"
+
+
+def list_input_devices() -> list[InputDevice]:
+    """Every device with at least one input channel, in PortAudio's order.
+
+    Raises
+    ------
+    DeviceError
+        PortAudio is missing or cannot list devices.
+    """
+    sd = import_sounddevice()
+    try:
+        devices = sd.query_devices()
+        host_apis = sd.query_hostapis()
+    except sd.PortAudioError as exc:
+        raise DeviceError(f"PortAudio cannot list audio devices: {exc}") from None
+    found = []
+    for d in devices:
+        if int(d["max_input_channels"]) > 0:
+            found.append(
+                InputDevice(
+                    index=int(d["index"]),
+                    name=str(d["name"]),
+                    channels=int(d["max_input_channels"]),
+                    default_rate_hz=float(d["default_samplerate"]),
+                    host_api=str(host_apis[d["hostapi"]]["name"]),
+                )
+            )
+    return found
+
+
+def _default_input_index(sd: Any) -> int | None:
+    try:
+        index = int(sd.default.device[0])
+    except (TypeError, ValueError, IndexError):
+        return None
+    return index if index >= 0 else None
+
+
+def _found(devices: list[InputDevice]) -> str:
+    if not devices:
+        return "no input devices found"
+    return "input devices found: " + ", ".join(d.label() for d in devices)
+
+
+def resolve_input_device(spec: int | str | None) -> InputDevice:
+    """Find an input device by index, by part of its name (case-insensitive), or the default.
+
+    Parameters
+    ----------
+    spec : int, str or None
+        An index (``3`` or ``"3"``), part of a name (``"usb"``), or None for the system
+        default input (or the first input when there is no default).
+
+    Raises
+    ------
+    DeviceError
+        No input devices, an unknown or ambiguous spec, or an index that is not an input;
+        the message lists the input devices found.
+    """
+    devices = list_input_devices()
+    if not devices:
+        raise DeviceError("no audio input device found; connect a microphone or use --input demo")
+    if spec is None:
+        sd = import_sounddevice()
+        default = _default_input_index(sd)
+        for d in devices:
+            if d.index == default:
+                return d
+        return devices[0]
+    text = str(spec).strip()
+    if text.lstrip("-").isdigit():
+        index = int(text)
+        for d in devices:
+            if d.index == index:
+                return d
+        raise DeviceError(f"device {index} is not an audio input; {_found(devices)}")
+    wanted = text.casefold()
+    exact = [d for d in devices if d.name.casefold() == wanted]
+    matches = exact or [d for d in devices if wanted in d.name.casefold()]
+    if len(matches) == 1:
+        return matches[0]
+    if not matches:
+        raise DeviceError(f"no input device matches '{text}'; {_found(devices)}")
+    raise DeviceError(
+        f"'{text}' matches {len(matches)} input devices: "
+        + ", ".join(d.label() for d in matches)
+        + "; give the index or more of the name"
+    )
+
+
+class MicSource:
+    """A microphone (or any PortAudio input) as an :class:`~bench.sources.base.AudioSource`.
+
+    Parameters
+    ----------
+    device : int, str or None
+        Index or part of the name (see :func:`resolve_input_device`); None = default input.
+    sample_rate : int or None, Hz
+        None takes the device's default rate.
+    block_size : int >= 16, samples
+        Frames per callback and per block handed to the engine.
+    mix_channels : int >= 1
+        1 records channel 0; more records that many channels and averages them.
+    ring_blocks : int >= 2
+        Blocks the ring holds before new ones are dropped (64 x 512 at 48 kHz = 0.68 s).
+    stall_timeout_s : float > 0, seconds
+        A running stream that delivers nothing for this long counts as a lost device.
+    clock : Clock, optional
+        For polling the ring; the system clock by default.
+
+    Raises
+    ------
+    DeviceError
+        From :meth:`start`: PortAudio missing, device unknown, settings refused, open failed.
+        From :meth:`read`: the device stopped delivering (pulled out, server gone).
+    """
+
+    def __init__(
+        self,
+        device: int | str | None = None,
+        *,
+        sample_rate: int | None = None,
+        block_size: int = DEFAULT_BLOCK_SIZE,
+        mix_channels: int = 1,
+        ring_blocks: int = 64,
+        stall_timeout_s: float = 2.0,
+        clock: Clock | None = None,
+    ) -> None:
+        if block_size < 16:
+            raise DeviceError(f"block size {block_size} is too small; use 16 samples or more")
+        if sample_rate is not None and not 8000 <= sample_rate <= 192000:
+            raise DeviceError(f"sample rate {sample_rate} Hz is out of range; use 8000-192000")
+        if mix_channels < 1:
+            raise DeviceError(f"mix_channels {mix_channels} must be at least 1")
+        self.device_spec = device
+        self.block_size = int(block_size)
+        self.mix_channels = int(mix_channels)
+        self.stall_timeout_s = float(stall_timeout_s)
+        self._requested_rate = sample_rate
+        self._clock = clock or SystemClock()
+        self._ring = BlockRing(ring_blocks, self.block_size)
+        self.sample_rate = int(sample_rate or 48000)
+        self.ended = False
+        self.description = f"microphone {device if device is not None else '(default)'}"
+        self.device: InputDevice | None = None
+        self.input_latency_s = 0.0
+        self._overflows = 0
+        self._stream: Any = None
+        self._finished = False
+        self._stopping = False
+        self._opened_once = False
+        self._last_block_s = 0.0
+
+    @property
+    def dropped_blocks(self) -> int:
+        """Input overflows plus blocks that found the ring full, since construction."""
+        return self._overflows + self._ring.full_drops
+
+    def _callback(self, indata: NDArray[np.float32], frames: int, time_info: Any, status: Any) -> None:
+        if status.input_overflow:
+            self._overflows += 1
+        if self.mix_channels == 1:
+            self._ring.push_channel(indata)
+        else:
+            self._ring.push_mean(indata)
+
+    def _finished_callback(self) -> None:
+        self._finished = True
+
+    def start(self) -> None:
+        sd = import_sounddevice()
+        self._close()
+        if self._opened_once:
+            # A device pulled and plugged back needs a fresh PortAudio device list.
+            try:
+                sd._terminate()  # noqa: SLF001 - sounddevice has no public re-scan
+                sd._initialize()  # noqa: SLF001
+            except sd.PortAudioError as exc:
+                raise DeviceError(f"PortAudio cannot restart: {exc}") from None
+        dev = resolve_input_device(self.device_spec)
+        rate = int(self._requested_rate or round(dev.default_rate_hz))
+        channels = min(self.mix_channels, dev.channels)
+        try:
+            sd.check_input_settings(device=dev.index, channels=channels, dtype="float32", samplerate=rate)
+        except (sd.PortAudioError, ValueError) as exc:
+            raise DeviceError(
+                f"input {dev.label()} does not take {channels} channel(s) at {rate} Hz ({exc}); "
+                f"its default rate is {dev.default_rate_hz:.0f} Hz"
+            ) from None
+        self.device = dev
+        self.sample_rate = rate
+        self._ring.clear()
+        self._finished = False
+        self._stopping = False
+        try:
+            stream = sd.InputStream(
+                device=dev.index,
+                channels=channels,
+                samplerate=rate,
+                blocksize=self.block_size,
+                dtype="float32",
+                callback=self._callback,
+                finished_callback=self._finished_callback,
+            )
+            stream.start()
+        except (sd.PortAudioError, ValueError) as exc:
+            raise DeviceError(f"cannot open input {dev.label()} at {rate} Hz: {exc}") from None
+        self._stream = stream
+        self._opened_once = True
+        self.input_latency_s = float(stream.latency)
+        self._last_block_s = self._clock.monotonic()
+        self.description = f"microphone {dev.label()}, {rate} Hz, block {self.block_size}"
+
+    def read(self, timeout_s: float) -> NDArray[np.float32] | None:
+        if self._stream is None:
+            return None
+        start_s = self._clock.monotonic()
+        poll_s = min(0.002, self.block_size / self.sample_rate / 4)
+        while True:
+            block = self._ring.pop()
+            now_s = self._clock.monotonic()
+            if block is not None:
+                self._last_block_s = now_s
+                return block
+            if (self._finished and not self._stopping) or (
+                now_s - self._last_block_s > self.stall_timeout_s
+            ):
+                name = self.device.label() if self.device else str(self.device_spec)
+                self._close()
+                raise DeviceError(f"input {name} stopped delivering audio (unplugged or server gone?)")
+            if now_s - start_s >= timeout_s:
+                return None
+            self._clock.sleep(poll_s)
+
+    def _close(self) -> None:
+        stream, self._stream = self._stream, None
+        if stream is None:
+            return
+        self._stopping = True
+        try:
+            stream.abort()
+        except Exception:  # noqa: BLE001 - a lost device may fail to abort; closing is what matters
+            pass
+        try:
+            stream.close()
+        except Exception:  # noqa: BLE001
+            pass
+
+    def stop(self) -> None:
+        self._close()
