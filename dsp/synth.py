@@ -230,15 +230,12 @@ def _controls(ev: NoteEvent, t: NDArray[np.float64]) -> _Controls:
     return _Controls(fingered, level, crossfade, weaken, env)
 
 
-def _max_level_db(ev: NoteEvent) -> float:
-    return ev.level_dbfs + max(0.0, ev.crescendo_db) + max(0.0, ev.jump_step_db)
-
-
 def _max_fingered_hz(ev: NoteEvent) -> float:
+    """Highest fingered frequency the note reaches, Hz."""
     lo = min(0.0, ev.crescendo_db) + min(0.0, ev.jump_step_db)
     hi = max(0.0, ev.crescendo_db) + max(0.0, ev.jump_step_db)
     drift = max(ev.cents_per_db * lo, ev.cents_per_db * hi)
-    return ev.f0_hz * 2.0 ** ((abs(ev.vibrato_cents) + max(0.0, drift)) / 1200.0)
+    return float(ev.f0_hz * 2.0 ** ((abs(ev.vibrato_cents) + max(0.0, drift)) / 1200.0))
 
 
 def _validate(ev: NoteEvent, index: int, sample_rate: float) -> None:
@@ -616,7 +613,7 @@ class _NoteVoice:
             m = min(n, self._chiff.size - self._pos)
             out[:m] += self._chiff[self._pos : self._pos + m]
         self._pos += n
-        return out
+        return np.asarray(out, dtype=np.float64)
 
 
 def _horner_imag(coef: NDArray[np.complex128], z: NDArray[np.complex128]) -> NDArray[np.float64]:
