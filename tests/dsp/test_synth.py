@@ -275,7 +275,7 @@ def test_plan_timing_is_on_the_sample_grid():
         (dict(f0_hz=440.0, duration_s=1.0, jump_at_s=0.99, jump_kind="vented"), "jump_at_s 0.99"),
         (dict(f0_hz=440.0, duration_s=1.0, jump_at_s=0.5, jump_kind="blown"), "jump_kind 'blown'"),
         (dict(f0_hz=440.0, duration_s=1.0, mode=0), "mode 0"),
-        (dict(f0_hz=15000.0, duration_s=1.0), "raise sample_rate"),
+        (dict(f0_hz=22000.0, duration_s=1.0), "raise sample_rate"),
         (dict(f0_hz=440.0, duration_s=1.0, mode=2, jump_at_s=0.5, jump_kind="vented"), "jump_mode 2 equals mode"),
     ],
 )
