@@ -90,7 +90,12 @@ class TuningSettings:
                 )
         else:
             put("temperament", canonical_temperament_id(str(self.temperament)))
-        put("tonic", canonical_pitch_class(str(self.tonic)))
+        try:
+            put("tonic", canonical_pitch_class(str(self.tonic)))
+        except SettingsError:
+            raise SettingsError(
+                f"tonic {self.tonic!r} is not a pitch class; use C, C#, Db, D ... B"
+            ) from None
         put("temp_c", check_temp(self.temp_c, "air temperature"))
         put("ref_temp_c", check_temp(self.ref_temp_c, "reference temperature"))
         if self.rh_percent is not None:
