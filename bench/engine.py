@@ -275,7 +275,20 @@ class Engine:
 
     @property
     def source(self) -> AudioSource:
+        """The source the engine reads."""
         return self._source
+
+    @property
+    def on_event(self) -> Callable[[EngineEvent], None] | None:
+        """Callback for rare events (called from the engine thread; must not block).
+
+        The screen may set it after construction; replacing it is one reference swap.
+        """
+        return self._on_event
+
+    @on_event.setter
+    def on_event(self, callback: Callable[[EngineEvent], None] | None) -> None:
+        self._on_event = callback
 
     @property
     def stats(self) -> EngineStats:

@@ -1,0 +1,163 @@
+"""Air temperature from outside bench, re-read every few seconds.
+
+``--temp-source FILE`` reads the first number in a file a sensor logger rewrites;
+``--temp-source cmd:COMMAND`` runs a command and reads the first number it prints. Either
+way the value is degrees Celsius and replaces ``temp_c`` in the engine's settings.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import re
+import shlex
+import subprocess
+import threading
+from collections.abc import Callable
+from pathlib import Path
+
+from bench.errors import SettingsError
+from bench.tuning.air import TEMP_MAX_C, TEMP_MIN_C
+
+_NUMBER = re.compile(r"[-+]?\d+(?:[.,]\d+)?")
+TEMP_RANGE_C = (TEMP_MIN_C, TEMP_MAX_C)
+"""Air temperatures accepted, degC (the tuning model's range)."""
+
+
+def parse_temp_c(text: str, origin: str) -> float:
+    """The first number in ``text`` as degC.
+
+    >>> parse_temp_c("temp=23.4 C", "sensor")
+    23.4
+
+    Raises
+    ------
+    SettingsError
+        No number, or one outside the accepted range (-10..45 degC).
+    """
+    m = _NUMBER.search(text)
+    if m is None:
+        raise SettingsError(f"no temperature in {origin} (read {text.strip()[:40]!r}); it should print degC")
+    temp_c = float(m.group().replace(",", "."))
+    lo, hi = TEMP_RANGE_C
+    if not lo <= temp_c <= hi:
+        raise SettingsError(f"temperature {temp_c} degC from {origin} is outside {lo:.0f}..{hi:.0f} degC")
+    return temp_c
+
+
+class AirTemperatureSource:
+    """Where the air temperature comes from: a file or a command.
+
+    Parameters
+    ----------
+    spec : str
+        A file path, or ``cmd:`` followed by a command line (run without a shell).
+    timeout_s : float > 0, seconds
+        Longest a command may take.
+    """
+
+    def __init__(self, spec: str, *, timeout_s: float = 3.0) -> None:
+        spec = spec.strip()
+        if not spec:
+            raise SettingsError("empty --temp-source; give a file or cmd:COMMAND")
+        self.spec = spec
+        self.timeout_s = timeout_s
+        if spec.startswith("cmd:"):
+            self._argv: list[str] | None = shlex.split(spec[4:])
+            if not self._argv:
+                raise SettingsError("--temp-source cmd: names no command; give cmd:COMMAND")
+            self._path: Path | None = None
+        else:
+            self._argv = None
+            self._path = Path(spec)
+
+    @property
+    def origin(self) -> str:
+        return f"command {self._argv[0]!r}" if self._argv else f"file {self._path}"
+
+    def read_temp_c(self) -> float:
+        """Read the temperature now, degC.
+
+        Raises
+        ------
+        SettingsError
+            The file or command fails or gives no usable number.
+        """
+        if self._path is not None:
+            try:
+                text = self._path.read_text(encoding="utf-8", errors="replace")
+            except OSError as exc:
+                raise SettingsError(f"cannot read temperature file {self._path}: {exc.strerror or exc}") from None
+        else:
+            assert self._argv is not None
+            try:
+                done = subprocess.run(
+                    self._argv, capture_output=True, text=True, timeout=self.timeout_s, check=False
+                )
+            except (OSError, subprocess.TimeoutExpired) as exc:
+                raise SettingsError(f"temperature {self.origin} failed: {exc}") from None
+            if done.returncode != 0:
+                raise SettingsError(f"temperature {self.origin} exited with status {done.returncode}")
+            text = done.stdout
+        return parse_temp_c(text, self.origin)
+
+
+class AirTemperatureFollower:
+    """Re-read the air temperature every ``interval_s`` and put it into the engine's settings.
+
+    A failed read keeps the last value and is reported once through ``on_error`` until a
+    read succeeds again.
+
+    Parameters
+    ----------
+    source : AirTemperatureSource
+    engine : object with ``settings`` and ``set_settings``
+    interval_s : float > 0, seconds
+    on_error : callable(str), optional
+    """
+
+    def __init__(
+        self,
+        source: AirTemperatureSource,
+        engine,
+        *,
+        interval_s: float = 5.0,
+        on_error: Callable[[str], None] | None = None,
+    ) -> None:
+        self.source = source
+        self.engine = engine
+        self.interval_s = float(interval_s)
+        self.on_error = on_error
+        self.last_temp_c: float | None = None
+        self._failing = False
+        self._stop = threading.Event()
+        self._thread: threading.Thread | None = None
+
+    def update_once(self) -> float | None:
+        """Read once and apply; the value read, or None when the read failed."""
+        try:
+            temp_c = self.source.read_temp_c()
+        except SettingsError as exc:
+            if not self._failing and self.on_error is not None:
+                self.on_error(str(exc))
+            self._failing = True
+            return None
+        self._failing = False
+        self.last_temp_c = temp_c
+        settings = self.engine.settings
+        if settings.temp_c != temp_c:
+            self.engine.set_settings(dataclasses.replace(settings, temp_c=temp_c))
+        return temp_c
+
+    def start(self) -> None:
+        self._thread = threading.Thread(target=self._run, name="bench-airtemp", daemon=True)
+        self._thread.start()
+
+    def _run(self) -> None:
+        while not self._stop.is_set():
+            self.update_once()
+            self._stop.wait(self.interval_s)
+
+    def stop(self) -> None:
+        self._stop.set()
+        if self._thread is not None:
+            self._thread.join(self.source.timeout_s + 1.0)

@@ -1,0 +1,293 @@
+"""``bench run`` (also plain ``bench``) and ``bench demo``: the live tuner.
+
+With the screen (default) the engine runs behind ``bench.ui.app.run_app``. With
+``--no-ui`` it logs unattended: one line per held note on stdout (note, duration, median
+cents, register events), the frame log on disk, and Ctrl-C leaves a complete log.
+"""
+
+from __future__ import annotations
+
+import argparse
+import inspect
+import math
+import queue
+import sys
+import time
+from pathlib import Path
+from typing import Any
+
+from bench.commands.options import add_tuning_options, settings_from_args
+from bench.errors import BenchError, DeviceError, LogError, SettingsError
+
+INPUT_HELP = "mic (default for run), demo (the built-in instrument), or an audio FILE"
+TEMP_INTERVAL_S = 5.0
+"""Seconds between re-reads of --temp-source."""
+
+
+def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
+    for name, default_input, help_text in (
+        ("run", "mic", "live tuner and register monitor (the default command)"),
+        ("demo", "demo", "the live tuner listening to the built-in demo instrument"),
+    ):
+        p = sub.add_parser(
+            name,
+            help=help_text,
+            description=(
+                f"{help_text[0].upper()}{help_text[1:]}. Measures pitch, register and harmonics of "
+                "what the input plays against the tuning in force. --no-ui logs unattended."
+            ),
+        )
+        src = p.add_argument_group("input")
+        src.add_argument("--input", default=default_input, metavar="mic|demo|FILE", help=INPUT_HELP)
+        src.add_argument("--device", default=None, metavar="INDEX|NAME", help="input device: index or part of its name (see 'bench devices')")
+        src.add_argument("--rate", default=None, metavar="HZ", help="sample rate of the microphone or demo, Hz (default: the device's)")
+        src.add_argument("--block", default=None, metavar="N", help="samples per input block (default 512)")
+        log = p.add_argument_group("session log")
+        where = log.add_mutually_exclusive_group()
+        where.add_argument("--log", default=None, type=Path, metavar="FILE", help="write the frame log to FILE (must not exist)")
+        where.add_argument("--log-dir", default=None, type=Path, metavar="DIR", help="write a timestamped frame log in DIR")
+        log.add_argument("--log-rate", default=None, metavar="N", help="rows a second in the log (default: every frame)")
+        un = p.add_argument_group("unattended")
+        un.add_argument("--no-ui", action="store_true", help="no screen: print held notes, write the log")
+        un.add_argument("--duration", default=None, metavar="S", help="with --no-ui: stop after S seconds of input")
+        p.add_argument(
+            "--temp-source",
+            default=None,
+            metavar="FILE|cmd:COMMAND",
+            help=f"re-read the air temperature (degC) from FILE or a command every {TEMP_INTERVAL_S:g} s",
+        )
+        add_tuning_options(p)
+        p.set_defaults(func=run_command)
+
+
+def _positive(option: str, text: str | None, what: str, *, integer: bool = False) -> float | None:
+    if text is None:
+        return None
+    try:
+        value = int(text) if integer else float(text)
+    except ValueError:
+        raise SettingsError(f"{option} {text!r} is not a number; give {what}") from None
+    if not (math.isfinite(value) and value > 0):
+        raise SettingsError(f"{option} {text!r} must be above 0; give {what}")
+    return value
+
+
+def _say(message: str) -> None:
+    print(message, file=sys.stderr, flush=True)
+
+
+def build_source(args: argparse.Namespace, *, realtime_file: bool) -> Any:
+    """The source ``--input`` names; a missing microphone falls back to the demo (one line)."""
+    from bench.sources.base import DEFAULT_BLOCK_SIZE
+
+    block = int(_positive("--block", args.block, "samples per block, e.g. 512", integer=True) or DEFAULT_BLOCK_SIZE)
+    if not 16 <= block <= 16384:
+        raise SettingsError(f"--block {block} is out of range; use 16-16384 samples")
+    rate = _positive("--rate", args.rate, "a sample rate in Hz, e.g. 48000", integer=True)
+    if rate is not None and not 8000 <= rate <= 192000:
+        raise SettingsError(f"--rate {int(rate)} Hz is out of range; use 8000-192000")
+    rate_i = int(rate) if rate is not None else None
+    kind = str(args.input)
+    if kind == "demo":
+        from bench.sources.demo import DemoSource
+
+        return DemoSource(rate_i or 48000, block_size=block)
+    if kind == "mic":
+        from bench.sources.mic import MicSource, resolve_input_device
+
+        try:
+            resolve_input_device(args.device)
+        except DeviceError as exc:
+            if args.device is not None:
+                raise
+            _say(f"{exc}; playing the demo instrument instead")
+            from bench.sources.demo import DemoSource
+
+            return DemoSource(rate_i or 48000, block_size=block)
+        return MicSource(args.device, sample_rate=rate_i, block_size=block)
+    if args.device is not None:
+        raise SettingsError(f"--device {args.device!r} applies to --input mic, not to the file {kind}")
+    if rate_i is not None:
+        raise SettingsError(f"--rate {rate_i} applies to mic and demo; the file {kind} plays at its own rate")
+    from bench.sources.wavfile import WavFileSource
+
+    return WavFileSource(Path(kind), block_size=block, realtime=realtime_file)
+
+
+def _log_file(args: argparse.Namespace) -> Path | None:
+    from bench.config import default_log_dir
+    from bench.framelog import new_log_path
+
+    if args.log is not None:
+        path = Path(args.log)
+        if path.exists():
+            raise LogError(f"log file {path} exists already; give a new name or use --log-dir")
+        return path
+    if args.log_dir is not None:
+        folder = Path(args.log_dir)
+        if folder.exists() and not folder.is_dir():
+            raise LogError(f"--log-dir {folder} is a file; give a folder")
+        return new_log_path(folder)
+    if args.no_ui:
+        return new_log_path(default_log_dir())
+    return None
+
+
+def run_command(args: argparse.Namespace) -> int:
+    from bench.config import load_saved_settings
+
+    duration_s = _positive("--duration", args.duration, "seconds of input, e.g. 600")
+    if duration_s is not None and not args.no_ui:
+        raise SettingsError("--duration applies to --no-ui runs; add --no-ui or leave it out")
+    log_rate = _positive("--log-rate", args.log_rate, "rows a second, e.g. 20")
+    base = load_saved_settings()
+    settings = settings_from_args(args, base)
+    if args.temp_source is not None:
+        from bench.airtemp import AirTemperatureSource
+
+        temp_source = AirTemperatureSource(args.temp_source)
+        settings = settings_from_args(argparse.Namespace(temp=temp_source.read_temp_c()), settings)
+    source = build_source(args, realtime_file=not args.no_ui)
+    log_path = _log_file(args)
+    if args.no_ui:
+        return _run_unattended(args, source, settings, log_path, log_rate, duration_s)
+    return _run_screen(args, source, settings, log_path, log_rate)
+
+
+def _start_follower(args: argparse.Namespace, engine: Any, report) -> Any:
+    if args.temp_source is None:
+        return None
+    from bench.airtemp import AirTemperatureFollower, AirTemperatureSource
+
+    follower = AirTemperatureFollower(
+        AirTemperatureSource(args.temp_source), engine, interval_s=TEMP_INTERVAL_S, on_error=report
+    )
+    follower.start()
+    return follower
+
+
+def _start_engine(make, source: Any, args: argparse.Namespace) -> Any:
+    """Build and start the engine; an unusable default microphone falls back to the demo."""
+    engine = make(source)
+    try:
+        engine.start()
+    except DeviceError as exc:
+        if args.input != "mic" or args.device is not None:
+            raise
+        _say(f"{exc}; playing the demo instrument instead")
+        from bench.sources.demo import DemoSource
+
+        engine = make(DemoSource(source.sample_rate, block_size=getattr(source, "block_size", 512)))
+        engine.start()
+    return engine
+
+
+def _run_screen(args, source, settings, log_path, log_rate) -> int:
+    from bench.config import save_settings
+    from bench.engine import Engine
+
+    try:
+        from bench.ui.app import run_app
+    except ModuleNotFoundError as exc:
+        if exc.name and exc.name.startswith("bench.ui"):
+            raise BenchError("the screen is not installed in this build; use --no-ui") from None
+        raise
+    engine = _start_engine(
+        lambda src: Engine(src, settings, log_path=log_path, log_rows_per_s=log_rate), source, args
+    )
+    follower = _start_follower(args, engine, lambda message: None)
+    try:
+        accepted = inspect.signature(run_app).parameters
+        extras = {"log_dir": args.log_dir, "temp_follower": follower}
+        kwargs = {k: v for k, v in extras.items() if k in accepted}
+        result = run_app(engine, **kwargs)
+    finally:
+        if follower is not None:
+            follower.stop()
+        engine.stop()
+        try:
+            save_settings(engine.settings)
+        except OSError as exc:
+            _say(f"warning: settings not remembered: {exc}")
+    if engine.stats.log_rows and engine.stats.log_path is None and log_path is not None:
+        _say(f"log: {log_path}")
+    return int(result) if isinstance(result, int) else 0
+
+
+def _run_unattended(args, source, settings, log_path, log_rate, duration_s) -> int:
+    from bench.engine import Engine
+    from bench.heldnotes import HeldNoteTracker
+
+    lines: queue.SimpleQueue[tuple[str, str]] = queue.SimpleQueue()
+    tracker = HeldNoteTracker()
+
+    def on_reading(reading) -> None:  # engine thread
+        note = tracker.push(reading.frame, reading.mapping, reading.settings)
+        if note is not None:
+            lines.put(("out", note.describe()))
+
+    def on_event(event) -> None:  # engine thread
+        if event.kind in ("jump", "weakening"):
+            return  # shown in the held-note lines
+        lines.put(("err", f"{event.kind.replace('_', ' ')}: {event.message}"))
+
+    def drain() -> None:
+        while True:
+            try:
+                where, text = lines.get_nowait()
+            except queue.Empty:
+                return
+            if where == "out":
+                print(text, flush=True)
+            else:
+                _say(text)
+
+    engine = _start_engine(
+        lambda src: Engine(
+            src, settings, log_path=log_path, log_rows_per_s=log_rate, on_event=on_event, on_reading=on_reading
+        ),
+        source,
+        args,
+    )
+    follower = _start_follower(args, engine, lambda message: lines.put(("err", f"temperature: {message}")))
+    _say(f"listening to {engine.source.description}; log {log_path}; Ctrl-C stops")
+    wall0_s = time.monotonic()
+    try:
+        while engine.running:
+            drain()
+            if duration_s is not None:
+                latest = engine.latest()
+                heard_s = latest.stream_time_s if latest is not None else 0.0
+                if max(heard_s, time.monotonic() - wall0_s if _is_live(engine) else 0.0) >= duration_s:
+                    break
+            time.sleep(0.02)
+    except KeyboardInterrupt:
+        engine.stop()
+        if follower is not None:
+            follower.stop()
+        _finish_notes(tracker, lines)
+        drain()
+        _say(f"interrupted; the log is complete: {log_path} ({engine.stats.log_rows} rows)")
+        return 130
+    engine.stop()
+    if follower is not None:
+        follower.stop()
+    _finish_notes(tracker, lines)
+    drain()
+    stats = engine.stats
+    _say(
+        f"{stats.frames} frames, {stats.dropped_blocks} dropped blocks; "
+        f"log: {log_path} ({stats.log_rows} rows)"
+    )
+    return 0 if stats.state != "error" else 1
+
+
+def _is_live(engine: Any) -> bool:
+    """True for a microphone or a real-time paced source (wall time counts)."""
+    return bool(getattr(engine.source, "_pacer", None) is None or engine.source._pacer.realtime)  # noqa: SLF001
+
+
+def _finish_notes(tracker, lines) -> None:
+    note = tracker.finish()
+    if note is not None:
+        lines.put(("out", note.describe()))
