@@ -238,7 +238,7 @@ def test_reverb_decay_time():
     r = render([NoteEvent(1000.0, 0.1, chiff=False, gap_s=1.5)], sr, reverb_s=0.6, reverb_wet_db=0.0, **QUIET)
     tail = r.audio[int(0.12 * sr) :].astype(np.float64)
     edc = np.cumsum((tail * tail)[::-1])[::-1]
-    edc_db = 10 * np.log10(edc / edc[0])
+    edc_db = 10 * np.log10(edc / edc[0] + 1e-300)
     t = np.arange(tail.size) / sr
     fit = (edc_db < -5) & (edc_db > -35)  # T30 range
     slope_db_per_s = np.polyfit(t[fit], edc_db[fit], 1)[0]
