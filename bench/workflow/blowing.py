@@ -1,0 +1,449 @@
+"""Blowing curve: how a note's pitch follows the level it is blown at, and where it breaks.
+
+Blowing harder sharpens a duct flute; a crescendo (or the same note played at several
+dynamics) shows by how much, in cents per dB, and at which level the note leaves its
+register. Makers read the slope as the note's "pressure sensitivity" and the break level as
+the top of its usable dynamic range.
+
+Method
+------
+* The frames of one *held note* (the fingered note the analyser follows; the sounding note
+  when the log has no held note) under one set of settings form a run; a gap over
+  ``dropout_s`` ends it.
+* The first ``attack_s`` of the run are left out, and so is everything from the first frame
+  whose register state is "jumped".
+* Ordinary least squares of corrected cents against level (dBFS) over the frames that remain:
+  ``slope = Sxy / Sxx``, standard error ``sqrt(sum(r**2) / (n - 2) / Sxx)`` -- the same as
+  ``scipy.stats.linregress``. The standard error treats frames as independent; analysis
+  frames overlap, so it is optimistic by roughly the square root of the overlap factor.
+* Break level: the level of the last frame before the first "jumped" frame (the blowing level
+  that broke the note); ``jumped_level_dbfs`` is the level of that first jumped frame (which
+  carries the new register's level: an overblown break often steps up several dB).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+from dataclasses import dataclass
+from typing import Any
+
+from bench.workflow.notenames import note_name
+from bench.workflow.points import FramePoint, SettingsKey, as_point
+
+__all__ = [
+    "BlowingCurve",
+    "BlowingCurveTracker",
+    "blowing_curve",
+    "find_blowing_curves",
+    "fit_line",
+]
+
+MAX_KEPT_POINTS = 4000
+"""Most (level, cents) points a curve keeps for plotting (the fit uses all)."""
+
+
+@dataclass(frozen=True, slots=True)
+class LineFit:
+    """Least-squares line ``y = intercept + slope * x``."""
+
+    slope: float
+    intercept: float
+    slope_se: float
+    n: int
+
+
+def fit_line(xs: Iterable[float], ys: Iterable[float]) -> LineFit | None:
+    """Ordinary least squares with the slope's standard error.
+
+    Returns None for fewer than three points or no spread in ``xs``.
+
+    >>> f = fit_line([0.0, 1.0, 2.0, 3.0], [1.0, 3.0, 5.0, 7.5])
+    >>> round(f.slope, 3), round(f.intercept, 3), round(f.slope_se, 3)
+    (2.15, 0.9, 0.087)
+    """
+    acc = _Sums()
+    for x, y in zip(xs, ys, strict=True):
+        acc.add(x, y)
+    return acc.fit()
+
+
+class _Sums:
+    """Running sums for a least-squares line, shifted by the first point for accuracy."""
+
+    def __init__(self) -> None:
+        self.n = 0
+        self.x0 = self.y0 = 0.0
+        self.sx = self.sy = self.sxx = self.sxy = self.syy = 0.0
+
+    def add(self, x: float, y: float) -> None:
+        if self.n == 0:
+            self.x0, self.y0 = x, y
+        dx, dy = x - self.x0, y - self.y0
+        self.n += 1
+        self.sx += dx
+        self.sy += dy
+        self.sxx += dx * dx
+        self.sxy += dx * dy
+        self.syy += dy * dy
+
+    def fit(self) -> LineFit | None:
+        n = self.n
+        if n < 3:
+            return None
+        sxx = self.sxx - self.sx * self.sx / n
+        if sxx <= 1e-12:
+            return None
+        sxy = self.sxy - self.sx * self.sy / n
+        syy = self.syy - self.sy * self.sy / n
+        slope = sxy / sxx
+        rss = max(syy - slope * sxy, 0.0)
+        se = math.sqrt(rss / (n - 2) / sxx)
+        mean_x = self.x0 + self.sx / n
+        mean_y = self.y0 + self.sy / n
+        return LineFit(slope, mean_y - slope * mean_x, se, n)
+
+
+@dataclass(frozen=True, slots=True)
+class BlowingCurve:
+    """Pitch against level for one held note.
+
+    Attributes
+    ----------
+    note : str
+        Held (fingered) note.
+    midi : int
+    start_s, end_s : float, seconds
+        First and last frame of the run.
+    levels_dbfs : tuple of float, dBFS
+        Levels of the fitted frames (at most :data:`MAX_KEPT_POINTS`, evenly thinned).
+    cents : tuple of float, cents
+        Corrected cents of the same frames.
+    n : int
+        Frames fitted.
+    slope_cents_per_db : float or None, cents/dB
+        Least-squares slope; None with fewer than 3 frames or no level change.
+    slope_se_cents_per_db : float or None, cents/dB
+        Its standard error (frames taken as independent; see module docstring).
+    intercept_cents : float or None, cents
+        Fitted cents at 0 dBFS.
+    level_min_dbfs, level_max_dbfs : float, dBFS
+        Level range of the fitted frames.
+    break_level_dbfs : float or None, dBFS
+        Level at which the note broke into the next register; None if it did not.
+    break_time_s : float or None, seconds
+        Time of the first "jumped" frame.
+    jumped_level_dbfs : float or None, dBFS
+        Level of that frame.
+    jump_kind : str
+        "overblown" | "vented" | "" (no break).
+    settings : SettingsKey
+    """
+
+    note: str
+    midi: int
+    start_s: float
+    end_s: float
+    levels_dbfs: tuple[float, ...]
+    cents: tuple[float, ...]
+    n: int
+    slope_cents_per_db: float | None
+    slope_se_cents_per_db: float | None
+    intercept_cents: float | None
+    level_min_dbfs: float
+    level_max_dbfs: float
+    break_level_dbfs: float | None
+    break_time_s: float | None
+    jumped_level_dbfs: float | None
+    jump_kind: str
+    settings: SettingsKey
+
+    @property
+    def level_range_db(self) -> float:
+        """Level span of the fitted frames, dB."""
+        return self.level_max_dbfs - self.level_min_dbfs if self.n else 0.0
+
+    def cents_at(self, level_dbfs: float) -> float | None:
+        """Fitted cents at a level (None without a fit)."""
+        if self.slope_cents_per_db is None or self.intercept_cents is None:
+            return None
+        return self.intercept_cents + self.slope_cents_per_db * level_dbfs
+
+    def describe(self) -> str:
+        """One line for the terminal."""
+        if self.slope_cents_per_db is None:
+            slope = "no slope (level did not change)"
+        else:
+            slope = (
+                f"{self.slope_cents_per_db:+.2f} ± {self.slope_se_cents_per_db or 0.0:.2f} c/dB "
+                f"over {self.level_min_dbfs:.1f}..{self.level_max_dbfs:.1f} dBFS"
+            )
+        brk = (
+            f"broke ({self.jump_kind or 'jump'}) at {self.break_level_dbfs:.1f} dBFS, t={self.break_time_s:.2f} s"
+            if self.break_level_dbfs is not None and self.break_time_s is not None
+            else "no break"
+        )
+        return f"blowing curve {self.note}: {slope}; {brk}"
+
+
+class _Run:
+    """Frames of one held note being collected."""
+
+    def __init__(self, key: tuple[int, SettingsKey], note: str, start_s: float) -> None:
+        self.key = key
+        self.note = note
+        self.start_s = start_s
+        self.end_s = start_s
+        self.sums = _Sums()
+        self.levels: list[float] = []
+        self.cents: list[float] = []
+        self.lo = math.inf
+        self.hi = -math.inf
+        self.last_level: float | None = None
+        self.broken = False
+        self.break_level: float | None = None
+        self.break_time: float | None = None
+        self.jumped_level: float | None = None
+        self.jump_kind = ""
+
+    def add(self, level: float, cents: float) -> None:
+        self.sums.add(level, cents)
+        self.lo, self.hi = min(self.lo, level), max(self.hi, level)
+        self.levels.append(level)
+        self.cents.append(cents)
+        if len(self.levels) > 2 * MAX_KEPT_POINTS:  # thin evenly, keep memory bounded
+            self.levels = self.levels[::2]
+            self.cents = self.cents[::2]
+
+    def curve(self) -> BlowingCurve:
+        fit = self.sums.fit()
+        step = max(1, math.ceil(len(self.levels) / MAX_KEPT_POINTS))
+        midi, settings = self.key
+        return BlowingCurve(
+            note=self.note or note_name(midi),
+            midi=midi,
+            start_s=self.start_s,
+            end_s=self.end_s,
+            levels_dbfs=tuple(self.levels[::step]),
+            cents=tuple(self.cents[::step]),
+            n=self.sums.n,
+            slope_cents_per_db=fit.slope if fit else None,
+            slope_se_cents_per_db=fit.slope_se if fit else None,
+            intercept_cents=fit.intercept if fit else None,
+            level_min_dbfs=self.lo if self.sums.n else -math.inf,
+            level_max_dbfs=self.hi if self.sums.n else -math.inf,
+            break_level_dbfs=self.break_level,
+            break_time_s=self.break_time,
+            jumped_level_dbfs=self.jumped_level,
+            jump_kind=self.jump_kind,
+            settings=settings,
+        )
+
+
+class BlowingCurveTracker:
+    """Build blowing curves from frames fed one at a time (live or from a log).
+
+    Parameters
+    ----------
+    attack_s : float >= 0, seconds
+        Start of each held note left out of the fit.
+    dropout_s : float >= 0, seconds
+        Longest unvoiced gap that does not end the held note.
+
+    Examples
+    --------
+    >>> from bench.workflow.points import FramePoint, SettingsKey
+    >>> def pt(t, level, cents, reg="steady"):
+    ...     return FramePoint(t, True, 440.0, 69, "A4", 440.0, cents, cents, level, reg, "",
+    ...                       None, (None,) * 8, 440.0, SettingsKey())
+    >>> tr = BlowingCurveTracker()
+    >>> for i in range(300):
+    ...     lvl = -30.0 + 0.05 * i
+    ...     _ = tr.push(pt(i * 0.01, lvl, 0.6 * (lvl + 30.0)))
+    >>> brk = tr.push(pt(3.0, -12.0, 1200.0, "jumped"))
+    >>> round(brk.slope_cents_per_db, 3), round(brk.break_level_dbfs, 2)
+    (0.6, -15.05)
+    """
+
+    def __init__(self, *, attack_s: float = 0.15, dropout_s: float = 0.06) -> None:
+        self.attack_s = float(attack_s)
+        self.dropout_s = float(dropout_s)
+        self.reset()
+
+    def reset(self) -> None:
+        """Back to the state after construction."""
+        self._run: _Run | None = None
+        self._last_voiced_s = -math.inf
+        self.finished: list[BlowingCurve] = []
+
+    def current(self) -> BlowingCurve | None:
+        """The curve of the held note now sounding (or the last one), None before any note."""
+        if self._run is not None:
+            return self._run.curve()
+        return self.finished[-1] if self.finished else None
+
+    def push(self, item: Any, mapping: Any | None = None, settings: Any | None = None) -> BlowingCurve | None:
+        """Feed one frame (as :meth:`CaptureDetector.push` accepts).
+
+        Returns
+        -------
+        BlowingCurve or None
+            The curve up to the break when this frame is the first "jumped" frame of the
+            held note; None otherwise.
+        """
+        p = as_point(item, mapping, settings)
+        if not p.voiced:
+            if p.time_s - self._last_voiced_s > self.dropout_s:
+                self._close()
+            return None
+        gap = p.time_s - self._last_voiced_s > self.dropout_s
+        self._last_voiced_s = p.time_s
+        run = self._run
+        if p.register_state == "jumped":
+            same = run is not None and not gap and (
+                p.held_f0_hz is None or (p.held_midi, p.settings) == run.key
+            )
+            if not same:
+                self._close()
+                return None
+            assert run is not None
+            run.end_s = p.time_s
+            if run.broken:
+                return None
+            run.broken = True
+            run.break_level = run.last_level if run.last_level is not None else p.level_dbfs
+            run.break_time = p.time_s
+            run.jumped_level = p.level_dbfs
+            run.jump_kind = p.jump
+            return run.curve()
+        held = p.held_midi if p.held_f0_hz else p.midi
+        assert held is not None
+        key = (held, p.settings)
+        if run is None or gap or key != run.key:
+            self._close()
+            name = p.note if p.midi == held else note_name(held, flats="b" in p.note)
+            run = self._run = _Run(key, name, p.time_s)
+        run.end_s = p.time_s
+        if run.broken or p.cents is None or not math.isfinite(p.level_dbfs):
+            return None
+        run.last_level = p.level_dbfs
+        if p.time_s - run.start_s < self.attack_s - 1e-9:
+            return None
+        run.add(p.level_dbfs, p.cents)
+        return None
+
+    def finish(self) -> BlowingCurve | None:
+        """End of the stream; returns the last held note's curve."""
+        run = self._run
+        self._close()
+        return run.curve() if run is not None else None
+
+    def _close(self) -> None:
+        if self._run is not None:
+            self.finished.append(self._run.curve())
+            self._run = None
+
+
+def _all_curves(rows: Iterable[Any], attack_s: float, dropout_s: float) -> list[BlowingCurve]:
+    tr = BlowingCurveTracker(attack_s=attack_s, dropout_s=dropout_s)
+    for row in rows:
+        tr.push(row)
+    tr.finish()
+    return tr.finished
+
+
+def find_blowing_curves(
+    rows: Iterable[Any],
+    *,
+    min_range_db: float = 6.0,
+    min_frames: int = 20,
+    attack_s: float = 0.15,
+    dropout_s: float = 0.06,
+) -> list[BlowingCurve]:
+    """Blowing curves of every held note that changed level by ``min_range_db`` or more,
+    or broke into the next register (a crescendo), in playing order.
+
+    Parameters
+    ----------
+    rows : iterable of frame-log rows, readings or FramePoint
+    min_range_db : float, dB
+        Smallest level span that counts as a crescendo.
+    min_frames : int
+        Fewest fitted frames.
+    """
+    return [
+        c
+        for c in _all_curves(rows, attack_s, dropout_s)
+        if c.n >= min_frames and (c.level_range_db >= min_range_db or c.break_level_dbfs is not None)
+    ]
+
+
+def blowing_curve(
+    rows: Iterable[Any],
+    note: str | int | None = None,
+    *,
+    attack_s: float = 0.15,
+    dropout_s: float = 0.06,
+) -> BlowingCurve | None:
+    """The blowing curve of one note.
+
+    Parameters
+    ----------
+    rows : iterable of frame-log rows, readings or FramePoint
+    note : str, int or None
+        Held note (name or MIDI). All its runs under the first settings it was played with
+        are pooled (a series of dynamics); the break is the first one seen. None: the held
+        note with the widest level span.
+
+    Returns
+    -------
+    BlowingCurve or None
+        None when the note was not played.
+    """
+    curves = [c for c in _all_curves(rows, attack_s, dropout_s) if c.n > 0 or c.break_level_dbfs is not None]
+    if not curves:
+        return None
+    if note is None:
+        return max(curves, key=lambda c: (c.level_range_db, c.n))
+    if isinstance(note, str):
+        from bench.workflow.notenames import parse_note
+
+        midi = parse_note(note)
+    else:
+        midi = int(note)
+    mine = [c for c in curves if c.midi == midi]
+    if not mine:
+        return None
+    mine = [c for c in mine if c.settings == mine[0].settings]
+    if len(mine) == 1:
+        return mine[0]
+    acc = _Sums()
+    levels: list[float] = []
+    cents: list[float] = []
+    for c in mine:
+        levels.extend(c.levels_dbfs)
+        cents.extend(c.cents)
+    for x, y in zip(levels, cents, strict=True):
+        acc.add(x, y)
+    fit = acc.fit()
+    broke = next((c for c in mine if c.break_level_dbfs is not None), None)
+    first = mine[0]
+    return BlowingCurve(
+        note=first.note,
+        midi=first.midi,
+        start_s=first.start_s,
+        end_s=mine[-1].end_s,
+        levels_dbfs=tuple(levels),
+        cents=tuple(cents),
+        n=acc.n,
+        slope_cents_per_db=fit.slope if fit else None,
+        slope_se_cents_per_db=fit.slope_se if fit else None,
+        intercept_cents=fit.intercept if fit else None,
+        level_min_dbfs=min(levels) if levels else -math.inf,
+        level_max_dbfs=max(levels) if levels else -math.inf,
+        break_level_dbfs=broke.break_level_dbfs if broke else None,
+        break_time_s=broke.break_time_s if broke else None,
+        jumped_level_dbfs=broke.jumped_level_dbfs if broke else None,
+        jump_kind=broke.jump_kind if broke else "",
+        settings=first.settings,
+    )

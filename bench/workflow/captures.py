@@ -1,0 +1,781 @@
+"""Captures: what each note did, kept once it has settled.
+
+A *capture* sums up one steady stretch of one note: its median corrected cents, how much the
+frames spread, its level and harmonic balance, the settings it was measured under, and how
+much louder it could be blown before it broke into the next register (when that was seen).
+
+When is a note settled?  (defaults of :class:`CaptureThresholds`)
+
+* a *run* is a sequence of voiced frames mapped to the same note, in the same sounding mode
+  and under the same settings, with no gap longer than ``dropout_s`` (60 ms);
+* the first ``attack_s`` (150 ms) of a run are the attack and are never used;
+* the run is *settled* once every frame of the last ``settle_s`` (300 ms) lies within
+  ``tolerance_cents`` (±3 c) of those frames' median; that median is the stretch's reference;
+* the steady stretch goes on while frames stay within ±3 c of the reference (single stray
+  frames are skipped); it ends when frames stay outside for ``dropout_s``, when the note, mode
+  or settings change, or when the sound stops. Its frames make one capture.
+
+Spread is the scaled median absolute deviation of the stretch's corrected cents,
+``1.4826 * median(|c - median(c)|)``: a robust estimate of the frame-to-frame standard
+deviation (equals σ for normally distributed frames; scipy.stats.median_abs_deviation with
+``scale="normal"``).
+
+Register: the sounding mode from the ratio of the sounding to the held (fingered)
+fundamental when the analyser reports a held note and the ratio is 2, 3 ... (an overblown or
+vented note); otherwise the register the instrument profile puts the note in; 1 without a
+profile.
+
+Register margin: when the held note broke into the next register during the same held note
+(the first frame whose register state is "jumped"), the margin is the break level minus the
+capture's level, dB. The break level is the level of the last frame before the jump (the
+blowing level that broke the note; the jumped frames themselves carry the new register's
+level). A capture taken later on the same note, under the same settings, uses the last break
+seen on that note.
+
+File format (``<log stem>.captures.csv`` beside the frame log), UTF-8 CSV with ``\\r\\n`` line
+ends and a header row, columns :data:`CAPTURE_COLUMNS`; a row with an ``index`` seen before
+replaces the earlier row (a margin learnt later). Every text cell is written through
+:func:`bench.framelog.safe_cell`.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import statistics
+from collections import deque
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, replace
+from pathlib import Path
+from typing import Any, Literal
+
+from bench.errors import LogError
+from bench.framelog import safe_cell
+from bench.workflow.points import FramePoint, SettingsKey, as_point
+from bench.workflow.profiles import InstrumentProfile
+
+__all__ = [
+    "CAPTURE_COLUMNS",
+    "Capture",
+    "CaptureDetector",
+    "CaptureFile",
+    "CaptureThresholds",
+    "capture_from_points",
+    "captures_from_rows",
+    "captures_path_for",
+    "read_captures",
+    "scaled_mad",
+    "write_captures",
+]
+
+CaptureSource = Literal["auto", "manual"]
+
+CAPTURE_COLUMNS: tuple[str, ...] = (
+    "index", "label", "source", "note", "midi", "register", "mode",
+    "start_s", "end_s", "frames",
+    "cents", "cents_spread", "cents_raw", "f0_hz", "target_hz",
+    "level_dbfs", "level_min_dbfs", "level_max_dbfs",
+    "odd_even_db", "h1_db", "h2_db", "h3_db", "h4_db", "h5_db", "h6_db", "h7_db", "h8_db",
+    "register_margin_db", "break_level_dbfs",
+    "temperament", "tonic", "a4_hz", "temp_c", "ref_temp_c", "rh_percent",
+)  # fmt: skip
+"""Columns of a captures file, in this order.
+
+index (1, 2 ...), label (session label in force), source (auto | manual), note (sounding,
+as the log spelled it), midi, register (1, 2, 3 ...), mode (sounding mode from the held note,
+blank if unknown), start_s / end_s (seconds, frame-log time of the first and last frame used),
+frames (count), cents (median, corrected to the reference temperature), cents_spread (scaled
+MAD, cents), cents_raw (median, uncorrected), f0_hz / target_hz (median, Hz), level_dbfs
+(median), level_min_dbfs / level_max_dbfs, odd_even_db and h1_db..h8_db (medians, dB re the
+strongest harmonic), register_margin_db (dB the level could rise before the note broke; blank
+if no break was seen), break_level_dbfs (level at the break), then the settings: temperament,
+tonic, a4_hz (Hz), temp_c and ref_temp_c (degC), rh_percent (blank: dry air)."""
+
+
+@dataclass(frozen=True, slots=True)
+class CaptureThresholds:
+    """When a note counts as settled (see the module docstring).
+
+    Attributes
+    ----------
+    attack_s : float >= 0, seconds
+        Start of each run left out as the attack (150 ms).
+    settle_s : float > 0, seconds
+        How long the note must stay within ``tolerance_cents`` before it counts (300 ms).
+    tolerance_cents : float > 0, cents
+        Half-width of the steadiness band (3 c).
+    dropout_s : float >= 0, seconds
+        Longest gap (unvoiced frames, or frames out of the band) that does not end a stretch.
+    manual_s : float > 0, seconds
+        Default span of :meth:`CaptureDetector.capture_now` (the last 0.5 s).
+    """
+
+    attack_s: float = 0.15
+    settle_s: float = 0.30
+    tolerance_cents: float = 3.0
+    dropout_s: float = 0.06
+    manual_s: float = 0.5
+
+    def __post_init__(self) -> None:
+        for name in ("attack_s", "dropout_s"):
+            if not getattr(self, name) >= 0:
+                raise ValueError(f"{name} {getattr(self, name)!r} must be >= 0 seconds")
+        for name in ("settle_s", "tolerance_cents", "manual_s"):
+            if not getattr(self, name) > 0:
+                raise ValueError(f"{name} {getattr(self, name)!r} must be > 0")
+
+
+@dataclass(frozen=True, slots=True)
+class Capture:
+    """One captured note; fields as in :data:`CAPTURE_COLUMNS` (units in the names)."""
+
+    index: int
+    label: str
+    source: CaptureSource
+    note: str
+    midi: int
+    register: int
+    mode: int | None
+    start_s: float
+    end_s: float
+    frames: int
+    cents: float
+    cents_spread: float
+    cents_raw: float
+    f0_hz: float
+    target_hz: float
+    level_dbfs: float
+    level_min_dbfs: float
+    level_max_dbfs: float
+    odd_even_db: float | None
+    harmonics_db: tuple[float | None, ...]
+    register_margin_db: float | None
+    break_level_dbfs: float | None
+    temperament: str
+    tonic: str
+    a4_hz: float
+    temp_c: float
+    ref_temp_c: float
+    rh_percent: float | None
+
+    @property
+    def settings(self) -> SettingsKey:
+        """The settings the capture was taken under."""
+        return SettingsKey(
+            self.temperament, self.tonic, self.a4_hz, self.temp_c, self.ref_temp_c, self.rh_percent
+        )
+
+    @property
+    def duration_s(self) -> float:
+        """Length of the stretch used, seconds."""
+        return self.end_s - self.start_s
+
+
+def scaled_mad(values: Sequence[float]) -> float:
+    """Scaled median absolute deviation, ``1.4826 * median(|x - median(x)|)``.
+
+    A robust standard deviation (equals σ for normal data); 0 for fewer than two values.
+
+    >>> scaled_mad([0.0, 1.0, 2.0, 3.0, 100.0])
+    1.4826
+    """
+    if len(values) < 2:
+        return 0.0
+    med = statistics.median(values)
+    return 1.4826 * statistics.median(abs(v - med) for v in values)
+
+
+def _median_or_none(values: Iterable[float | None]) -> float | None:
+    got = [v for v in values if v is not None and math.isfinite(v)]
+    return statistics.median(got) if got else None
+
+
+def _register_for(point: FramePoint, profile: InstrumentProfile | None) -> int:
+    mode = point.mode
+    if mode is not None and mode > 1:
+        return mode
+    if profile is not None and point.midi is not None:
+        return profile.register_of(point.midi)
+    return 1
+
+
+def capture_from_points(
+    points: Sequence[FramePoint],
+    *,
+    index: int,
+    label: str = "",
+    source: CaptureSource = "auto",
+    profile: InstrumentProfile | None = None,
+    break_level_dbfs: float | None = None,
+) -> Capture:
+    """Sum up voiced points of one note as a :class:`Capture`.
+
+    Parameters
+    ----------
+    points : sequence of FramePoint
+        Voiced frames of one note (the first one gives note, mode and settings).
+    index : int
+        Capture number within the session.
+    label : str
+        Session label in force.
+    source : "auto" | "manual"
+    profile : InstrumentProfile or None
+        Gives the register of first-mode notes.
+    break_level_dbfs : float or None, dBFS
+        Level at which this note broke into the next register, if known.
+
+    Raises
+    ------
+    ValueError
+        No voiced point given.
+    """
+    voiced = [p for p in points if p.voiced and p.cents is not None]
+    if not voiced:
+        raise ValueError("no voiced frames to capture; play a note first")
+    first = voiced[0]
+    cents = [p.cents for p in voiced if p.cents is not None]
+    levels = [p.level_dbfs for p in voiced if math.isfinite(p.level_dbfs)]
+    level = statistics.median(levels) if levels else -math.inf
+    harmonics = tuple(_median_or_none(p.harmonics_db[k] for p in voiced) for k in range(8))
+    mode = first.mode
+    margin = None
+    if break_level_dbfs is not None and (mode is None or mode == 1) and math.isfinite(level):
+        margin = break_level_dbfs - level
+    s = first.settings
+    return Capture(
+        index=index,
+        label=label,
+        source=source,
+        note=first.note,
+        midi=int(first.midi) if first.midi is not None else 0,
+        register=_register_for(first, profile),
+        mode=mode,
+        start_s=voiced[0].time_s,
+        end_s=voiced[-1].time_s,
+        frames=len(voiced),
+        cents=statistics.median(cents),
+        cents_spread=scaled_mad(cents),
+        cents_raw=_median_or_none(p.cents_raw for p in voiced) or 0.0,
+        f0_hz=_median_or_none(p.f0_hz for p in voiced) or 0.0,
+        target_hz=_median_or_none(p.target_hz for p in voiced) or 0.0,
+        level_dbfs=level,
+        level_min_dbfs=min(levels) if levels else -math.inf,
+        level_max_dbfs=max(levels) if levels else -math.inf,
+        odd_even_db=_median_or_none(p.odd_even_db for p in voiced),
+        harmonics_db=harmonics,
+        register_margin_db=margin,
+        break_level_dbfs=break_level_dbfs if margin is not None else None,
+        temperament=s.temperament,
+        tonic=s.tonic,
+        a4_hz=s.a4_hz,
+        temp_c=s.temp_c,
+        ref_temp_c=s.ref_temp_c,
+        rh_percent=s.rh_percent,
+    )
+
+
+class CaptureDetector:
+    """Find settled notes in a stream of frames, one frame at a time.
+
+    Parameters
+    ----------
+    profile : InstrumentProfile or None
+        Gives the register of each captured note (see module docstring).
+    label : str
+        Session label put on each capture; change it with :attr:`label` between passes
+        ("after undercutting hole 3").
+    auto : bool
+        Capture settled notes automatically. When False, :meth:`push` only tracks the
+        stream, and captures come from :meth:`capture_now`.
+    thresholds : CaptureThresholds
+    first_index : int
+        Number of the first capture (continue a session: ``len(old) + 1``).
+
+    Notes
+    -----
+    Block-by-block equals one-shot: feeding the same frames through :meth:`push` (and then
+    :meth:`finish`) gives the same captures however the caller splits them, and
+    :meth:`reset` followed by the same frames gives the same captures again.
+
+    Examples
+    --------
+    >>> from bench.workflow.points import FramePoint, SettingsKey
+    >>> def pt(t, c):
+    ...     return FramePoint(t, True, 440.0, 69, "A4", 440.0, c, c, -20.0, "steady", "",
+    ...                       3.0, (0.0,) * 8, 440.0, SettingsKey())
+    >>> det = CaptureDetector()
+    >>> got = [det.push(pt(i * 0.01, 2.0 + 0.1 * (i % 3))) for i in range(100)]
+    >>> cap = det.finish()
+    >>> cap.note, round(cap.cents, 1), cap.frames, cap.start_s
+    ('A4', 2.1, 85, 0.15)
+    """
+
+    def __init__(
+        self,
+        *,
+        profile: InstrumentProfile | None = None,
+        label: str = "",
+        auto: bool = True,
+        thresholds: CaptureThresholds | None = None,
+        first_index: int = 1,
+    ) -> None:
+        self.profile = profile
+        self.label = label
+        self.auto = auto
+        self.thresholds = thresholds or CaptureThresholds()
+        self._first_index = int(first_index)
+        self.reset()
+
+    # -- state -------------------------------------------------------------------------------
+
+    def reset(self) -> None:
+        """Forget everything: back to the state after construction (label and auto kept)."""
+        self.captures: list[Capture] = []
+        self._next_index = self._first_index
+        self._updates: list[Capture] = []
+        self._breaks: dict[tuple[int, SettingsKey], float] = {}
+        self._recent: deque[FramePoint] = deque()
+        self._prev_voiced: FramePoint | None = None
+        # settle run
+        self._run_key: tuple[int | None, int | None, SettingsKey] | None = None
+        self._run_start_s = 0.0
+        self._last_voiced_s = -math.inf
+        self._window: list[FramePoint] = []
+        self._post_attack_s: float | None = None
+        self._steady: list[FramePoint] = []
+        self._ref_cents: float | None = None
+        self._outliers: list[FramePoint] = []
+        # held-note run (for register margins)
+        self._held_key: tuple[int, SettingsKey] | None = None
+        self._held_broken = False
+        self._held_capture_indices: list[int] = []
+
+    def take_updates(self) -> list[Capture]:
+        """Captures whose register margin was learnt after they were returned.
+
+        Each replaces the capture with the same :attr:`Capture.index`; the list is emptied.
+        """
+        out, self._updates = self._updates, []
+        return out
+
+    @property
+    def settled(self) -> bool:
+        """True while the current note is in a steady stretch."""
+        return self._ref_cents is not None
+
+    # -- feeding -----------------------------------------------------------------------------
+
+    def push(self, item: Any, mapping: Any | None = None, settings: Any | None = None) -> Capture | None:
+        """Feed one frame; return a capture when a steady stretch has just ended.
+
+        Parameters
+        ----------
+        item : FramePoint, frame-log row (dict), Reading, or Frame
+            With a bare ``Frame`` give its ``mapping`` (NoteMapping or None) and ``settings``.
+
+        Returns
+        -------
+        Capture or None
+            The new automatic capture (only when :attr:`auto` is on).
+        """
+        p = as_point(item, mapping, settings)
+        th = self.thresholds
+        if p.voiced:
+            self._recent.append(p)
+            while self._recent and self._recent[0].time_s < p.time_s - max(th.manual_s, 5.0):
+                self._recent.popleft()
+        self._track_held(p)
+        if not p.voiced:
+            if p.time_s - self._last_voiced_s > th.dropout_s:
+                return self._end_run()
+            return None
+        result: Capture | None = None
+        key = (p.midi, p.mode, p.settings)
+        if key != self._run_key or p.time_s - self._last_voiced_s > th.dropout_s:
+            result = self._end_run()
+            self._run_key = key
+            self._run_start_s = p.time_s
+        self._last_voiced_s = p.time_s
+        if p.time_s - self._run_start_s < th.attack_s - 1e-9:
+            return result
+        if self._post_attack_s is None:
+            self._post_attack_s = p.time_s
+        if self._ref_cents is None:
+            self._settle(p)
+            return result
+        assert p.cents is not None
+        if abs(p.cents - self._ref_cents) <= th.tolerance_cents:
+            self._steady.append(p)
+            self._outliers = []
+            return result
+        self._outliers.append(p)
+        if p.time_s - self._outliers[0].time_s >= th.dropout_s:
+            ended = self._emit_stretch()
+            outliers = self._outliers
+            self._outliers = []
+            self._post_attack_s = outliers[0].time_s
+            for q in outliers:
+                self._settle(q)
+            return ended or result
+        return result
+
+    def finish(self) -> Capture | None:
+        """End of the stream: close the current stretch; return its capture if any."""
+        return self._end_run()
+
+    def capture_now(self, last_s: float | None = None) -> Capture | None:
+        """Capture the current note from the last ``last_s`` seconds, settled or not.
+
+        Uses the voiced frames of the newest note (same note, mode and settings) within
+        ``last_s`` (default ``thresholds.manual_s``) of the newest frame. Works with
+        :attr:`auto` on or off. Returns None when no voiced frame is at hand.
+        """
+        span = self.thresholds.manual_s if last_s is None else float(last_s)
+        if not self._recent:
+            return None
+        newest = self._recent[-1]
+        key = (newest.midi, newest.mode, newest.settings)
+        picked: list[FramePoint] = []
+        for q in reversed(self._recent):
+            if q.time_s < newest.time_s - span or (q.midi, q.mode, q.settings) != key:
+                break
+            picked.append(q)
+        picked.reverse()
+        return self._make(picked, "manual")
+
+    # -- internals ---------------------------------------------------------------------------
+
+    def _settle(self, p: FramePoint) -> None:
+        """Add a post-attack frame to the settling window; mark settled when steady."""
+        th = self.thresholds
+        self._window.append(p)
+        cutoff = p.time_s - th.settle_s - 1e-9
+        while self._window and self._window[0].time_s < cutoff:
+            self._window.pop(0)
+        assert self._post_attack_s is not None
+        if p.time_s - self._post_attack_s < th.settle_s - 1e-9:
+            return
+        cents = [q.cents for q in self._window if q.cents is not None]
+        med = statistics.median(cents)
+        if all(abs(c - med) <= th.tolerance_cents for c in cents):
+            self._ref_cents = med
+            self._steady = list(self._window)
+            self._window = []
+
+    def _emit_stretch(self) -> Capture | None:
+        steady = self._steady
+        self._steady, self._ref_cents, self._window = [], None, []
+        if not steady or not self.auto:
+            return None
+        return self._make(steady, "auto")
+
+    def _end_run(self) -> Capture | None:
+        cap = self._emit_stretch() if self._ref_cents is not None else None
+        self._run_key = None
+        self._post_attack_s = None
+        self._window, self._outliers = [], []
+        return cap
+
+    def _make(self, points: Sequence[FramePoint], source: CaptureSource) -> Capture | None:
+        if not points:
+            return None
+        first = points[0]
+        brk = None
+        if first.midi is not None and (first.mode is None or first.mode == 1):
+            brk = self._breaks.get((first.midi, first.settings))
+        cap = capture_from_points(
+            points,
+            index=self._next_index,
+            label=self.label,
+            source=source,
+            profile=self.profile,
+            break_level_dbfs=brk,
+        )
+        self._next_index += 1
+        self.captures.append(cap)
+        if self._held_key is not None and first.midi == self._held_key[0] and cap.mode in (None, 1):
+            self._held_capture_indices.append(cap.index)
+        return cap
+
+    def _track_held(self, p: FramePoint) -> None:
+        """Follow the held note; on its first jump record the break and fill margins."""
+        if not p.voiced:
+            if p.time_s - self._last_voiced_s > self.thresholds.dropout_s:
+                self._held_key = None
+            return
+        if p.register_state == "jumped":
+            key = self._held_key if p.held_f0_hz is None else (p.held_midi, p.settings)
+            if key is not None and key == self._held_key and not self._held_broken:
+                prev = self._prev_voiced
+                level = prev.level_dbfs if prev is not None and prev.register_state != "jumped" else p.level_dbfs
+                self._held_broken = True
+                self._breaks[key] = level
+                self._fill_margins(level)
+            self._prev_voiced = p
+            return
+        key = (p.held_midi if p.held_f0_hz else p.midi, p.settings)
+        if key != self._held_key:
+            self._held_key = key  # type: ignore[assignment]
+            self._held_broken = False
+            self._held_capture_indices = []
+        self._prev_voiced = p
+
+    def _fill_margins(self, break_level_dbfs: float) -> None:
+        for i, cap in enumerate(self.captures):
+            if cap.index in self._held_capture_indices and math.isfinite(cap.level_dbfs):
+                new = replace(
+                    cap,
+                    register_margin_db=break_level_dbfs - cap.level_dbfs,
+                    break_level_dbfs=break_level_dbfs,
+                )
+                self.captures[i] = new
+                self._updates.append(new)
+        self._held_capture_indices = []
+
+
+def captures_from_rows(
+    rows: Iterable[Any],
+    *,
+    profile: InstrumentProfile | None = None,
+    label: str = "",
+    thresholds: CaptureThresholds | None = None,
+) -> list[Capture]:
+    """Automatic captures of a whole recording (frame-log rows, readings or points).
+
+    Register margins learnt from a later break are filled in. See :class:`CaptureDetector`.
+    """
+    det = CaptureDetector(profile=profile, label=label, thresholds=thresholds)
+    for row in rows:
+        det.push(row)
+    det.finish()
+    return list(det.captures)
+
+
+# --- files --------------------------------------------------------------------------------
+
+
+def captures_path_for(log_path: str | Path) -> Path:
+    """``<log stem>.captures.csv`` beside a session's frame log.
+
+    >>> captures_path_for("logs/session-20260101-101500.csv").as_posix()
+    'logs/session-20260101-101500.captures.csv'
+    """
+    p = Path(log_path)
+    return p.with_name(f"{p.stem}.captures.csv")
+
+
+def _fmt(value: float | None, digits: int) -> str:
+    if value is None:
+        return ""
+    if not math.isfinite(value):
+        return "" if math.isnan(value) else ("-inf" if value < 0 else "inf")
+    return f"{value:.{digits}f}"
+
+
+def capture_row(cap: Capture) -> list[str]:
+    """The CSV cells of one capture (every text cell spreadsheet-safe)."""
+    return [
+        str(cap.index),
+        safe_cell(cap.label),
+        cap.source,
+        safe_cell(cap.note),
+        str(cap.midi),
+        str(cap.register),
+        "" if cap.mode is None else str(cap.mode),
+        _fmt(cap.start_s, 4),
+        _fmt(cap.end_s, 4),
+        str(cap.frames),
+        _fmt(cap.cents, 3),
+        _fmt(cap.cents_spread, 3),
+        _fmt(cap.cents_raw, 3),
+        _fmt(cap.f0_hz, 4),
+        _fmt(cap.target_hz, 4),
+        _fmt(cap.level_dbfs, 2),
+        _fmt(cap.level_min_dbfs, 2),
+        _fmt(cap.level_max_dbfs, 2),
+        _fmt(cap.odd_even_db, 2),
+        *(_fmt(h, 2) for h in cap.harmonics_db),
+        _fmt(cap.register_margin_db, 2),
+        _fmt(cap.break_level_dbfs, 2),
+        safe_cell(cap.temperament),
+        safe_cell(cap.tonic),
+        _fmt(cap.a4_hz, 3),
+        _fmt(cap.temp_c, 2),
+        _fmt(cap.ref_temp_c, 2),
+        _fmt(cap.rh_percent, 1),
+    ]
+
+
+class CaptureFile:
+    """Append captures to a captures CSV, flushing every row.
+
+    Parameters
+    ----------
+    path : Path
+        File to write; created with its header, or appended to when it already is a
+        captures file (a resumed session).
+
+    Raises
+    ------
+    LogError
+        The file cannot be written, or exists and is not a captures file.
+    """
+
+    def __init__(self, path: str | Path) -> None:
+        self.path = Path(path)
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+            fresh = not self.path.exists() or self.path.stat().st_size == 0
+            if not fresh:
+                with open(self.path, encoding="utf-8", newline="") as f:
+                    header = next(csv.reader(f), [])
+                if tuple(header) != CAPTURE_COLUMNS:
+                    raise LogError(
+                        f"{self.path} exists and is not a captures file; move it or choose another log name"
+                    )
+            self._file: io.TextIOWrapper | None = open(  # noqa: SIM115 - closed in close()
+                self.path, "a", encoding="utf-8", newline=""
+            )
+        except UnicodeDecodeError:
+            raise LogError(f"{self.path} exists and is not a captures file; move it") from None
+        except OSError as exc:
+            raise LogError(f"cannot write captures to {self.path}: {exc.strerror or exc}") from None
+        self._writer = csv.writer(self._file)
+        if fresh:
+            self._writer.writerow(CAPTURE_COLUMNS)
+            self._file.flush()
+
+    def write(self, cap: Capture) -> None:
+        """Append one capture (or a replacement with the same index) and flush."""
+        if self._file is None:
+            raise LogError(f"captures file {self.path} is closed")
+        try:
+            self._writer.writerow(capture_row(cap))
+            self._file.flush()
+        except OSError as exc:
+            raise LogError(f"writing captures to {self.path} failed: {exc.strerror or exc}") from None
+
+    def close(self) -> None:
+        """Close; safe to call twice."""
+        if self._file is not None:
+            f, self._file = self._file, None
+            f.close()
+
+    def __enter__(self) -> CaptureFile:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+
+def write_captures(path: str | Path, captures: Iterable[Capture]) -> Path:
+    """Write captures to a new captures file (replacing one that exists); return the path."""
+    path = Path(path)
+    if path.exists():
+        try:
+            path.unlink()
+        except OSError as exc:
+            raise LogError(f"cannot replace {path}: {exc.strerror or exc}") from None
+    with CaptureFile(path) as f:
+        for cap in captures:
+            f.write(cap)
+    return path
+
+
+def _unquote(text: str) -> str:
+    if len(text) > 1 and text[0] == "'" and text[1] in "=+-@\t\r":
+        return text[1:]
+    return text
+
+
+def _opt(text: str) -> float | None:
+    text = text.strip()
+    if not text:
+        return None
+    return float(text)
+
+
+def read_captures(path: str | Path) -> list[Capture]:
+    """Captures of a captures file, in index order; later rows replace earlier ones.
+
+    A torn last line (a killed writer) is dropped. The ``'`` that made a text cell
+    spreadsheet-safe is taken off again.
+
+    Raises
+    ------
+    LogError
+        Missing file, wrong header, or a cell that is not a number where one belongs
+        (the message names file, line and column).
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise LogError(f"no such captures file: {path}") from None
+    except UnicodeDecodeError:
+        raise LogError(f"{path} is not a UTF-8 captures file") from None
+    except OSError as exc:
+        raise LogError(f"cannot read {path}: {exc.strerror or exc}") from None
+    if text and not text.endswith("\n"):
+        text = text[: text.rfind("\n") + 1]
+    reader = csv.reader(io.StringIO(text, newline=""))
+    header = next(reader, None)
+    if header is None or tuple(header) != CAPTURE_COLUMNS:
+        raise LogError(f"{path} is not a captures file (its header differs); give a file written by bench")
+    by_index: dict[int, Capture] = {}
+    for line_no, cells in enumerate(reader, start=2):
+        if len(cells) < len(CAPTURE_COLUMNS):
+            continue
+        r = dict(zip(CAPTURE_COLUMNS, cells, strict=False))
+        col = ""
+        try:
+            col = "index"
+            index = int(r["index"])
+            col = "source"
+            source = r["source"]
+            if source not in ("auto", "manual"):
+                raise ValueError(source)
+            values: dict[str, float | None] = {}
+            for col in CAPTURE_COLUMNS:
+                if col in ("index", "label", "source", "note", "temperament", "tonic"):
+                    continue
+                values[col] = _opt(r[col])
+            col = "midi"
+            cap = Capture(
+                index=index,
+                label=_unquote(r["label"]),
+                source=source,  # type: ignore[arg-type]
+                note=_unquote(r["note"]),
+                midi=int(r["midi"]),
+                register=int(r["register"]),
+                mode=int(r["mode"]) if r["mode"].strip() else None,
+                start_s=values["start_s"] or 0.0,
+                end_s=values["end_s"] or 0.0,
+                frames=int(r["frames"]),
+                cents=values["cents"] if values["cents"] is not None else math.nan,
+                cents_spread=values["cents_spread"] or 0.0,
+                cents_raw=values["cents_raw"] if values["cents_raw"] is not None else math.nan,
+                f0_hz=values["f0_hz"] or 0.0,
+                target_hz=values["target_hz"] or 0.0,
+                level_dbfs=values["level_dbfs"] if values["level_dbfs"] is not None else -math.inf,
+                level_min_dbfs=values["level_min_dbfs"] if values["level_min_dbfs"] is not None else -math.inf,
+                level_max_dbfs=values["level_max_dbfs"] if values["level_max_dbfs"] is not None else -math.inf,
+                odd_even_db=values["odd_even_db"],
+                harmonics_db=tuple(values[f"h{k}_db"] for k in range(1, 9)),
+                register_margin_db=values["register_margin_db"],
+                break_level_dbfs=values["break_level_dbfs"],
+                temperament=_unquote(r["temperament"]),
+                tonic=_unquote(r["tonic"]),
+                a4_hz=values["a4_hz"] or 440.0,
+                temp_c=values["temp_c"] if values["temp_c"] is not None else 20.0,
+                ref_temp_c=values["ref_temp_c"] if values["ref_temp_c"] is not None else 20.0,
+                rh_percent=values["rh_percent"],
+            )
+        except ValueError:
+            raise LogError(
+                f"{path}:{line_no}: column {col} holds {r.get(col, '')!r}, not a valid value; "
+                "repair or delete that line"
+            ) from None
+        by_index[index] = cap
+    return [by_index[i] for i in sorted(by_index)]
