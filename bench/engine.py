@@ -53,6 +53,9 @@ READ_TIMEOUT_S = 0.05
 RETRY_DELAYS_S = (0.5, 1.0, 2.0, 4.0)
 """Back-off between attempts to reopen a lost device (the last one repeats)."""
 
+EVENT_GAP_S = 0.1
+"""Unvoiced time after which a register state counts as new (fewer repeated events), seconds."""
+
 MAX_SOURCE_ERRORS = 20
 """Consecutive non-device errors from a source before the engine gives up on it."""
 
@@ -218,6 +221,7 @@ class Engine:
         self._max_latency_s = 0.0
         self._source_errors = 0
         self._last_register: str | None = None
+        self._last_voiced_s = -1e9
         self._samples_fed = 0
 
     # -- read side (any thread) -------------------------------------------------------
@@ -602,7 +606,12 @@ class Engine:
 
     def _check_events(self, frame: Frame, mapping: NoteMapping | None) -> None:
         register = frame.register
-        previous, self._last_register = self._last_register, register
+        if register is None:
+            return  # an unvoiced frame inside a note is no new event; a real gap resets below
+        previous = self._last_register
+        if frame.time_s - self._last_voiced_s > EVENT_GAP_S:
+            previous = None
+        self._last_register, self._last_voiced_s = register, frame.time_s
         if register == previous:
             return
         if register == "jumped":
