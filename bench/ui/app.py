@@ -1,0 +1,760 @@
+"""The live bench screen: note, cents, register and harmonic balance, read from a metre or two.
+
+The app owns the engine's life: it starts it on mount and stops it on unmount, on quit and on
+Ctrl-C. Textual's loop polls :meth:`Engine.latest` with ``set_interval`` (30 Hz by default) and
+never waits on audio. Rare engine events arrive on the engine thread and are posted to the app as
+:class:`BenchApp.EngineReported` messages (``post_message`` is thread-safe and does not wait).
+
+Every settings change replaces the engine's immutable settings with ``dataclasses.replace`` and is
+remembered with :func:`bench.config.save_settings` for the next run.
+"""
+
+from __future__ import annotations
+
+import collections
+import dataclasses
+import threading
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, ClassVar
+
+from textual.app import App, ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical
+from textual.message import Message
+from textual.reactive import reactive
+from textual.widgets import Footer, Label
+
+from bench.errors import BenchError, SettingsError
+from bench.reading import Reading
+from bench.tuning import TuningSettings
+from bench.tuning.air import check_temp
+from bench.tuning.mapping import air_correction_cents
+from bench.tuning.notes import note_name, parse_note, parse_pitch_class, pitch_class_name
+from bench.tuning.standards import A4_MAX_HZ, A4_MIN_HZ, PITCH_STANDARDS, check_a4, parse_a4, standard_name
+from bench.tuning.temperaments import TEMPERAMENT_IDS, get_temperament
+from bench.ui.commands import BenchCommands
+from bench.ui.deviation import DeviationScale
+from bench.ui.dialogs import ValueDialog
+from bench.ui.harmonics import HarmonicBars
+from bench.ui.help_screen import KeyGuide, binding_rows
+from bench.ui.panels import DetailLine, SessionBar, SettingsPanel
+from bench.ui.readout import CentsFace, NoteFace
+from bench.ui.register import RegisterBanner
+from bench.ui.trail import PitchTrail
+
+POLL_HZ = 30.0
+"""Default screen update rate, polls of ``engine.latest()`` per second."""
+
+TRAIL_WINDOW_S = 10.0
+"""Seconds of pitch history on the trail."""
+
+_STATS_EVERY = 6  # polls between reads of engine.stats (5 Hz at 30 Hz)
+_TRAIL_EVERY = 3  # polls between reads of engine.history (10 Hz at 30 Hz)
+_EARLY_EVENTS = 64  # events kept while the app is not yet listening
+
+
+@dataclass(frozen=True, slots=True)
+class Control:
+    """One runtime control: its keys, the action it runs, and its words.
+
+    Attributes
+    ----------
+    keys : str
+        Textual key names, comma-separated (the first is the main one).
+    action : str
+        Action string run on the app, e.g. ``"a4(0.1)"``.
+    label : str
+        A word or two for the footer.
+    description : str
+        What it does, in the key guide and the command list.
+    footer : bool
+        Shown in the footer line.
+    """
+
+    keys: str
+    action: str
+    label: str
+    description: str
+    footer: bool = False
+
+
+CONTROLS: tuple[Control, ...] = (
+    Control("t", "temperament(1)", "temperament", "Next temperament", True),
+    Control("T", "temperament(-1)", "temperament back", "Previous temperament"),
+    Control("k", "tonic(1)", "tonic", "Tonic a semitone up", True),
+    Control("K", "tonic(-1)", "tonic down", "Tonic a semitone down"),
+    Control("right,right_square_bracket", "a4(0.1)", "A4 +0.1", "A4 up 0.1 Hz"),
+    Control("left,left_square_bracket", "a4(-0.1)", "A4 -0.1", "A4 down 0.1 Hz"),
+    Control("shift+right,right_curly_bracket", "a4(1.0)", "A4 +1", "A4 up 1 Hz"),
+    Control("shift+left,left_curly_bracket", "a4(-1.0)", "A4 -1", "A4 down 1 Hz"),
+    Control("p", "standard(1)", "standard", "Next pitch standard (A4 preset)"),
+    Control("P", "standard(-1)", "standard back", "Previous pitch standard (A4 preset)"),
+    Control("a", "type_a4", "type A4", "Type A4 in Hz, or a pitch standard's name", True),
+    Control("up", "air(0.5)", "air +", "Air temperature up 0.5 \u00b0C"),
+    Control("down", "air(-0.5)", "air -", "Air temperature down 0.5 \u00b0C"),
+    Control("shift+up,plus", "ref(0.5)", "tuned-at +", "Tuned-at temperature up 0.5 \u00b0C"),
+    Control("shift+down,minus", "ref(-0.5)", "tuned-at -", "Tuned-at temperature down 0.5 \u00b0C"),
+    Control("c", "type_air", "type air", "Type the air temperature (\u00b0C)"),
+    Control("r", "type_ref", "type tuned-at", "Type the tuned-at (reference) temperature (\u00b0C)"),
+    Control("l", "lock_sounding", "lock", "Lock the target to the note sounding now", True),
+    Control("n", "type_lock", "lock to…", "Type a note to lock the target to"),
+    Control("u", "release", "release", "Release the lock: follow the nearest note"),
+    Control("f", "flats", "flats/sharps", "Spell notes with flats / with sharps"),
+    Control("s", "log", "log", "Start / stop the session log (a new file each start)", True),
+    Control("space", "hold", "hold", "Hold the view still / let it run again", True),
+    Control("x", "raw", "raw", "Big figure: raw cents / air-corrected cents"),
+    Control("question_mark,f1,h", "guide", "keys", "Key guide (this list)", True),
+    Control("q", "quit", "quit", "Quit (stops the engine and closes the log)", True),
+)
+
+
+class EventRelay:
+    """Hand engine events to the app, from any thread, without waiting.
+
+    Build it before the engine and pass it as the engine's ``on_event``; :func:`run_app`
+    connects it to the app. Events that arrive before the app listens are kept (up to 64)
+    and delivered when it does.
+    """
+
+    def __init__(self) -> None:
+        self._lock = threading.Lock()
+        self._target: Callable[[Any], None] | None = None
+        self._early: collections.deque[Any] = collections.deque(maxlen=_EARLY_EVENTS)
+
+    def __call__(self, event: Any) -> None:
+        with self._lock:
+            target = self._target
+            if target is None:
+                self._early.append(event)
+                return
+        target(event)
+
+    def connect(self, target: Callable[[Any], None] | None) -> None:
+        """Send events to ``target`` from now on (None: keep them again)."""
+        with self._lock:
+            self._target = target
+            early, self._early = list(self._early), collections.deque(maxlen=_EARLY_EVENTS)
+        if target is not None:
+            for event in early:
+                target(event)
+
+
+class BenchApp(App[int]):
+    """The bench screen.
+
+    Parameters
+    ----------
+    engine : Engine
+        A built, not yet started :class:`bench.engine.Engine` (or anything with its API).
+    log_dir : Path, optional
+        Folder new session logs go to (``engine.start_log(log_dir)``);
+        :func:`bench.config.default_log_dir` if None.
+    events : EventRelay, optional
+        The relay the engine was built with as ``on_event``; the app connects to it on mount.
+    notice : str, optional
+        One line shown when the screen opens (e.g. which input was chosen and why).
+    settings_path : Path, optional
+        Where settings are remembered; :func:`bench.config.save_settings`'s default if None.
+    remember : bool
+        Save settings changes for the next run.
+    poll_hz : float > 0
+        Screen updates per second.
+    temp_follower : object, optional
+        Something that keeps the engine's air temperature up to date from a sensor
+        (``bench.airtemp.AirTemperatureFollower``); the screen says the air is followed.
+    """
+
+    CSS_PATH = "bench.tcss"
+    TITLE = "bench"
+    COMMANDS = App.COMMANDS | {BenchCommands}
+    BINDINGS: ClassVar[list[Binding]] = [
+        Binding(c.keys, c.action, c.label, show=c.footer, tooltip=c.description) for c in CONTROLS
+    ] + [
+        Binding("ctrl+c", "quit", "quit", show=False, priority=True, tooltip=CONTROLS[-1].description)
+    ]
+
+    class EngineReported(Message):
+        """The engine reported a rare event (register jump, source ended, device lost, log...)."""
+
+        def __init__(self, event: Any) -> None:
+            super().__init__()
+            self.event = event
+            """The :class:`bench.engine.EngineEvent`."""
+
+    reading: reactive[Reading | None] = reactive(None, always_update=True, init=False)
+    """The reading on screen."""
+    settings: reactive[TuningSettings | None] = reactive(None, init=False)
+    """Settings the engine applies now."""
+    held: reactive[bool] = reactive(False, init=False)
+    """True while the view is held still (the engine keeps measuring and logging)."""
+    show_raw: reactive[bool] = reactive(False, init=False)
+    """True when the big figure shows raw cents instead of air-corrected ones."""
+    locked_note: reactive[str | None] = reactive(None, init=False)
+    """Note the target is locked to, or None."""
+
+    def __init__(
+        self,
+        engine: Any,
+        *,
+        log_dir: Path | None = None,
+        events: EventRelay | None = None,
+        notice: str | None = None,
+        settings_path: Path | None = None,
+        remember: bool = True,
+        poll_hz: float = POLL_HZ,
+        temp_follower: Any = None,
+    ) -> None:
+        super().__init__()
+        if not poll_hz > 0:
+            raise SettingsError(f"screen rate {poll_hz} Hz must be above 0; use e.g. 30")
+        self.engine = engine
+        if log_dir is None:
+            from bench.config import default_log_dir
+
+            log_dir = default_log_dir()
+        self.log_dir = Path(log_dir)
+        self.events = events
+        self.notice = notice
+        self.settings_path = settings_path
+        self.remember = remember
+        self.poll_hz = float(poll_hz)
+        self.temp_follower = temp_follower
+        self.start_error: BaseException | None = None
+        """Error the engine raised on start; :func:`run_app` re-raises it."""
+        self.readings_shown = 0
+        """Readings put on screen so far (the benchmark divides it by time)."""
+        self._polls = 0
+        self._save_warned = False
+
+    # -- building -------------------------------------------------------------------
+
+    def compose(self) -> ComposeResult:
+        yield SessionBar(id="session")
+        with Horizontal(id="readout"):
+            with Vertical(id="note-box"):
+                yield NoteFace(id="note")
+                yield Label("note", id="note-caption")
+            with Vertical(id="cents-box"):
+                yield CentsFace(id="cents")
+                yield Label("cents, air-corrected", id="cents-caption")
+        yield DeviationScale(id="scale")
+        yield DetailLine(id="detail")
+        yield RegisterBanner(id="register")
+        with Horizontal(id="lower"):
+            yield HarmonicBars(id="harmonics")
+            yield PitchTrail(id="trail")
+            yield SettingsPanel(id="tuning")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        self.query_one("#harmonics").border_title = "harmonic balance"
+        self.query_one("#trail").border_title = f"trail {TRAIL_WINDOW_S:.0f} s"
+        self.query_one("#tuning").border_title = (
+            "tuning in force" if self.temp_follower is None else "tuning \u00b7 air followed"
+        )
+        self.query_one(PitchTrail).window_s = TRAIL_WINDOW_S
+        self._connect_events(self.engine_event)
+        try:
+            self.engine.start()
+        except BenchError as exc:
+            self.start_error = exc
+            self.exit(2)
+            return
+        self.settings = self.engine.settings
+        self._show_lock()
+        self._refresh_session()
+        self.on_resize()
+        if self.notice:
+            self.notify(self.notice, timeout=6)
+        self.set_interval(1.0 / self.poll_hz, self._poll)
+
+    def on_resize(self, event: object = None) -> None:
+        """Give the big figures twice the height on a tall terminal, the panels more width
+        on a wide one."""
+        self.screen.set_class(self.size.height >= 34, "-tall")
+        self.screen.set_class(self.size.width >= 120, "-wide")
+
+    def on_unmount(self) -> None:
+        self._stop_engine()
+
+    def _connect_events(self, handler: Callable[[Any], None] | None) -> None:
+        """Point the engine's events at ``handler`` (None: disconnect)."""
+        if self.events is not None:
+            self.events.connect(handler)
+        elif hasattr(self.engine, "set_event_handler"):
+            self.engine.set_event_handler(handler)
+        elif hasattr(self.engine, "on_event"):
+            self.engine.on_event = handler  # settable property of bench.engine.Engine
+
+    def _stop_engine(self) -> None:
+        self._connect_events(None)
+        try:
+            self.engine.stop()
+        except BenchError as exc:  # the log closed badly: say so on the terminal afterwards
+            self.start_error = self.start_error or exc
+
+    # -- engine hand-off --------------------------------------------------------------
+
+    def engine_event(self, event: Any) -> None:
+        """The engine's ``on_event``: called on the engine thread, posts and returns at once."""
+        self.post_message(self.EngineReported(event))
+
+    def _poll(self) -> None:
+        self._polls += 1
+        if self._polls % _STATS_EVERY == 0:
+            self._refresh_session()
+        if self.held:
+            return
+        if self._polls % _TRAIL_EVERY == 0:
+            self._refresh_trail()
+        reading = self.engine.latest()
+        if reading is None or reading is self.reading:
+            return
+        self.reading = reading
+        self.readings_shown += 1
+
+    def _refresh_trail(self) -> None:
+        raw = self.show_raw
+        points = tuple(
+            (r.stream_time_s, None if r.mapping is None else (r.mapping.cents_raw if raw else r.mapping.cents))
+            for r in self.engine.history(TRAIL_WINDOW_S)
+        )
+        self.query_one(PitchTrail).points = points
+
+    def _refresh_session(self) -> None:
+        if self.engine.settings is not self.settings:  # changed elsewhere, e.g. a sensor
+            self.settings = self.engine.settings
+        stats = self.engine.stats
+        bar = self.query_one(SessionBar)
+        bar.source = stats.source
+        bar.state = stats.state
+        bar.dropped_blocks = stats.dropped_blocks
+        log_path = self.engine.log_path
+        bar.log_path = None if log_path is None else str(log_path)
+
+    def on_bench_app_engine_reported(self, message: EngineReported) -> None:
+        event = message.event
+        kind = getattr(event, "kind", "")
+        text = getattr(event, "message", str(event))
+        if kind in ("device_lost", "source_error", "log_error"):
+            self.notify(text, title=kind.replace("_", " "), severity="error", timeout=8)
+        elif kind in ("jump", "source_ended"):
+            self.notify(text, severity="warning", timeout=4)
+        elif kind in ("device_back", "log_started", "log_stopped"):
+            self.notify(text, timeout=4)
+        self._refresh_session()
+
+    # -- watchers: push display state into the widgets ---------------------------------
+
+    def watch_reading(self, reading: Reading | None) -> None:
+        if reading is None:
+            return
+        frame, mapping = reading.frame, reading.mapping
+        sounding = mapping is not None
+        note, cents_face = self.query_one(NoteFace), self.query_one(CentsFace)
+        note.sounding = cents_face.sounding = sounding
+        scale, detail = self.query_one(DeviationScale), self.query_one(DetailLine)
+        if mapping is not None:
+            shown = mapping.cents_raw if self.show_raw else mapping.cents
+            note.note = mapping.note
+            cents_face.cents = shown
+            scale.cents = shown
+            detail.cents, detail.cents_raw = mapping.cents, mapping.cents_raw
+            detail.target_hz = mapping.target_hz
+            detail.f0_hz = frame.f0_hz
+        else:
+            scale.cents = None
+        banner = self.query_one(RegisterBanner)
+        banner.register, banner.jump = frame.register, frame.jump
+        bars = self.query_one(HarmonicBars)
+        if frame.harmonics_db is not None or not sounding:
+            bars.harmonics_db = frame.harmonics_db
+            bars.odd_even_db = frame.odd_even_db
+        bar = self.query_one(SessionBar)
+        bar.level_dbfs = frame.level_dbfs
+        bar.clipped = frame.clipped
+        bar.dropped_blocks = reading.dropped_blocks
+        bar.log_path = reading.log_path
+
+    def watch_settings(self, settings: TuningSettings | None) -> None:
+        if settings is None:
+            return
+        panel = self.query_one(SettingsPanel)
+        panel.settings = settings
+        try:
+            panel.temperament_name = get_temperament(settings.temperament).name
+        except BenchError:
+            panel.temperament_name = settings.temperament
+        name = standard_name(settings.a4_hz) or ""
+        # "baroque 415" beside "415.0 Hz": the words are enough
+        panel.standard_name = name.removesuffix(f" {settings.a4_hz:g}")
+        panel.correction_cents = air_correction_cents(settings)
+        self._show_lock()
+
+    def watch_held(self, held: bool) -> None:
+        self.query_one(SessionBar).held = held
+
+    def watch_show_raw(self, show_raw: bool) -> None:
+        self.query_one(DetailLine).main_is_raw = show_raw
+        caption = "cents, RAW (no air correction)" if show_raw else "cents, air-corrected"
+        self.query_one("#cents-caption", Label).update(caption)
+        self.query_one("#cents-caption", Label).set_class(show_raw, "-raw")
+        if self.reading is not None:
+            self.reading = self.reading  # redraw the figures with the other cents
+        self._refresh_trail()
+
+    def watch_locked_note(self, locked_note: str | None) -> None:
+        self.query_one(SettingsPanel).locked_note = locked_note
+        self.query_one(DetailLine).locked_note = locked_note
+        self.query_one("#note-caption", Label).update(
+            f"note, LOCKED to {locked_note}" if locked_note else "note"
+        )
+
+    def _show_lock(self) -> None:
+        midi = self.engine.locked_midi
+        flats = self.engine.settings.flats
+        self.locked_note = None if midi is None else note_name(midi, flats=flats)
+
+    # -- settings -----------------------------------------------------------------------
+
+    def change_settings(self, **changes: Any) -> bool:
+        """Replace fields of the engine's settings, show and remember them.
+
+        Returns False (after a one-line error) when the engine refuses the new settings.
+        """
+        new = dataclasses.replace(self.engine.settings, **changes)
+        try:
+            self.engine.set_settings(new)
+        except (BenchError, ValueError, TypeError) as exc:
+            self.notify(str(exc), severity="error")
+            return False
+        self.settings = self.engine.settings
+        self._remember(self.settings)
+        return True
+
+    def _remember(self, settings: TuningSettings) -> None:
+        if not self.remember:
+            return
+        try:
+            from bench.config import save_settings
+        except ImportError:
+            return  # settings memory not installed in this build
+        try:
+            save_settings(settings, self.settings_path)
+        except (OSError, BenchError) as exc:
+            if not self._save_warned:
+                self._save_warned = True
+                self.notify(f"settings not remembered: {exc}", severity="warning")
+
+    def action_temperament(self, step: int) -> None:
+        ids = TEMPERAMENT_IDS
+        current = self.engine.settings.temperament
+        index = ids.index(current) if current in ids else -1 if step > 0 else 0
+        self.change_settings(temperament=ids[(index + step) % len(ids)])
+
+    def action_tonic(self, step: int) -> None:
+        s = self.engine.settings
+        try:
+            pc = parse_pitch_class(s.tonic)
+        except SettingsError:
+            pc = 0
+        self.change_settings(tonic=pitch_class_name(pc + step, flats=s.flats))
+
+    def action_a4(self, step_hz: float) -> None:
+        a4_hz = round(self.engine.settings.a4_hz + step_hz, 2)
+        try:
+            check_a4(a4_hz)
+        except SettingsError as exc:
+            self.notify(str(exc), severity="error")
+            return
+        self.change_settings(a4_hz=a4_hz)
+
+    def action_standard(self, step: int) -> None:
+        a4_hz = self.engine.settings.a4_hz
+        values = [std.a4_hz for std in PITCH_STANDARDS]
+        if step > 0:
+            after = [v for v in values if v > a4_hz + 0.005]
+            target = after[0] if after else values[0]
+        else:
+            before = [v for v in values if v < a4_hz - 0.005]
+            target = before[-1] if before else values[-1]
+        self.change_settings(a4_hz=target)
+
+    def action_air(self, step_c: float) -> None:
+        self._step_temperature("temp_c", step_c, "air temperature")
+
+    def action_ref(self, step_c: float) -> None:
+        self._step_temperature("ref_temp_c", step_c, "tuned-at temperature")
+
+    def _step_temperature(self, field: str, step_c: float, what: str) -> None:
+        value = round(getattr(self.engine.settings, field) + step_c, 2)
+        try:
+            check_temp(value, what)
+        except SettingsError as exc:
+            self.notify(str(exc), severity="error")
+            return
+        self.change_settings(**{field: value})
+
+    def action_flats(self) -> None:
+        s = self.engine.settings
+        try:
+            tonic = pitch_class_name(parse_pitch_class(s.tonic), flats=not s.flats)
+        except SettingsError:
+            tonic = s.tonic
+        self.change_settings(flats=not s.flats, tonic=tonic)
+
+    # -- typed values ---------------------------------------------------------------------
+
+    def action_type_a4(self) -> None:
+        names = ", ".join(std.name for std in PITCH_STANDARDS[:3])
+        self.push_screen(
+            ValueDialog(
+                "A4 in Hz, or a pitch standard name",
+                f"{self.engine.settings.a4_hz:g}",
+                f"{A4_MIN_HZ:g}-{A4_MAX_HZ:g} Hz, or e.g. {names}",
+            ),
+            self.apply_typed_a4,
+        )
+
+    def apply_typed_a4(self, text: str | None) -> None:
+        """Apply a typed A4 (Hz or a standard's name); a bad value leaves A4 as it was."""
+        if text is None:
+            return
+        try:
+            a4_hz = parse_a4(text)
+        except SettingsError as exc:
+            self.notify(str(exc), severity="error")
+            return
+        self.change_settings(a4_hz=a4_hz)
+
+    def action_type_air(self) -> None:
+        self.push_screen(
+            ValueDialog("Air temperature, \u00b0C", f"{self.engine.settings.temp_c:g}", "e.g. 23.5"),
+            self.apply_typed_air,
+        )
+
+    def apply_typed_air(self, text: str | None) -> None:
+        """Apply a typed air temperature in degC; a bad value leaves it as it was."""
+        self._apply_typed_temperature(text, "temp_c", "air temperature")
+        if text is not None and self.temp_follower is not None:
+            self.notify("the air temperature follows a sensor; its next reading replaces this", severity="warning")
+
+    def action_type_ref(self) -> None:
+        self.push_screen(
+            ValueDialog(
+                "Temperature the instrument is to be in tune at, \u00b0C",
+                f"{self.engine.settings.ref_temp_c:g}",
+                "often 20",
+            ),
+            self.apply_typed_ref,
+        )
+
+    def apply_typed_ref(self, text: str | None) -> None:
+        """Apply a typed reference temperature in degC; a bad value leaves it as it was."""
+        self._apply_typed_temperature(text, "ref_temp_c", "tuned-at temperature")
+
+    def _apply_typed_temperature(self, text: str | None, field: str, what: str) -> None:
+        if text is None:
+            return
+        cleaned = text.strip().lower().removesuffix("c").removesuffix("\u00b0").strip()
+        try:
+            value = check_temp(float(cleaned), what)
+        except ValueError:
+            self.notify(
+                f"{what} {text!r} is not a number of degrees Celsius; type e.g. 21.5",
+                severity="error",
+            )
+            return
+        self.change_settings(**{field: value})
+
+    # -- target lock ------------------------------------------------------------------------
+
+    def action_lock_sounding(self) -> None:
+        reading = self.reading
+        if reading is None or reading.mapping is None:
+            self.notify(
+                "no note is sounding to lock to; play one, or press n to type a note",
+                severity="error",
+            )
+            return
+        self.lock_target(reading.mapping.midi)
+
+    def action_type_lock(self) -> None:
+        self.push_screen(
+            ValueDialog("Note to lock the target to", self.locked_note or "", "e.g. F4, C#5, Bb5"),
+            self.apply_typed_lock,
+        )
+
+    def apply_typed_lock(self, text: str | None) -> None:
+        """Lock to a typed note (``F4``, ``Bb5``); a bad name leaves the lock as it was."""
+        if text is None:
+            return
+        try:
+            midi = parse_note(text)
+        except SettingsError as exc:
+            self.notify(str(exc), severity="error")
+            return
+        self.lock_target(midi)
+
+    def lock_target(self, midi: int | None) -> None:
+        """Lock the target to MIDI note ``midi``, or release it with None."""
+        try:
+            self.engine.lock(midi)
+        except (BenchError, ValueError) as exc:
+            self.notify(str(exc), severity="error")
+            return
+        self._show_lock()
+
+    def action_release(self) -> None:
+        self.lock_target(None)
+
+    # -- session, view ---------------------------------------------------------------------------
+
+    def action_log(self) -> None:
+        try:
+            if self.engine.log_path is not None:
+                self.engine.stop_log()
+            else:
+                self.engine.start_log(self.log_dir)
+        except BenchError as exc:
+            self.notify(str(exc), severity="error")
+        self._refresh_session()
+
+    def action_hold(self) -> None:
+        self.held = not self.held
+
+    def action_raw(self) -> None:
+        self.show_raw = not self.show_raw
+
+    def key_rows(self) -> list[tuple[str, str]]:
+        """(keys, description) of every binding of the screen, as the key guide lists them."""
+        bindings = list(Binding.make_bindings(self.BINDINGS))
+        bindings.append(
+            Binding(
+                self.COMMAND_PALETTE_BINDING,
+                "command_palette",
+                "commands",
+                tooltip="Command list: every action by name (type to search)",
+            )
+        )
+        return binding_rows(bindings, self.get_key_display)
+
+    def action_guide(self) -> None:
+        self.push_screen(KeyGuide(self.key_rows()))
+
+    def palette_entries(self) -> Iterator[tuple[str, Callable[[], Any], str]]:
+        """(name, callback, help) of every command-list entry."""
+        for control in CONTROLS:
+            yield control.description, self._runner(control.action), _keys_hint(control.keys)
+        for tid in TEMPERAMENT_IDS:
+            t = get_temperament(tid)
+            yield f"Temperament: {t.name}", self._runner(f"set_temperament('{tid}')"), t.description
+        flats = self.engine.settings.flats
+        for pc in range(12):
+            name = pitch_class_name(pc, flats=flats)
+            yield f"Tonic: {name}", self._runner(f"set_tonic('{name}')"), "tonic of the temperament"
+        for std in PITCH_STANDARDS:
+            yield (
+                f"Pitch standard: {std.name}",
+                self._runner(f"set_a4({std.a4_hz})"),
+                f"A4 = {std.a4_hz:g} Hz",
+            )
+
+    def _runner(self, action: str) -> Callable[[], Any]:
+        return lambda: self.run_action(action)
+
+    def action_set_temperament(self, temperament_id: str) -> None:
+        self.change_settings(temperament=temperament_id)
+
+    def action_set_tonic(self, tonic: str) -> None:
+        self.change_settings(tonic=tonic)
+
+    def action_set_a4(self, a4_hz: float) -> None:
+        self.change_settings(a4_hz=check_a4(a4_hz))
+
+
+def _keys_hint(keys: str) -> str:
+    """Key names for the command list, e.g. "key: t"."""
+    return "key: " + " / ".join(k.replace("_", " ") for k in keys.split(","))
+
+
+def run_app(
+    engine: Any,
+    *,
+    log_dir: Path | None = None,
+    notice: str | None = None,
+    events: EventRelay | None = None,
+    settings_path: Path | None = None,
+    remember: bool = True,
+    poll_hz: float = POLL_HZ,
+    temp_follower: Any = None,
+) -> int:
+    """Show the bench screen until the user quits; start and stop the engine.
+
+    Parameters
+    ----------
+    engine : Engine or callable
+        Either a built, not yet started :class:`bench.engine.Engine`, or a factory
+        ``engine(on_event=callback) -> Engine``. The app must hear the engine's events;
+        three ways, pick one:
+
+        - pass a factory: it is called with ``on_event`` connected to the app;
+        - build the engine with ``on_event=relay`` for an :class:`EventRelay` and pass
+          ``events=relay``;
+        - pass an engine whose ``on_event`` is a settable attribute (as
+          :class:`bench.engine.Engine`'s is) or that has ``set_event_handler(callback)``:
+          the app sets it on mount and clears it on unmount.
+
+        An engine already started is fine (``start()`` is then a no-op).
+    log_dir : Path, optional
+        Folder for session logs started with the log key; the default folder if None.
+    notice : str, optional
+        One line to show when the screen opens.
+    events : EventRelay, optional
+        See ``engine``.
+    settings_path : Path, optional
+        Where changed settings are remembered (``bench.config.save_settings``); its
+        default place if None.
+    remember : bool
+        Save settings changes.
+    poll_hz : float > 0
+        Screen updates per second.
+    temp_follower : object, optional
+        See :class:`BenchApp`.
+
+    Returns
+    -------
+    int
+        Exit status: 0 after the user quits.
+
+    Raises
+    ------
+    BenchError
+        The engine could not start (e.g. ``DeviceError``); raised after the screen closes,
+        so the command line can print it.
+    """
+    if callable(engine) and not hasattr(engine, "latest"):
+        events = EventRelay()
+        engine = engine(on_event=events)
+    app = BenchApp(
+        engine,
+        log_dir=log_dir,
+        events=events,
+        notice=notice,
+        settings_path=settings_path,
+        remember=remember,
+        poll_hz=poll_hz,
+        temp_follower=temp_follower,
+    )
+    try:
+        code = app.run()
+    finally:
+        try:
+            engine.stop()  # stopped already on unmount; a second stop is harmless
+        except BenchError:
+            pass
+    if app.start_error is not None:
+        raise app.start_error
+    return int(code or 0)

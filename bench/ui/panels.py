@@ -1,0 +1,158 @@
+"""Small text panels: the input and session line, the settings in force, the detail line."""
+
+from __future__ import annotations
+
+import math
+
+from rich.style import Style
+from rich.text import Text
+from textual.reactive import reactive
+from textual.widget import Widget
+
+from bench.tuning import TuningSettings
+
+
+def _signed(value: float | None, unit: str, digits: int = 1) -> str:
+    """``+12.3 c`` style text, or a dash."""
+    return "--" if value is None else f"{value:+.{digits}f} {unit}"
+
+
+class SessionBar(Widget):
+    """One line: the source and its state, input level and clipping, dropped input, log file,
+    the held view."""
+
+    DEFAULT_CSS = "SessionBar { height: 1; }"
+    COMPONENT_CLASSES = {
+        "session-bar--label",
+        "session-bar--value",
+        "session-bar--alarm",
+        "session-bar--on",
+    }
+
+    source: reactive[str] = reactive("")
+    """Source description from the engine, e.g. "demo", "mic: USB Audio", "file: a.wav"."""
+    state: reactive[str] = reactive("")
+    """Source state from the engine, e.g. "running", "ended", "lost"."""
+    level_dbfs: reactive[float | None] = reactive(None)
+    """RMS input level, dBFS; None before the first frame."""
+    clipped: reactive[bool] = reactive(False)
+    """True when the newest frame reached full scale."""
+    dropped_blocks: reactive[int] = reactive(0)
+    """Input blocks lost so far."""
+    log_path: reactive[str | None] = reactive(None)
+    """File being logged to; None when logging is off."""
+    held: reactive[bool] = reactive(False)
+    """True while the user holds the view still."""
+
+    def render(self) -> Text:
+        label = self.get_component_rich_style("session-bar--label")
+        value = self.get_component_rich_style("session-bar--value")
+        alarm = self.get_component_rich_style("session-bar--alarm")
+        on = self.get_component_rich_style("session-bar--on")
+        text = Text(no_wrap=True, overflow="ellipsis")
+        if self.held:
+            text.append(" HELD ", alarm)
+            text.append(" ")
+        text.append("source ", label)
+        text.append(f"{self.source or '?'}", value)
+        state_ok = self.state in ("running", "")
+        text.append(f" {self.state}" if self.state else "", value if state_ok else alarm)
+        text.append("  in ", label)
+        if self.level_dbfs is None or not math.isfinite(self.level_dbfs):
+            text.append("silent" if self.level_dbfs is not None else "--", value)
+        else:
+            text.append(f"{self.level_dbfs:5.1f} dBFS", value)
+        if self.clipped:
+            text.append(" ")
+            text.append(" CLIPPING ", alarm)
+        text.append("  dropped ", label)
+        text.append(str(self.dropped_blocks), alarm if self.dropped_blocks else value)
+        text.append("  log ", label)
+        if self.log_path:
+            text.append(" REC ", on)
+            text.append(f" {self.log_path}", value)
+        else:
+            text.append("off", value)
+        return text
+
+
+class SettingsPanel(Widget):
+    """The tuning in force: temperament and tonic, A4 and its standard, air and reference
+    temperature with the correction they make, and the target lock."""
+
+    COMPONENT_CLASSES = {"settings-panel--label", "settings-panel--value"}
+
+    settings: reactive[TuningSettings | None] = reactive(None)
+    """Settings the engine applies now."""
+    temperament_name: reactive[str] = reactive("")
+    """Readable name of ``settings.temperament``."""
+    standard_name: reactive[str] = reactive("")
+    """Name of the pitch standard ``settings.a4_hz`` matches, or ""."""
+    correction_cents: reactive[float | None] = reactive(None)
+    """Cents taken out for the air (corrected minus raw), from the newest reading."""
+    locked_note: reactive[str | None] = reactive(None)
+    """Note the target is locked to, or None when it follows the nearest note."""
+
+    def render(self) -> Text:
+        label = self.get_component_rich_style("settings-panel--label")
+        value = self.get_component_rich_style("settings-panel--value")
+        s = self.settings
+        lines: list[Text] = []
+
+        def row(name: str, text: str) -> None:
+            line = Text(f"{name:<7}", style=label, no_wrap=True, overflow="ellipsis")
+            line.append(text, value)
+            lines.append(line)
+
+        if s is None:
+            row("tuning", "--")
+            return Text("\n").join(lines)
+        lines.append(Text(self.temperament_name or s.temperament, style=value + Style(bold=True)))
+        row("tonic", s.tonic + ("   spelt with flats" if s.flats else ""))
+        standard = f"  {self.standard_name}" if self.standard_name else ""
+        row("A4", f"{s.a4_hz:.1f} Hz{standard}")
+        humid = f"  {s.rh_percent:.0f}%RH" if s.rh_percent is not None else ""
+        row("air", f"{s.temp_c:.1f}\u00b0C tuned {s.ref_temp_c:.1f}\u00b0C{humid}")
+        row("fix", f"{_signed(self.correction_cents, 'c')} for the air")
+        row("target", f"LOCKED {self.locked_note}" if self.locked_note else "nearest note")
+        return Text("\n").join(lines)
+
+
+class DetailLine(Widget):
+    """One line under the scale: the other cents figure, heard and target frequency, lock."""
+
+    DEFAULT_CSS = "DetailLine { height: 1; }"
+    COMPONENT_CLASSES = {"detail-line--label", "detail-line--value", "detail-line--lock"}
+
+    main_is_raw: reactive[bool] = reactive(False)
+    """True when the big figure shows raw cents (then this line shows corrected ones)."""
+    cents: reactive[float | None] = reactive(None)
+    """Offset corrected to the reference temperature, cents."""
+    cents_raw: reactive[float | None] = reactive(None)
+    """Offset as measured, cents."""
+    f0_hz: reactive[float | None] = reactive(None)
+    """Heard fundamental, Hz."""
+    target_hz: reactive[float | None] = reactive(None)
+    """Target of the note, Hz."""
+    locked_note: reactive[str | None] = reactive(None)
+    """Locked target note, or None."""
+
+    def render(self) -> Text:
+        label = self.get_component_rich_style("detail-line--label")
+        value = self.get_component_rich_style("detail-line--value")
+        lock = self.get_component_rich_style("detail-line--lock")
+        text = Text(no_wrap=True, overflow="ellipsis")
+        if self.main_is_raw:
+            text.append("air-corrected ", label)
+            text.append(_signed(self.cents, "c"), value)
+        else:
+            text.append("raw ", label)
+            text.append(_signed(self.cents_raw, "c"), value)
+        text.append("   heard ", label)
+        text.append("--" if self.f0_hz is None else f"{self.f0_hz:.2f} Hz", value)
+        text.append("   target ", label)
+        text.append("--" if self.target_hz is None else f"{self.target_hz:.2f} Hz", value)
+        if self.locked_note:
+            text.append("   ")
+            text.append(f" LOCKED {self.locked_note} ", lock)
+        return text

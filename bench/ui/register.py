@@ -1,0 +1,98 @@
+"""The register banner: settled, weakening (early warning), overblown or vented."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from rich.text import Text
+from textual.reactive import reactive
+from textual.widget import Widget
+
+
+@dataclass(frozen=True, slots=True)
+class _Look:
+    """Class suffix, border pattern and words of one register state."""
+
+    name: str
+    pattern: str
+    title: str
+    detail: str
+
+
+_LOOKS = {
+    "silent": _Look("silent", " ", "register", "waiting for a held note"),
+    "steady": _Look("steady", " ", "REGISTER SETTLED", "fundamental holding"),
+    "weakening": _Look(
+        "weakening",
+        "\u00b7 ",
+        "WEAKENING",
+        "odd harmonics fading \u2014 the note is close to breaking",
+    ),
+    "overblown": _Look(
+        "overblown",
+        "\u25b2 ",
+        "OVERBLOWN",
+        "jumped an octave up \u2014 odd harmonics gone; too much breath",
+    ),
+    "vented": _Look(
+        "vented",
+        "\u25c6\u25c7",
+        "VENTED",
+        "jumped an octave up through a leak or half-open hole \u2014 odd harmonics gone",
+    ),
+}
+
+
+def register_look(register: str | None, jump: str | None) -> str:
+    """Name of the banner look for a frame's register state and jump kind.
+
+    >>> register_look("jumped", "vented"), register_look("weakening", None)
+    ('vented', 'weakening')
+    """
+    if register == "jumped":
+        return "vented" if jump == "vented" else "overblown"
+    return register if register in ("steady", "weakening") else "silent"
+
+
+class RegisterBanner(Widget):
+    """Full-width banner of the register monitor.
+
+    Each state has its own words, border pattern and colour: a plain line while settled,
+    a dotted border when weakening, rising triangles when overblown, diamonds when vented.
+    """
+
+    DEFAULT_CSS = "RegisterBanner { height: 3; }"
+
+    register: reactive[str | None] = reactive(None)
+    """``Frame.register``: "steady", "weakening", "jumped" or None."""
+    jump: reactive[str | None] = reactive(None)
+    """``Frame.jump``: "overblown", "vented" or None."""
+
+    def _refresh_look(self) -> None:
+        look = register_look(self.register, self.jump)
+        for name in ("silent", "steady", "weakening", "overblown", "vented"):
+            self.set_class(look == name, f"-{name}")
+
+    def watch_register(self) -> None:
+        self._refresh_look()
+
+    def watch_jump(self) -> None:
+        self._refresh_look()
+
+    @property
+    def look(self) -> str:
+        """Name of the look in force ("silent", "steady", "weakening", "overblown", "vented")."""
+        return register_look(self.register, self.jump)
+
+    def render(self) -> Text:
+        width = max(self.content_size.width, 10)
+        look = _LOOKS[self.look]
+        border = (look.pattern * width)[:width]
+        middle = f"{look.title}  \u00b7  {look.detail}"
+        if len(middle) > width:
+            middle = look.title if len(look.title) <= width else look.title[:width]
+        text = Text(no_wrap=True, overflow="crop", justify="center")
+        text.append(border + "\n")
+        text.append(middle.center(width) + "\n", style="bold")
+        text.append(border)
+        return text

@@ -1,0 +1,127 @@
+"""A stand-in engine for the screen tests: readings are handed in by the test, not measured."""
+
+from __future__ import annotations
+
+import dataclasses
+from pathlib import Path
+
+from bench.reading import Reading
+from bench.tuning import NoteMapping, TuningSettings, map_frequency
+from dsp.frame import Frame
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class FakeStats:
+    frames: int
+    dropped_blocks: int
+    source: str
+    state: str
+    cpu_s: float = 0.0
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class FakeEvent:
+    kind: str
+    message: str
+    time_s: float = 0.0
+
+
+class FakeEngine:
+    """The engine's API with no thread: ``show()`` publishes the next reading."""
+
+    def __init__(self, settings: TuningSettings | None = None, on_event=None) -> None:
+        self._settings = settings or TuningSettings()
+        self.on_event = on_event
+        self.readings: list[Reading] = []
+        self.locked_midi: int | None = None
+        self.log_path: Path | None = None
+        self.started = False
+        self.stopped = False
+        self.state = "idle"
+        self.dropped_blocks = 0
+        self.start_error: Exception | None = None
+        self.settings_seen: list[TuningSettings] = []
+
+    # engine API
+    def start(self) -> None:
+        if self.start_error is not None:
+            raise self.start_error
+        self.started, self.state = True, "running"
+
+    def stop(self, timeout_s: float = 1.0) -> None:
+        self.stopped, self.state = True, "stopped"
+        self.log_path = None
+
+    def latest(self) -> Reading | None:
+        return self.readings[-1] if self.readings else None
+
+    def history(self, seconds: float) -> list[Reading]:
+        if not self.readings:
+            return []
+        since = self.readings[-1].stream_time_s - seconds
+        return [r for r in self.readings if r.stream_time_s >= since]
+
+    @property
+    def settings(self) -> TuningSettings:
+        return self._settings
+
+    def set_settings(self, s: TuningSettings) -> None:
+        self._settings = s
+        self.settings_seen.append(s)
+
+    def lock(self, midi: int | None) -> None:
+        self.locked_midi = midi
+
+    def start_log(self, folder: Path) -> Path:
+        self.log_path = Path(folder) / "session-fake.csv"
+        return self.log_path
+
+    def stop_log(self) -> None:
+        self.log_path = None
+
+    @property
+    def stats(self) -> FakeStats:
+        return FakeStats(len(self.readings), self.dropped_blocks, "fake", self.state)
+
+    # test helpers
+    def show(
+        self,
+        f0_hz: float | None,
+        *,
+        register: str | None = "steady",
+        jump: str | None = None,
+        harmonics_db: tuple[float, ...] | None = (0.0, -12.0, -3.0, -20.0, -8.0, -26.0, -14.0, -32.0),
+        odd_even_db: float | None = 9.5,
+        level_dbfs: float = -18.0,
+        clipped: bool = False,
+    ) -> Reading:
+        """Publish a reading of ``f0_hz`` mapped with the real tuning model."""
+        time_s = 0.01 * (len(self.readings) + 1)
+        voiced = f0_hz is not None
+        frame = Frame(
+            time_s=time_s,
+            ready_s=time_s,
+            f0_hz=f0_hz,
+            clarity=0.95 if voiced else 0.0,
+            level_dbfs=level_dbfs,
+            clipped=clipped,
+            harmonics_db=harmonics_db if voiced else None,
+            odd_even_db=odd_even_db if voiced else None,
+            register=register if voiced else None,
+            jump=jump if voiced else None,
+            held_f0_hz=f0_hz,
+        )
+        mapping: NoteMapping | None = (
+            map_frequency(f0_hz, self._settings, self.locked_midi) if voiced else None
+        )
+        reading = Reading(
+            frame=frame,
+            mapping=mapping,
+            settings=self._settings,
+            locked_midi=self.locked_midi,
+            stream_time_s=time_s,
+            dropped_blocks=self.dropped_blocks,
+            log_path=None if self.log_path is None else str(self.log_path),
+        )
+        self.readings.append(reading)
+        return reading
