@@ -27,9 +27,9 @@ profile.
 
 Register margin: when the held note broke into the next register during the same held note
 (the first frame whose register state is "jumped"), the margin is the break level minus the
-capture's level, dB. The break level is the level of the last frame before the jump (the
-blowing level that broke the note; the jumped frames themselves carry the new register's
-level). A capture taken later on the same note, under the same settings, uses the last break
+capture's level, dB. The break level is read as in :mod:`bench.workflow.blowing` (median
+level from 100 ms to 40 ms before the first jumped frame: the blowing level that broke the
+note, clear of the change itself). A capture taken later on the same note, under the same settings, uses the last break
 seen on that note.
 
 File format (``<log stem>.captures.csv`` beside the frame log), UTF-8 CSV with ``\\r\\n`` line
@@ -52,6 +52,7 @@ from typing import Any, Literal
 
 from bench.errors import LogError
 from bench.framelog import safe_cell
+from bench.workflow.blowing import LevelHistory
 from bench.workflow.points import FramePoint, SettingsKey, as_point
 from bench.workflow.profiles import InstrumentProfile
 
@@ -336,7 +337,7 @@ class CaptureDetector:
         self._updates: list[Capture] = []
         self._breaks: dict[tuple[int, SettingsKey], float] = {}
         self._recent: deque[FramePoint] = deque()
-        self._prev_voiced: FramePoint | None = None
+        self._held_levels = LevelHistory()
         # settle run
         self._run_key: tuple[int | None, int | None, SettingsKey] | None = None
         self._run_start_s = 0.0
@@ -507,19 +508,19 @@ class CaptureDetector:
         if p.register_state == "jumped":
             key = self._held_key if p.held_f0_hz is None else (p.held_midi, p.settings)
             if key is not None and key == self._held_key and not self._held_broken:
-                prev = self._prev_voiced
-                level = prev.level_dbfs if prev is not None and prev.register_state != "jumped" else p.level_dbfs
+                brk = self._held_levels.break_level(p.time_s)
+                level = brk if brk is not None else p.level_dbfs
                 self._held_broken = True
                 self._breaks[key] = level
                 self._fill_margins(level)
-            self._prev_voiced = p
             return
         key = (p.held_midi if p.held_f0_hz else p.midi, p.settings)
         if key != self._held_key:
             self._held_key = key  # type: ignore[assignment]
             self._held_broken = False
             self._held_capture_indices = []
-        self._prev_voiced = p
+            self._held_levels.clear()
+        self._held_levels.add(p.time_s, p.level_dbfs)
 
     def _fill_margins(self, break_level_dbfs: float) -> None:
         for i, cap in enumerate(self.captures):

@@ -1,0 +1,451 @@
+"""The tuning chart: per note of the compass and per register, the latest capture against its
+target, and the notes still unchecked.
+
+Three outputs of one :class:`TuningChart`: a plain-text chart (:func:`format_text_chart`), a
+summary CSV (:func:`write_summary_csv`) and a picture (:func:`plot_chart`, PNG or SVG through
+matplotlib's Agg backend; matplotlib is imported only inside the picture functions).
+
+Which capture counts: the latest (highest index) capture of each (note, register). A capture's
+register on the chart is its sounding mode when that is 2 or more (an overblown or vented
+note), else the register the chart's profile gives the note. Captures of notes outside the
+profile's compass, or in another register than the profile expects, are shown as extra entries.
+
+Cents are the corrected values: measured against the session's temperament, tonic and pitch
+standard, and corrected for air temperature to the reference temperature (see
+``bench.tuning``).
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import TYPE_CHECKING, Literal
+
+from bench.errors import BenchError, LogError
+from bench.framelog import safe_cell
+from bench.workflow.captures import Capture
+from bench.workflow.notenames import note_name
+from bench.workflow.points import SettingsKey
+from bench.workflow.profiles import InstrumentProfile
+
+if TYPE_CHECKING:
+    from bench.workflow.blowing import BlowingCurve
+
+__all__ = [
+    "GUIDE_CENTS",
+    "ChartEntry",
+    "TuningChart",
+    "build_chart",
+    "capture_register",
+    "describe_settings",
+    "format_text_chart",
+    "plot_chart",
+    "write_summary_csv",
+]
+
+GUIDE_CENTS = 5.0
+"""Half-width of the guide band drawn on charts, cents (builders' usual aim for principal
+notes, REFERENCES §5 · from memory; also about one pitch JND, common practice)."""
+
+EntryStatus = Literal["checked", "unchecked", "extra"]
+
+SUMMARY_COLUMNS: tuple[str, ...] = (
+    "note", "written_note", "midi", "register", "status", "cents", "cents_spread", "cents_raw",
+    "level_dbfs", "odd_even_db", "register_margin_db", "capture_index", "label",
+    "temperament", "tonic", "a4_hz", "temp_c", "ref_temp_c",
+)  # fmt: skip
+"""Columns of the summary CSV (status: checked | unchecked | extra)."""
+
+
+@dataclass(frozen=True, slots=True)
+class ChartEntry:
+    """One (note, register) cell of the chart.
+
+    Attributes
+    ----------
+    midi : int
+    note : str
+        Sounding note name.
+    written : str
+        Written note name (the profile's display transposition).
+    register : int
+    expected : bool
+        The profile has this note in this register.
+    capture : Capture or None
+        Latest capture; None when unchecked.
+    """
+
+    midi: int
+    note: str
+    written: str
+    register: int
+    expected: bool
+    capture: Capture | None
+
+    @property
+    def status(self) -> EntryStatus:
+        """checked, unchecked, or extra (captured but not in the profile's plan)."""
+        if self.capture is None:
+            return "unchecked"
+        return "checked" if self.expected else "extra"
+
+
+@dataclass(frozen=True, slots=True)
+class TuningChart:
+    """A tuning chart of one session (or one labelled pass of it).
+
+    Attributes
+    ----------
+    profile : InstrumentProfile
+    entries : tuple of ChartEntry
+        Rising by note, then register.
+    settings : tuple of SettingsKey
+        Distinct settings the used captures were taken under, in order of first use.
+    labels : tuple of str
+        Distinct session labels of the used captures.
+    """
+
+    profile: InstrumentProfile
+    entries: tuple[ChartEntry, ...]
+    settings: tuple[SettingsKey, ...]
+    labels: tuple[str, ...]
+
+    def unchecked(self) -> list[ChartEntry]:
+        """Expected entries without a capture."""
+        return [e for e in self.entries if e.capture is None]
+
+    def checked(self) -> list[ChartEntry]:
+        """Entries with a capture (expected or extra)."""
+        return [e for e in self.entries if e.capture is not None]
+
+    def entry(self, midi: int, register: int) -> ChartEntry | None:
+        """The entry of a note and register, or None."""
+        for e in self.entries:
+            if e.midi == midi and e.register == register:
+                return e
+        return None
+
+
+def capture_register(cap: Capture, profile: InstrumentProfile) -> int:
+    """Register of a capture on a chart of ``profile`` (mode >= 2 wins, else the profile's)."""
+    if cap.mode is not None and cap.mode > 1:
+        return cap.mode
+    return profile.register_of(cap.midi)
+
+
+def build_chart(
+    captures: Iterable[Capture], profile: InstrumentProfile, *, label: str | None = None
+) -> TuningChart:
+    """The chart of ``captures`` on ``profile``.
+
+    Parameters
+    ----------
+    captures : iterable of Capture
+    profile : InstrumentProfile
+    label : str or None
+        Use only captures with this session label (one pass of a session).
+
+    Examples
+    --------
+    >>> from bench.workflow.profiles import get_profile
+    >>> chart = build_chart([], get_profile("alto"))
+    >>> len(chart.entries), len(chart.unchecked())
+    (27, 27)
+    """
+    latest: dict[tuple[int, int], Capture] = {}
+    flats = False
+    for cap in sorted(captures, key=lambda c: c.index):
+        if label is not None and cap.label != label:
+            continue
+        latest[(cap.midi, capture_register(cap, profile))] = cap
+        flats = flats or ("b" in cap.note[1:2])
+    keys = set(profile.expected())
+    keys.update(latest)
+    entries = []
+    for midi, reg in sorted(keys):
+        cap = latest.get((midi, reg))
+        name = cap.note if cap is not None else note_name(midi, flats=flats)
+        entries.append(
+            ChartEntry(
+                midi=midi,
+                note=name,
+                written=profile.written_name(midi, flats=flats),
+                register=reg,
+                expected=(midi, reg) in set(profile.expected()),
+                capture=cap,
+            )
+        )
+    used = [latest[k] for k in sorted(latest, key=lambda k: latest[k].index)]
+    settings: list[SettingsKey] = []
+    labels: list[str] = []
+    for cap in used:
+        if cap.settings not in settings:
+            settings.append(cap.settings)
+        if cap.label not in labels:
+            labels.append(cap.label)
+    return TuningChart(profile, tuple(entries), tuple(settings), tuple(labels))
+
+
+def describe_settings(settings: SettingsKey) -> str:
+    """One phrase: temperament, tonic, pitch standard and temperatures.
+
+    >>> describe_settings(SettingsKey("equal", "C", 440.0, 23.5, 20.0))
+    'equal on C, A4 = 440.0 Hz, played at 23.5 degC, corrected to 20.0 degC'
+    """
+    rh = f", {settings.rh_percent:.0f} % RH" if settings.rh_percent is not None else ""
+    return (
+        f"{settings.temperament} on {settings.tonic}, A4 = {settings.a4_hz:.1f} Hz, "
+        f"played at {settings.temp_c:.1f} degC, corrected to {settings.ref_temp_c:.1f} degC{rh}"
+    )
+
+
+def _bar(cents: float, spread: float, half_width: int = 25) -> str:
+    """A horizontal gauge from -half_width to +half_width cents, one character per cent."""
+    cells = ["·"] * (2 * half_width + 1)
+    lo, hi = half_width - int(GUIDE_CENTS), half_width + int(GUIDE_CENTS)
+    for i in range(lo, hi + 1):
+        cells[i] = " "
+    cells[lo - 1] = "["
+    cells[hi + 1] = "]"
+    cells[half_width] = "|"
+    if spread > 0:
+        a = max(0, round(half_width + cents - spread))
+        b = min(2 * half_width, round(half_width + cents + spread))
+        for i in range(a, b + 1):
+            cells[i] = "-"
+    pos = round(half_width + cents)
+    if pos < 0:
+        cells[0] = "<"
+    elif pos > 2 * half_width:
+        cells[-1] = ">"
+    else:
+        cells[pos] = "o"
+    return "".join(cells)
+
+
+def format_text_chart(chart: TuningChart, *, half_width_cents: int = 25) -> str:
+    """The chart as plain text, one line per entry.
+
+    The gauge spans ±``half_width_cents`` at one character per cent: ``o`` the median, ``-``
+    ± the spread, ``[ ]`` the ±5 c guide, ``|`` the target; ``<``/``>`` off the scale.
+    """
+    p = chart.profile
+    lines = [f"Tuning chart: {p.title} ({p.name}), {note_name(p.lowest_midi)}-{note_name(p.highest_midi)}"]
+    for s in chart.settings:
+        lines.append(f"  cents against {describe_settings(s)}")
+    if len(chart.settings) > 1:
+        lines.append("  note: captures were taken under different settings; compare with care")
+    if any(lab for lab in chart.labels):
+        lines.append("  session: " + "; ".join(lab or "(no label)" for lab in chart.labels))
+    transposed = p.written_offset_semitones != 0
+    head = f"{'note':<5} {'writ':<5} " if transposed else f"{'note':<5} "
+    scale = f"-{half_width_cents}".ljust(half_width_cents) + "0" + f"+{half_width_cents}".rjust(half_width_cents)
+    lines.append(f"{head}{'reg':>3} {'cents':>7} {'spread':>6} {'margin':>7}  {scale}")
+    current_reg = None
+    for e in chart.entries:
+        if e.expected and e.register != current_reg:
+            current_reg = e.register
+        name = f"{e.note:<5} {e.written:<5} " if transposed else f"{e.note:<5} "
+        if e.capture is None:
+            lines.append(f"{name}{e.register:>3} {'-':>7} {'-':>6} {'-':>7}  not yet checked")
+            continue
+        c = e.capture
+        margin = f"{c.register_margin_db:+.1f}dB" if c.register_margin_db is not None else "-"
+        extra = "  (not in this profile's plan)" if not e.expected else ""
+        lines.append(
+            f"{name}{e.register:>3} {c.cents:>+7.1f} {c.cents_spread:>6.1f} {margin:>7}  "
+            f"{_bar(c.cents, c.cents_spread, half_width_cents)}{extra}"
+        )
+    n_checked = sum(1 for e in chart.entries if e.expected and e.capture is not None)
+    n_expected = sum(1 for e in chart.entries if e.expected)
+    far = [e for e in chart.checked() if abs(e.capture.cents) > GUIDE_CENTS]  # type: ignore[union-attr]
+    lines.append(
+        f"{n_checked} of {n_expected} notes checked; "
+        f"{len(far)} outside ±{GUIDE_CENTS:g} c"
+        + (": " + ", ".join(f"{e.note} R{e.register}" for e in far) if far else "")
+    )
+    return "\n".join(lines) + "\n"
+
+
+def write_summary_csv(chart: TuningChart, path: str | Path) -> Path:
+    """Write the chart as CSV (columns :data:`SUMMARY_COLUMNS`), one row per entry.
+
+    Raises
+    ------
+    LogError
+        The file cannot be written.
+    """
+    path = Path(path)
+
+    def num(v: float | None, digits: int) -> str:
+        return "" if v is None or not math.isfinite(v) else f"{v:.{digits}f}"
+
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        with open(path, "w", encoding="utf-8", newline="") as f:
+            w = csv.writer(f)
+            w.writerow(SUMMARY_COLUMNS)
+            for e in chart.entries:
+                c = e.capture
+                s = c.settings if c is not None else None
+                w.writerow(
+                    [
+                        safe_cell(e.note),
+                        safe_cell(e.written),
+                        e.midi,
+                        e.register,
+                        e.status,
+                        num(c.cents if c else None, 2),
+                        num(c.cents_spread if c else None, 2),
+                        num(c.cents_raw if c else None, 2),
+                        num(c.level_dbfs if c else None, 1),
+                        num(c.odd_even_db if c else None, 1),
+                        num(c.register_margin_db if c else None, 1),
+                        c.index if c else "",
+                        safe_cell(c.label) if c else "",
+                        safe_cell(s.temperament) if s else "",
+                        safe_cell(s.tonic) if s else "",
+                        num(s.a4_hz if s else None, 2),
+                        num(s.temp_c if s else None, 2),
+                        num(s.ref_temp_c if s else None, 2),
+                    ]
+                )
+    except OSError as exc:
+        raise LogError(f"cannot write the summary {path}: {exc.strerror or exc}") from None
+    return path
+
+
+# --- pictures -----------------------------------------------------------------------------
+
+_REGISTER_STYLE = {1: ("o", "#1f5f8b"), 2: ("s", "#b5651d"), 3: ("^", "#2e7d32")}
+_OTHER_STYLE = ("D", "#6a1b9a")
+
+
+def agg_pyplot():  # type: ignore[no-untyped-def]
+    """matplotlib.pyplot on the Agg backend (imported here only, never at package import)."""
+    import matplotlib
+
+    matplotlib.use("Agg", force=True)
+    import matplotlib.pyplot as plt
+
+    return plt
+
+
+def check_picture_path(path: str | Path) -> Path:
+    """The picture path, or BenchError when its suffix is not .png or .svg."""
+    p = Path(path)
+    if p.suffix.lower() not in (".png", ".svg"):
+        raise BenchError(f"picture {p} has suffix {p.suffix or '(none)'!r}; use .png or .svg")
+    return p
+
+
+def draw_chart_axes(ax, chart: TuningChart) -> None:  # type: ignore[no-untyped-def]
+    """Draw the chart on a matplotlib Axes (for the picture and for embedding)."""
+    from matplotlib.transforms import blended_transform_factory
+
+    midis = sorted({e.midi for e in chart.entries})
+    xpos = {m: i for i, m in enumerate(midis)}
+    ax.axhspan(-GUIDE_CENTS, GUIDE_CENTS, color="#e6e6e6", zorder=0, label=f"±{GUIDE_CENTS:g} c guide")
+    ax.axhline(0.0, color="#555555", linewidth=0.8, zorder=1)
+    regs = sorted({e.register for e in chart.entries})
+    n = len(regs)
+    ymax = 15.0
+    for k, reg in enumerate(regs):
+        es = [e for e in chart.entries if e.register == reg and e.capture is not None]
+        if not es:
+            continue
+        marker, colour = _REGISTER_STYLE.get(reg, _OTHER_STYLE)
+        dx = (k - (n - 1) / 2) * 0.12  # keep registers sharing a note apart
+        xs = [xpos[e.midi] + dx for e in es]
+        ys = [e.capture.cents for e in es]  # type: ignore[union-attr]
+        err = [e.capture.cents_spread for e in es]  # type: ignore[union-attr]
+        ax.errorbar(xs, ys, yerr=err, fmt=marker, color=colour, ecolor=colour, elinewidth=1.2,
+                    capsize=3, markersize=6, linestyle="none", label=f"register {reg}", zorder=3)
+        ymax = max(ymax, *(abs(y) + e for y, e in zip(ys, err, strict=True)))
+    unchecked = chart.unchecked()
+    if unchecked:
+        trans = blended_transform_factory(ax.transData, ax.transAxes)
+        ax.plot([xpos[e.midi] for e in unchecked], [0.04] * len(unchecked), "x", color="#888888",
+                markersize=6, transform=trans, linestyle="none", label="not yet checked", zorder=2)
+    # register boundaries of the profile
+    for start in chart.profile.register_starts[1:]:
+        if start in xpos:
+            ax.axvline(xpos[start] - 0.5, color="#999999", linestyle=":", linewidth=0.8)
+    ylim = math.ceil((ymax * 1.15) / 5.0) * 5.0
+    ax.set_ylim(-ylim, ylim)
+    ax.set_xlim(-0.7, len(midis) - 0.3)
+    ax.set_xticks(range(len(midis)))
+    names = {e.midi: e.note for e in chart.entries}
+    ax.set_xticklabels([names[m] for m in midis], rotation=90 if len(midis) > 14 else 0, fontsize=8)
+    ax.set_ylabel("cents (corrected)")
+    ax.grid(axis="y", color="#dddddd", linewidth=0.5)
+    ax.legend(loc="upper left", fontsize=8, ncol=4, frameon=False)
+
+
+def draw_blowing_axes(ax, curves: Sequence[BlowingCurve]) -> None:  # type: ignore[no-untyped-def]
+    """Draw blowing curves (cents against level, fit, break level) on a matplotlib Axes."""
+    colours = ["#1f5f8b", "#b5651d", "#2e7d32", "#6a1b9a", "#c62828"]
+    for i, c in enumerate(curves):
+        colour = colours[i % len(colours)]
+        ax.plot(c.levels_dbfs, c.cents, ".", color=colour, markersize=2, alpha=0.5)
+        if c.slope_cents_per_db is not None:
+            xs = [c.level_min_dbfs, c.level_max_dbfs]
+            ys = [c.cents_at(x) for x in xs]
+            ax.plot(xs, ys, "-", color=colour, linewidth=1.5,
+                    label=f"{c.note}: {c.slope_cents_per_db:+.2f} ± {c.slope_se_cents_per_db or 0:.2f} c/dB")
+        if c.break_level_dbfs is not None:
+            ax.axvline(c.break_level_dbfs, color=colour, linestyle="--", linewidth=1.0,
+                       label=f"{c.note} broke at {c.break_level_dbfs:.1f} dBFS")
+    ax.axhspan(-GUIDE_CENTS, GUIDE_CENTS, color="#e6e6e6", zorder=0)
+    ax.set_xlabel("level (dBFS)")
+    ax.set_ylabel("cents (corrected)")
+    ax.set_title("blowing curve", fontsize=10)
+    ax.grid(color="#dddddd", linewidth=0.5)
+    ax.legend(loc="upper left", fontsize=8, frameon=False)
+
+
+def plot_chart(
+    chart: TuningChart,
+    path: str | Path,
+    *,
+    blowing: Sequence[BlowingCurve] = (),
+    title: str | None = None,
+) -> Path:
+    """Save the chart as PNG or SVG (by the suffix of ``path``).
+
+    One series per register (markers and error bars = spread), grey ±5 c guide band, grey
+    crosses along the bottom for unchecked notes, dotted lines at register boundaries. With
+    ``blowing`` curves a second panel shows cents against level with the fit and the break.
+
+    Raises
+    ------
+    BenchError
+        Bad suffix or unwritable file.
+    """
+    path = check_picture_path(path)
+    plt = agg_pyplot()
+    n_notes = len({e.midi for e in chart.entries})
+    width = max(7.0, 0.32 * n_notes + 2.0)
+    rows = 2 if blowing else 1
+    fig, axes = plt.subplots(rows, 1, figsize=(width, 4.2 * rows), squeeze=False)
+    try:
+        draw_chart_axes(axes[0][0], chart)
+        p = chart.profile
+        head = title or f"{p.title}: tuning per note and register"
+        sub = "; ".join(describe_settings(s) for s in chart.settings[:2])
+        if chart.labels and any(chart.labels):
+            sub = " / ".join(lab for lab in chart.labels if lab) + (" | " + sub if sub else "")
+        axes[0][0].set_title(f"{head}\n{sub}", fontsize=10)
+        if blowing:
+            draw_blowing_axes(axes[1][0], blowing)
+        fig.tight_layout()
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fig.savefig(path, dpi=110)
+    except OSError as exc:
+        raise BenchError(f"cannot write the picture {path}: {exc.strerror or exc}") from None
+    finally:
+        plt.close(fig)
+    return path
