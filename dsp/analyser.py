@@ -1,4 +1,4 @@
-"""INTERFACE STUB -- the streaming analyser (pitch, level, harmonics, register monitor).
+"""The streaming analyser: pitch, level, harmonic balance and register, one Frame per hop.
 
 Contract other modules code against::
 
@@ -7,4 +7,408 @@ Contract other modules code against::
     frames: list[Frame] = an.process(block)          # block: 1-D float array, any length
     an.lock(target_hz)                               # judge register against this note; None releases
     an.reset()                                       # back to the state after construction
+
+Per hop, vectorised over all the hops a block completes:
+
+1. one real FFT of the newest ``frame_size`` samples (~85 ms) and one of the newest half
+   of them; Hann spectra and frequency reassignment come from them (:mod:`dsp.spectrum`);
+2. coarse f0 by harmonic matching of the strongest peaks, refined by weighted least
+   squares over the reassigned harmonic frequencies (:mod:`dsp.pitch`);
+3. voicing: harmonic energy share (clarity), stationarity over the window's centre (clicks
+   and thumps fail it), mains hum (50/60 Hz series) rejected;
+4. level, clipping (:mod:`dsp.level`), H1..H8 and odd/even balance (:mod:`dsp.harmonics`);
+5. the register monitor (:mod:`dsp.register`), fed with the half-window's powers at the
+   held note's harmonics.
+
+Timing: a frame measures the ``frame_size`` samples ending at sample ``e`` (exclusive);
+``time_s = (e - frame_size / 2) / sample_rate`` (the centre of the symmetric window) and
+``ready_s = e / sample_rate``, counted from the first sample fed since construction or
+:meth:`StreamingAnalyser.reset`. The first frame comes once ``frame_size`` samples are in.
 """
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from dsp.frame import Frame
+from dsp.harmonics import harmonic_levels_db, odd_even_db
+from dsp.level import clipped
+from dsp.pitch import RefinedPitch, estimate_coarse_f0, find_peaks, refine_f0
+from dsp.register import EVIDENCE_HARMONICS, EVIDENCE_MODES, RegisterMonitor, summarise_evidence
+from dsp.spectrum import BatchSpectrum, analyse_spectrum, band_floor
+
+__all__ = ["StreamingAnalyser", "MIN_SAMPLE_RATE", "MAX_SAMPLE_RATE", "FMIN_HZ", "FMAX_HZ"]
+
+MIN_SAMPLE_RATE = 16000
+MAX_SAMPLE_RATE = 96000
+FMIN_HZ = 60.0
+"""Lowest fundamental reported, Hz."""
+FMAX_HZ = 4500.0
+"""Highest fundamental reported, Hz."""
+
+_MAINS_HZ = np.array([50.0, 60.0, 100.0, 120.0, 150.0, 180.0])
+_MAINS_TOLERANCE = 0.005  # mains frequency stays within +-0.4 %: common practice (grid codes)
+_CLARITY_MIN = 0.5
+_FLATNESS_MIN = 0.05
+_SEGMENTS = 8
+_PEAK_LIMIT_HZ = 10000.0
+_CHUNK_FRAMES = 32
+
+
+@dataclass(frozen=True, slots=True)
+class _Batch:
+    """Per-frame results of one batch (arrays over frames)."""
+
+    spec: BatchSpectrum
+    floor: NDArray[np.float64]
+    refined: RefinedPitch
+    voiced: NDArray[np.bool_]
+    clarity: NDArray[np.float64]
+    level_dbfs: NDArray[np.float64]
+    fast_level_dbfs: NDArray[np.float64]
+    clip: NDArray[np.bool_]
+    evidence: NDArray[np.float64]  # (n_frames, 3, 8)
+    fast: BatchSpectrum
+
+
+class StreamingAnalyser:
+    """Streaming pitch, level, harmonic and register analyser.
+
+    Parameters
+    ----------
+    sample_rate : int, 16000..96000, Hz
+    frame_size : int or None, samples
+        Analysis window; default the power of two nearest 85 ms (4096 at 48 kHz), at
+        least 2048 so that 60 Hz has five periods.
+    hop_size : int or None, samples
+        Frame step; default 5 ms. At most 10 ms.
+    fmin_hz, fmax_hz : float, Hz
+        Range of fundamentals reported (default 60 Hz - 4.5 kHz).
+    **register_options
+        Passed to :class:`dsp.register.RegisterMonitor` (thresholds in dB, times in s).
+
+    Raises
+    ------
+    ValueError
+        For a sample rate, frame or hop size out of range.
+
+    Examples
+    --------
+    >>> an = StreamingAnalyser(48000)
+    >>> an.frame_size, an.hop_size
+    (4096, 240)
+    >>> t = np.arange(48000) / 48000
+    >>> frames = an.process(0.5 * np.sin(2 * np.pi * 440.0 * t))
+    >>> round(frames[-1].f0_hz, 4)
+    440.0
+    """
+
+    def __init__(
+        self,
+        sample_rate: int = 48000,
+        *,
+        frame_size: int | None = None,
+        hop_size: int | None = None,
+        fmin_hz: float = FMIN_HZ,
+        fmax_hz: float = FMAX_HZ,
+        **register_options: float,
+    ) -> None:
+        if isinstance(sample_rate, bool) or not isinstance(sample_rate, (int, float, np.integer, np.floating)):
+            raise TypeError(f"sample_rate must be a number of Hz, got {type(sample_rate).__name__}")
+        if not (MIN_SAMPLE_RATE <= sample_rate <= MAX_SAMPLE_RATE):
+            if sample_rate < MIN_SAMPLE_RATE:
+                raise ValueError(
+                    f"sample_rate {sample_rate} Hz is below {MIN_SAMPLE_RATE} Hz; resample to 16-96 kHz"
+                )
+            raise ValueError(f"sample_rate {sample_rate} Hz is above {MAX_SAMPLE_RATE} Hz; resample to 16-96 kHz")
+        sr = float(sample_rate)
+        if frame_size is None:
+            frame_size = max(2048, 1 << int(round(math.log2(0.085 * sr))))
+        if int(frame_size) != frame_size or frame_size % 2 or frame_size < 5 * sr / fmin_hz / 2:
+            raise ValueError(
+                f"frame_size {frame_size} cannot hold 2.5 periods of {fmin_hz} Hz at {sr:g} Hz; "
+                f"use an even frame_size >= {int(math.ceil(2.5 * sr / fmin_hz / 2) * 2)}"
+            )
+        max_hop = int(0.010 * sr)
+        if hop_size is None:
+            hop_size = int(round(0.005 * sr))
+        if int(hop_size) != hop_size or not (1 <= hop_size <= max_hop):
+            raise ValueError(f"hop_size {hop_size} is outside 1..{max_hop} samples (10 ms at {sr:g} Hz); pick a smaller hop")
+        if not (0.0 < fmin_hz < fmax_hz < 0.5 * sr):
+            raise ValueError(f"fmin_hz {fmin_hz} and fmax_hz {fmax_hz} must satisfy 0 < fmin < fmax < {0.5 * sr:g} Hz")
+        self._sample_rate_value = sample_rate
+        self._sr = sr
+        self._n = int(frame_size)
+        self._hop = int(hop_size)
+        self._fmin = float(fmin_hz)
+        self._fmax = float(fmax_hz)
+        self._register_options = dict(register_options)
+        self._monitor = RegisterMonitor(self._hop / sr, **register_options)
+        df = sr / self._n
+        n_bins = self._n // 2 + 1
+        self._limit_hz = min(_PEAK_LIMIT_HZ, 0.45 * sr)
+        self._lo_bin = max(2, int(math.floor(0.9 * fmin_hz / df)))
+        self._hi_bin = min(n_bins - 3, int(math.ceil(self._limit_hz / df)))
+        self._n_bins = self._hi_bin + 4
+        self._fast_bins = self._hi_bin // 2 + 4
+        self._edges = self._band_edges(df, self._n_bins)
+        self.reset()
+
+    @staticmethod
+    def _band_edges(df: float, n_bins: int) -> NDArray[np.intp]:
+        """Half-octave band edges (bins) for the noise floor, from 50 Hz."""
+        hz = 50.0 * 2.0 ** (np.arange(0, 20) / 2.0)
+        edges = np.unique(np.clip(np.rint(hz / df).astype(np.intp), 1, n_bins))
+        edges = edges[np.diff(np.concatenate([edges, [n_bins + 100]])) >= 1]
+        out = [int(edges[0])]
+        for e in edges[1:]:
+            if e - out[-1] >= 8:  # at least 8 bins per band for a meaningful median
+                out.append(int(e))
+        if n_bins - out[-1] >= 8:
+            out.append(n_bins)
+        else:
+            out[-1] = n_bins
+        return np.asarray(out, dtype=np.intp)
+
+    # -- contract -------------------------------------------------------------------------
+
+    @property
+    def sample_rate(self) -> int | float:
+        """Sample rate, Hz."""
+        return self._sample_rate_value
+
+    @property
+    def frame_size(self) -> int:
+        """Analysis window, samples."""
+        return self._n
+
+    @property
+    def hop_size(self) -> int:
+        """Frame step, samples."""
+        return self._hop
+
+    def reset(self) -> None:
+        """Back to the state after construction (input clock restarts at 0; lock kept off)."""
+        self._buf = np.zeros(0, dtype=np.float64)
+        self._buf_start = 0  # absolute index of self._buf[0]
+        self._n_in = 0
+        self._next_end = self._n
+        self._monitor.lock(None)
+        self._monitor.reset()
+
+    def lock(self, target_hz: float | None) -> None:
+        """Judge the register against ``target_hz`` (the fingered note, Hz); None releases.
+
+        Raises
+        ------
+        ValueError
+            For a target outside the analyser's range.
+        """
+        if target_hz is not None:
+            if not (isinstance(target_hz, (int, float, np.integer, np.floating)) and math.isfinite(target_hz)):
+                raise ValueError(f"target_hz {target_hz!r} must be a frequency in Hz, or None to release")
+            if not (self._fmin / 4.0 <= target_hz <= self._fmax):
+                raise ValueError(
+                    f"target_hz {target_hz} Hz is outside {self._fmin / 4:g}-{self._fmax:g} Hz; lock a playable note"
+                )
+        self._monitor.lock(None if target_hz is None else float(target_hz))
+
+    def process(self, block: ArrayLike) -> list[Frame]:
+        """Analyse the next samples; return the frames they complete (possibly none).
+
+        Parameters
+        ----------
+        block : 1-D array of float (float32 or float64), full scale 1.0
+            Next samples, any length (0 included).
+
+        Returns
+        -------
+        list of Frame
+            One per hop completed, in time order.
+
+        Raises
+        ------
+        TypeError
+            For a non-float block.
+        ValueError
+            For a block that is not 1-D or holds NaN or infinity.
+        """
+        x = np.asarray(block)
+        if x.ndim != 1:
+            raise ValueError(f"block has shape {x.shape}; pass one channel as a 1-D array")
+        if x.size == 0:
+            return []
+        if not np.issubdtype(x.dtype, np.floating):
+            raise TypeError(f"block dtype {x.dtype} is not floating point; scale to float32/float64 with full scale 1.0")
+        x = x.astype(np.float64, copy=False)
+        if not np.all(np.isfinite(x)):
+            bad = int(np.flatnonzero(~np.isfinite(x))[0])
+            raise ValueError(f"block holds {x[bad]} at sample {bad}; pass finite samples")
+        self._buf = np.concatenate([self._buf, x]) if self._buf.size else x.copy()
+        self._n_in += x.size
+        frames: list[Frame] = []
+        if self._next_end <= self._n_in:
+            n_frames = (self._n_in - self._next_end) // self._hop + 1
+            ends = self._next_end + self._hop * np.arange(n_frames)
+            starts = ends - self._n - self._buf_start
+            view = np.lib.stride_tricks.sliding_window_view(self._buf, self._n)
+            batch = np.ascontiguousarray(view[starts])
+            frames = self._analyse(batch, ends)
+            self._next_end = int(ends[-1]) + self._hop
+        keep_from = self._next_end - self._n  # absolute index of the next frame's first sample
+        drop = keep_from - self._buf_start
+        if drop > 0:
+            self._buf = self._buf[drop:].copy()
+            self._buf_start = keep_from
+        return frames
+
+    # -- analysis -------------------------------------------------------------------------
+
+    def _analyse(self, x: NDArray[np.float64], ends: NDArray[np.int64]) -> list[Frame]:
+        """Frames for a batch of windows ``x`` ending at absolute samples ``ends``."""
+        out: list[Frame] = []
+        for s in range(0, x.shape[0], _CHUNK_FRAMES):  # chunks that stay in cache
+            out.extend(self._analyse_chunk(x[s : s + _CHUNK_FRAMES], ends[s : s + _CHUNK_FRAMES]))
+        return out
+
+    def _analyse_chunk(self, x: NDArray[np.float64], ends: NDArray[np.int64]) -> list[Frame]:
+        """Frames for up to _CHUNK_FRAMES windows."""
+        b = self._analyse_batch(x)
+        sr = self._sr
+        half = self._n / 2.0
+        out: list[Frame] = []
+        update = self._monitor.update
+        f0s = b.refined.f0_hz.tolist()
+        voiced_l = b.voiced.tolist()
+        harm_db = harmonic_levels_db(b.refined.harmonic_amp).tolist()
+        oe = odd_even_db(b.refined.harmonic_amp).tolist()
+        evidence = summarise_evidence(b.evidence).tolist()
+        fast_level = b.fast_level_dbfs.tolist()
+        clarity = b.clarity.tolist()
+        level = b.level_dbfs.tolist()
+        clip = b.clip.tolist()
+        ends_l = ends.tolist()
+        for i in range(len(ends_l)):
+            f0 = f0s[i] if voiced_l[i] else None
+            reading = update(f0, evidence[i], fast_level[i])
+            h_db: tuple[float, ...] | None = None
+            oe_db: float | None = None
+            if f0 is not None:
+                held = reading.held_f0_hz
+                if reading.mode > 1 and held is not None and abs(1200.0 * math.log2(f0 / (reading.mode * held))) > 50.0:
+                    # the held note's odd harmonics may linger (reverberation) while the
+                    # octave sounds: measure the sounding note at mode x held
+                    f0, h_db, oe_db = self._refine_single(b, i, reading.mode * held)
+                else:
+                    h_db = tuple(harm_db[i])
+                    oe_db = oe[i]
+            e = ends_l[i]
+            out.append(
+                Frame(
+                    time_s=(e - half) / sr,
+                    ready_s=e / sr,
+                    f0_hz=f0,
+                    clarity=clarity[i],
+                    level_dbfs=level[i],
+                    clipped=clip[i],
+                    harmonics_db=h_db,
+                    odd_even_db=oe_db,
+                    register=reading.register if f0 is not None else None,
+                    jump=reading.jump if f0 is not None else None,
+                    held_f0_hz=reading.held_f0_hz,
+                )
+            )
+        return out
+
+    def _refine_single(self, b: _Batch, i: int, f_hz: float) -> tuple[float | None, tuple[float, ...] | None, float | None]:
+        """Refine frame ``i`` of a batch around ``f_hz``."""
+        sp = b.spec
+        spec = BatchSpectrum(sp.rect[i : i + 1], sp.power[i : i + 1], sp.bin_hz, sp.frame_size)
+        r = refine_f0(spec, b.floor[i : i + 1], np.array([f_hz]), self._limit_hz)
+        f0 = float(r.f0_hz[0])
+        if not math.isfinite(f0):
+            return None, None, None
+        return f0, tuple(harmonic_levels_db(r.harmonic_amp)[0].tolist()), float(odd_even_db(r.harmonic_amp)[0])
+
+    def _analyse_batch(self, x: NDArray[np.float64]) -> _Batch:
+        """Vectorised per-frame measurements."""
+        sr = self._sr
+        spec = analyse_spectrum(x, sr, self._n_bins)
+        floor = band_floor(spec.power, self._edges)
+        top = spec.power[:, self._lo_bin : self._hi_bin].max(axis=1, keepdims=True)
+        floor = np.maximum(floor, top * 1e-12)  # digital-silence-clean tones: relative floor
+        peaks = find_peaks(spec, floor, self._lo_bin, self._hi_bin)
+        coarse = estimate_coarse_f0(peaks, self._fmin * 0.97, self._fmax * 1.03)
+        refined = refine_f0(spec, floor, coarse.f0_hz, self._limit_hz)
+        f0 = refined.f0_hz
+        f0_safe = np.where(np.isfinite(f0), f0, 1000.0)
+
+        clarity = self._clarity(spec, f0_safe) * np.isfinite(f0)
+        seg = (x * x).reshape(x.shape[0], _SEGMENTS, -1).sum(axis=2)
+        with np.errstate(divide="ignore"):
+            level = 10.0 * np.log10(seg.sum(axis=1) / self._n)
+            fast_level = 10.0 * np.log10(seg[:, _SEGMENTS // 2 :].sum(axis=1) / (self._n // 2))
+        centre = seg[:, 2:6]
+        flat = centre.min(axis=1) >= _FLATNESS_MIN * np.maximum(seg.max(axis=1), 1e-300)
+        rel = np.abs(f0_safe[:, None] / _MAINS_HZ[None, :] - 1.0)
+        hum = (rel <= _MAINS_TOLERANCE).any(axis=1)
+        voiced = (
+            np.isfinite(f0)
+            & (f0_safe >= self._fmin)
+            & (f0_safe <= self._fmax)
+            & (clarity >= _CLARITY_MIN)
+            & flat
+            & ~hum
+            & (level > -100.0)
+        )
+        half = x[:, self._n // 2 :]
+        fast = analyse_spectrum(half, sr, self._fast_bins)
+        evidence = self._evidence(fast, f0_safe)
+        return _Batch(
+            spec=spec,
+            floor=floor,
+            refined=refined,
+            voiced=voiced,
+            clarity=np.clip(clarity, 0.0, 1.0),
+            level_dbfs=level,
+            fast_level_dbfs=fast_level,
+            clip=clipped(x),
+            evidence=evidence,
+            fast=fast,
+        )
+
+    def _clarity(self, spec: BatchSpectrum, f0: NDArray[np.float64]) -> NDArray[np.float64]:
+        """Share of the in-band energy within +-2 bins of the harmonics of ``f0``."""
+        df = spec.bin_hz
+        n_bins = spec.power.shape[1]
+        k = np.arange(1, 41, dtype=np.float64)
+        pos = f0[:, None] * k[None, :]
+        inside = pos <= self._limit_hz
+        centre = np.clip(np.rint(pos / df).astype(np.intp), 2, n_bins - 3)
+        rows = np.arange(spec.power.shape[0])[:, None, None]
+        bins = centre[:, :, None] + np.arange(-2, 3)[None, None, :]
+        e = spec.power[rows, bins].sum(axis=2)
+        # where harmonics sit closer than 5 bins their neighbourhoods overlap: count each bin once
+        spacing = f0 / df
+        overlap = np.clip(5.0 / np.maximum(spacing, 1e-9), 1.0, None)
+        harm = (e * inside).sum(axis=1) / overlap
+        total = spec.power[:, self._lo_bin : self._hi_bin].sum(axis=1)
+        return np.asarray(harm / np.maximum(total, 1e-300), dtype=np.float64)
+
+    def _evidence(self, fast: BatchSpectrum, f0: NDArray[np.float64]) -> NDArray[np.float64]:
+        """Powers at k f0 / m (k = 1..8, m = 1..3), max over +-1 bin of the half window."""
+        df = fast.bin_hz
+        n_bins = fast.power.shape[1]
+        m = np.arange(1, EVIDENCE_MODES + 1, dtype=np.float64)
+        k = np.arange(1, EVIDENCE_HARMONICS + 1, dtype=np.float64)
+        pos = f0[:, None, None] * k[None, None, :] / m[None, :, None]
+        centre = np.clip(np.rint(pos / df).astype(np.intp), 1, n_bins - 2)
+        rows = np.arange(fast.power.shape[0])[:, None, None]
+        p = np.maximum(
+            np.maximum(fast.power[rows, centre - 1], fast.power[rows, centre]), fast.power[rows, centre + 1]
+        )
+        return np.asarray(np.where(pos < self._limit_hz, p, 0.0), dtype=np.float64)

@@ -1,0 +1,60 @@
+"""Harmonic balance of the sounding note: H1..H8 re the strongest, and odd/even energy ratio."""
+
+from __future__ import annotations
+
+import numpy as np
+from numpy.typing import NDArray
+
+__all__ = ["harmonic_levels_db", "odd_even_db", "N_REPORTED", "FLOOR_DB"]
+
+N_REPORTED = 8
+"""Harmonics reported (H1..H8)."""
+
+FLOOR_DB = -120.0
+"""Lowest level reported, dB re the strongest harmonic (absent harmonics read this)."""
+
+
+def harmonic_levels_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Levels of H1..H8 in dB relative to the strongest of them.
+
+    Parameters
+    ----------
+    amp : ndarray of float, shape (n_frames, n >= 8)
+        Amplitudes of harmonics 1..n.
+
+    Returns
+    -------
+    ndarray of float, shape (n_frames, 8), dB
+        0 for the strongest, never below ``FLOOR_DB``.
+
+    Examples
+    --------
+    >>> harmonic_levels_db(np.array([[1.0, 0.5, 0.1, 0, 0, 0, 0, 0]]))[0, :3].round(2).tolist()
+    [0.0, -6.02, -20.0]
+    """
+    a = amp[:, :N_REPORTED]
+    top = a.max(axis=1, keepdims=True)
+    rel = a / np.where(top > 0.0, top, 1.0)
+    with np.errstate(divide="ignore"):
+        db = 20.0 * np.log10(rel)
+    return np.asarray(np.maximum(db, FLOOR_DB), dtype=np.float64)
+
+
+def odd_even_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
+    """``10 log10(sum of odd H^2 / sum of even H^2)`` over H1..H8, clipped to +-120 dB.
+
+    A stopped pipe (odd harmonics only; Fletcher & Rossing, *The Physics of Musical
+    Instruments*, 1998) reads large and positive.
+
+    Examples
+    --------
+    >>> round(float(odd_even_db(np.array([[1.0, 1.0, 1.0, 1.0, 0, 0, 0, 0]]))[0]), 2)
+    0.0
+    """
+    a2 = amp[:, :N_REPORTED] ** 2
+    odd = a2[:, 0::2].sum(axis=1)
+    even = a2[:, 1::2].sum(axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = 10.0 * np.log10(odd / even)
+    ratio = np.where(np.isnan(ratio), 0.0, ratio)
+    return np.asarray(np.clip(ratio, -120.0, 120.0), dtype=np.float64)

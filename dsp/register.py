@@ -1,0 +1,398 @@
+"""Register monitor: follows the held (fingered) note and reports register jumps.
+
+Physics (Fletcher & Rossing, *The Physics of Musical Instruments*, 1998): an open pipe
+sounds all harmonics of its fingered note; when it jumps to the octave (mode 2) the
+fingered note's fundamental and odd harmonics vanish and only the multiples of 2 f0
+remain; the twelfth (mode 3) keeps only the multiples of 3 f0.
+
+The monitor is judged frame by frame on spectral evidence measured *at the held note's
+harmonics* (powers of harmonics k = 1..8 of the held note, taken from a short, recent
+window), not on a smoothed pitch track:
+
+* ``r2`` = odd / even energy of the held note (dB), ``r3`` = energy off / on the
+  multiples of 3. Each has a baseline: a peak hold (decaying ``baseline_decay_db_per_s``)
+  learnt while the note is steady.
+* **jumped** (mode m = 2 or 3) when, in continuous tone, ``r_m`` falls at least
+  ``collapse_db`` below its baseline *and* either the energy on the multiples of m rose by
+  ``even_rise_db`` against ~100 ms earlier (the new mode's fundamental takes over; this
+  holds in a reverberant room, where the held note's odd harmonics decay only slowly) or
+  the collapse is total (``deep_collapse_db``). It is reported at the first such frame.
+* kind: **overblown** when the short-window level rose at least ``rise_db`` against
+  ~100 ms before the change (blowing harder: common practice), else **vented** (thumb hole
+  cracked open, level kept). Level alone is not trusted to find the jump.
+* **weakening** while ``r2`` sits ``weaken_db`` or more under its baseline without a jump
+  (the odd harmonics fading toward collapse).
+* a **new note** (held note replaced) on a voiced pitch that is no mode 1..3 of the held
+  note for ``confirm_s``, or on the first voiced frame after ``silence_s`` of silence.
+  With :meth:`RegisterMonitor.lock`, the target is the held note and never replaced.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+from numpy.typing import NDArray
+
+__all__ = ["RegisterMonitor", "RegisterReading", "summarise_evidence", "EVIDENCE_HARMONICS", "EVIDENCE_MODES"]
+
+EVIDENCE_HARMONICS = 8
+"""Harmonics of the held note in each evidence row."""
+
+EVIDENCE_MODES = 3
+"""Evidence rows: held = sounding / m for m = 1..3."""
+
+_ODD = np.array([1, 0, 1, 0, 1, 0, 1, 0], dtype=bool)
+_MULT3 = np.array([0, 0, 1, 0, 0, 1, 0, 0], dtype=bool)
+_TINY = 1e-30
+
+
+@dataclass(frozen=True, slots=True)
+class RegisterReading:
+    """Monitor output for one frame.
+
+    Attributes
+    ----------
+    register : "steady" | "weakening" | "jumped" | None
+        None when unvoiced.
+    jump : "overblown" | "vented" | None
+    held_f0_hz : float or None, Hz
+        Held (fingered) note; the lock target when locked.
+    mode : int
+        Sounding mode relative to the held note (1, 2, 3); 0 when unvoiced.
+    """
+
+    register: Literal["steady", "weakening", "jumped"] | None
+    jump: Literal["overblown", "vented"] | None
+    held_f0_hz: float | None
+    mode: int
+
+
+def summarise_evidence(powers: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Energy sums of the held note's harmonics, in dB, for each mode hypothesis.
+
+    Parameters
+    ----------
+    powers : ndarray of float, shape (..., 3, 8)
+        Powers at harmonics k = 1..8 of the held note under the hypotheses "the pipe
+        sounds mode m" (m = 1..3).
+
+    Returns
+    -------
+    ndarray of float, shape (..., 3, 4), dB
+        Per hypothesis: odd harmonics, even harmonics, off the multiples of 3, on them.
+
+    Examples
+    --------
+    >>> p = np.array([1.0, 0.1, 0.01, 0.1, 0.0, 0.0, 0.0, 0.0])
+    >>> summarise_evidence(np.tile(p, (3, 1)))[0].round(2).tolist()
+    [0.04, -6.99, 0.79, -20.0]
+    """
+    odd = powers[..., _ODD].sum(axis=-1)
+    even = powers[..., ~_ODD].sum(axis=-1)
+    off3 = powers[..., ~_MULT3].sum(axis=-1)
+    on3 = powers[..., _MULT3].sum(axis=-1)
+    return np.asarray(10.0 * np.log10(np.stack([odd, even, off3, on3], axis=-1) + _TINY), dtype=np.float64)
+
+
+def _db(x: float) -> float:
+    """Power to dB with a floor."""
+    return 10.0 * math.log10(x + _TINY)
+
+
+class RegisterMonitor:
+    """Frame-by-frame register state of the held note.
+
+    Parameters
+    ----------
+    hop_s : float > 0, seconds
+        Time between frames.
+    collapse_db : float > 0, dB
+        Drop of the held note's odd/even (or off/on-3) ratio under its baseline that counts
+        as a collapse.
+    deep_collapse_db : float > collapse_db, dB
+        Drop that counts as a jump without further evidence.
+    even_rise_db : float > 0, dB
+        Rise of the energy on the new mode's harmonics, re ~100 ms before, that confirms a
+        collapse.
+    weaken_db : float > 0, dB
+        Drop of the odd/even ratio under its baseline reported as weakening.
+    rise_db : float > 0, dB
+        Level rise at the change that makes a jump "overblown" (common practice: blowing
+        harder raises the level several dB; the synthetic voice uses 8 dB).
+    silence_s : float > 0, seconds
+        Unvoiced time that ends the held note.
+    confirm_s : float >= 0, seconds
+        Time a foreign pitch must persist to become the new held note.
+    warmup_s : float >= 0, seconds
+        Time after a new note during which baselines are learnt and no jump is reported.
+    baseline_decay_db_per_s : float >= 0, dB/s
+        Decay of the baselines' peak hold.
+
+    Examples
+    --------
+    >>> mon = RegisterMonitor(0.005)
+    >>> ev = np.tile(np.array([1.0, 0.1, 0.03, 0.01, 0.003, 0.001, 0.0005, 0.0002]), (3, 1))
+    >>> mon.update(440.0, summarise_evidence(ev).tolist(), -20.0).register
+    'steady'
+    """
+
+    def __init__(
+        self,
+        hop_s: float,
+        *,
+        collapse_db: float = 15.0,
+        deep_collapse_db: float = 30.0,
+        even_rise_db: float = 3.0,
+        weaken_db: float = 4.0,
+        rise_db: float = 3.0,
+        silence_s: float = 0.05,
+        confirm_s: float = 0.015,
+        warmup_s: float = 0.04,
+        baseline_decay_db_per_s: float = 3.0,
+    ) -> None:
+        if not (hop_s > 0.0 and math.isfinite(hop_s)):
+            raise ValueError(f"hop_s {hop_s!r} must be a positive number of seconds")
+        self.hop_s = float(hop_s)
+        self.collapse_db = collapse_db
+        self.deep_collapse_db = deep_collapse_db
+        self.even_rise_db = even_rise_db
+        self.weaken_db = weaken_db
+        self.rise_db = rise_db
+        self._silence_frames = max(1, int(round(silence_s / hop_s)))
+        self._confirm_frames = max(1, int(round(confirm_s / hop_s)))
+        self._warmup_frames = int(round(warmup_s / hop_s))
+        self._decay_per_frame = baseline_decay_db_per_s * hop_s
+        # reference span for rises: frames 150..70 ms before now
+        self._ref_far = max(2, int(round(0.15 / hop_s)))
+        self._ref_near = max(1, int(round(0.07 / hop_s)))
+        self._hist_len = self._ref_far + 1
+        self._target_hz: float | None = None
+        self.reset()
+
+    def reset(self) -> None:
+        """Forget the held note and all history (the lock target is kept)."""
+        self._held_hz: float | None = None
+        self._state: Literal["steady", "weakening", "jumped"] = "steady"
+        self._jump: Literal["overblown", "vented"] | None = None
+        self._mode = 1
+        self._unvoiced_run = self._silence_frames  # as after a long silence
+        self._pending_hz: float | None = None
+        self._pending_run = 0
+        self._clear_note()
+
+    def _clear_note(self) -> None:
+        """Reset the per-note memory."""
+        self._frames_in_note = 0
+        self._base_r2 = -math.inf
+        self._base_r3 = -math.inf
+        self._weak_run = 0
+        self._hist_level = np.full(self._hist_len, np.nan)
+        self._hist_even = np.full(self._hist_len, np.nan)
+        self._hist_mult3 = np.full(self._hist_len, np.nan)
+        self._hist_steady = np.zeros(self._hist_len, dtype=bool)
+        self._hist_pos = 0
+        self._steady_level = math.nan  # level of the last steady stretch, >= 70 ms back
+
+    def lock(self, target_hz: float | None) -> None:
+        """Judge the register against ``target_hz`` (the fingered note); None releases.
+
+        Raises
+        ------
+        ValueError
+            For a target that is not a positive finite frequency.
+        """
+        if target_hz is not None:
+            if not (math.isfinite(target_hz) and target_hz > 0.0):
+                raise ValueError(f"target_hz {target_hz!r} must be a positive frequency in Hz, or None to release")
+            target_hz = float(target_hz)
+        if target_hz != self._target_hz:
+            self._target_hz = target_hz
+            self._state, self._jump, self._mode = "steady", None, 1
+            self._clear_note()
+            if target_hz is None:
+                self._held_hz = None
+
+    @property
+    def target_hz(self) -> float | None:
+        """Lock target, Hz (None when unlocked)."""
+        return self._target_hz
+
+    def _push(self, level_db: float, even_db: float, mult3_db: float) -> None:
+        """Append one frame to the history rings."""
+        i = self._hist_pos % self._hist_len
+        self._hist_level[i] = level_db
+        self._hist_even[i] = even_db
+        self._hist_mult3[i] = mult3_db
+        self._hist_steady[i] = self._state == "steady"
+        self._hist_pos += 1
+        if self._hist_pos > self._ref_near:
+            j = (self._hist_pos - 1 - self._ref_near) % self._hist_len
+            if self._hist_steady[j] and math.isfinite(self._hist_level[j]):
+                self._steady_level = float(self._hist_level[j])
+
+    def _reference(self, ring: NDArray[np.float64]) -> float:
+        """Median of a ring over frames ``_ref_far`` .. ``_ref_near`` back (nan if none)."""
+        if self._hist_pos < self._ref_near + 1:
+            return math.nan
+        back = np.arange(self._ref_near, min(self._ref_far, self._hist_pos - 1) + 1)
+        vals = ring[(self._hist_pos - 1 - back) % self._hist_len]
+        vals = vals[np.isfinite(vals)]
+        return float(np.median(vals)) if vals.size else math.nan
+
+    def _start_note(self, f0_hz: float) -> None:
+        """Make ``f0_hz`` the held note."""
+        self._held_hz = f0_hz if self._target_hz is None else self._target_hz
+        self._state, self._jump, self._mode = "steady", None, 1
+        self._pending_hz, self._pending_run = None, 0
+        self._clear_note()
+
+    def update(self, f0_hz: float | None, evidence_db: Sequence[Sequence[float]], level_dbfs: float) -> RegisterReading:
+        """Advance by one frame.
+
+        Parameters
+        ----------
+        f0_hz : float or None, Hz
+            Sounding fundamental of the frame; None when unvoiced.
+        evidence_db : 3 rows of 4 floats, dB
+            :func:`summarise_evidence` of the powers at ``k f0 / m`` (k = 1..8; row m-1:
+            the held note's harmonics if the pipe sounds mode m), from a short recent window.
+        level_dbfs : float, dBFS
+            Level of that short window.
+
+        Returns
+        -------
+        RegisterReading
+        """
+        if f0_hz is None:
+            self._unvoiced_run += 1
+            self._push(level_dbfs, math.nan, math.nan)
+            if self._unvoiced_run >= self._silence_frames and self._held_hz is not None:
+                self._held_hz = self._target_hz
+                self._state, self._jump, self._mode = "steady", None, 1
+                self._clear_note()
+            held = self._held_hz if self._target_hz is None else self._target_hz
+            return RegisterReading(None, None, held, 0)
+        after_silence = self._unvoiced_run >= self._silence_frames
+        self._unvoiced_run = 0
+        ref = self._target_hz if self._target_hz is not None else self._held_hz
+        if ref is None or (after_silence and self._target_hz is None):
+            self._start_note(f0_hz)
+            ref = self._held_hz
+        elif after_silence:
+            self._state, self._jump, self._mode = "steady", None, 1
+            self._clear_note()
+        assert ref is not None
+        ratio = f0_hz / ref
+        m = int(round(ratio))
+        related = 1 <= m <= EVIDENCE_MODES and abs(1200.0 * math.log2(ratio / m)) <= 50.0
+        odd_db, even_db, off3_db, mult3_db = evidence_db[m - 1] if related else evidence_db[0]
+        r2 = odd_db - even_db
+        r3 = off3_db - mult3_db
+
+        if not related:
+            self._push(level_dbfs, even_db, mult3_db)
+            if self._target_hz is not None:
+                # playing another note than the target: no register judgement to make
+                return RegisterReading("steady", None, self._target_hz, 1)
+            if self._pending_hz is not None and abs(1200.0 * math.log2(f0_hz / self._pending_hz)) <= 50.0:
+                self._pending_run += 1
+            else:
+                self._pending_hz, self._pending_run = f0_hz, 1
+            if self._pending_run >= self._confirm_frames:
+                self._start_note(f0_hz)
+                return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db)
+            return RegisterReading(self._state, self._jump, self._held_hz, self._mode)
+        self._pending_hz, self._pending_run = None, 0
+
+        if self._state == "jumped":
+            self._push(level_dbfs, even_db, mult3_db)
+            back = r2 > self._base_r2 - 0.5 * self.collapse_db if self._mode == 2 else r3 > self._base_r3 - 0.5 * self.collapse_db
+            if m == 1 and back:
+                self._state, self._jump, self._mode = "steady", None, 1
+                return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db, pushed=True)
+            if self._target_hz is None:
+                self._held_hz = f0_hz / m
+            return RegisterReading("jumped", self._jump, self._held_or_target(), self._mode)
+
+        if self._frames_in_note >= self._warmup_frames:
+            jump_mode = self._jump_mode(m, r2, r3, even_db, mult3_db)
+            if jump_mode:
+                # against the level the note was blown at while steady (~70 ms and more
+                # back, before any weakening): a weakening phase loses the held note's
+                # strong odd harmonics and with them some level, which is no blowing change
+                ref_level = self._steady_level
+                if not math.isfinite(ref_level):
+                    ref_level = self._reference(self._hist_level)
+                rise = level_dbfs - ref_level
+                self._state = "jumped"
+                self._mode = jump_mode
+                self._jump = "overblown" if rise >= self.rise_db else "vented"
+                self._push(level_dbfs, even_db, mult3_db)
+                if self._target_hz is None:
+                    self._held_hz = f0_hz / m
+                return RegisterReading("jumped", self._jump, self._held_or_target(), self._mode)
+            if m > 1:
+                # the octave (or twelfth) sounds with no collapse of the held note: a new note
+                self._push(level_dbfs, even_db, mult3_db)
+                if self._target_hz is not None:
+                    return RegisterReading("steady", None, self._target_hz, 1)
+                self._pending_hz = f0_hz if self._pending_hz is None else self._pending_hz
+                self._pending_run += 1
+                if self._pending_run >= 2 * self._confirm_frames:
+                    self._start_note(f0_hz)
+                    return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db)
+                return RegisterReading(self._state, None, self._held_or_target(), 1)
+        return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db)
+
+    def _held_or_target(self) -> float | None:
+        """Held note to report."""
+        return self._target_hz if self._target_hz is not None else self._held_hz
+
+    def _jump_mode(self, m: int, r2: float, r3: float, even_db: float, mult3_db: float) -> int:
+        """Mode the pipe jumped to (2 or 3) on this frame's evidence, else 0."""
+        if m in (1, 2):
+            drop = self._base_r2 - r2
+            if drop >= self.collapse_db:
+                rise = even_db - self._reference(self._hist_even)
+                if drop >= self.deep_collapse_db or rise >= self.even_rise_db:
+                    return 2
+        if m in (1, 3):
+            drop = self._base_r3 - r3
+            if drop >= self.collapse_db:
+                rise = mult3_db - self._reference(self._hist_mult3)
+                if drop >= self.deep_collapse_db or rise >= self.even_rise_db:
+                    return 3
+        return 0
+
+    def _steady_update(
+        self,
+        f0_hz: float,
+        r2: float,
+        r3: float,
+        level_dbfs: float,
+        even_db: float,
+        mult3_db: float,
+        *,
+        pushed: bool = False,
+    ) -> RegisterReading:
+        """Steady or weakening frame of the held note: learn baselines."""
+        if not pushed:
+            self._push(level_dbfs, even_db, mult3_db)
+        self._frames_in_note += 1
+        self._mode = 1
+        self._jump = None
+        if self._target_hz is None:
+            self._held_hz = f0_hz
+        weak = r2 <= self._base_r2 - self.weaken_db and self._frames_in_note > self._warmup_frames
+        self._weak_run = self._weak_run + 1 if weak else 0
+        if self._weak_run >= 2:
+            self._state = "weakening"
+        else:
+            self._state = "steady"
+            self._base_r2 = max(r2, self._base_r2 - self._decay_per_frame)
+            self._base_r3 = max(r3, self._base_r3 - self._decay_per_frame)
+        return RegisterReading(self._state, None, self._held_or_target(), 1)

@@ -1,0 +1,147 @@
+"""Hann-window spectra of frame batches, with frequency reassignment.
+
+One real FFT per frame (rectangular window) gives everything: the Hann-window spectrum
+is a three-tap combination of neighbouring bins, and so is the spectrum under the
+window's time derivative, which frequency reassignment needs (Auger & Flandrin,
+"Improving the readability of time-frequency and time-scale representations by the
+reassignment method", IEEE Trans. Signal Processing 43(5):1068-1089, 1995).
+
+All functions work on batches: arrays of shape (n_frames, ...).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.fft
+from numpy.typing import NDArray
+
+__all__ = ["BatchSpectrum", "analyse_spectrum", "hann_kernel_gain", "band_floor"]
+
+_FloatArray = NDArray[np.float64]
+_IntArray = NDArray[np.intp]
+
+
+@dataclass(frozen=True, slots=True)
+class BatchSpectrum:
+    """Spectra of a batch of frames, up to a highest bin.
+
+    Attributes
+    ----------
+    rect : ndarray of complex64, shape (n_frames, n_bins + 1)
+        Rectangular-window DFT bins ``0 .. n_bins`` (not normalised).
+    power : ndarray of float32, shape (n_frames, n_bins)
+        Hann-window power spectrum ``|X_h|^2`` of bins ``0 .. n_bins - 1``,
+        amplitude-normalised: a sine of amplitude ``a`` at a bin centre reads ``a^2``
+        (bin 0 is set to 0).
+    bin_hz : float, Hz
+        Bin spacing ``sample_rate / frame_size``.
+    frame_size : int, samples
+    """
+
+    rect: NDArray[np.complex64]
+    power: NDArray[np.float32]
+    bin_hz: float
+    frame_size: int
+
+    def hann(self, bins: _IntArray) -> NDArray[np.complex128]:
+        """Hann-window spectrum at integer ``bins`` >= 1 (shape (n_frames, ...)), amplitude-normalised."""
+        rows = _rows(self.rect, bins)
+        lo, mid, hi = (self.rect[rows, bins + j].astype(np.complex128) for j in (-1, 0, 1))
+        return (2.0 * mid - (lo + hi)) / self.frame_size
+
+    def reassigned_bins(self, bins: _IntArray) -> _FloatArray:
+        """Reassigned (fractional) bin position of the energy seen at integer ``bins`` >= 1."""
+        rows = _rows(self.rect, bins)
+        lo, mid, hi = (self.rect[rows, bins + j].astype(np.complex128) for j in (-1, 0, 1))
+        xh = 0.5 * mid - 0.25 * (lo + hi)
+        # Hann h(n) = 0.5 - 0.5 cos(2 pi n / N): h'(n) = (pi/N) sin(2 pi n / N), whose DFT is
+        # (pi/N)(R[k-1] - R[k+1]) / 2i; the reassigned offset -Im(X_dh / X_h) in bins reduces
+        # to Re((R[k-1] - R[k+1]) / (4 X_h)).
+        safe = np.where(np.abs(xh) > 0.0, xh, 1.0)
+        offset = ((lo - hi) / (4.0 * safe)).real
+        return np.asarray(bins + np.clip(offset, -2.0, 2.0), dtype=np.float64)
+
+
+def analyse_spectrum(frames: _FloatArray, sample_rate: float, n_bins: int | None = None) -> BatchSpectrum:
+    """Spectra of a batch of frames (one single-precision real FFT per frame).
+
+    Parameters
+    ----------
+    frames : ndarray of float, shape (n_frames, frame_size)
+        Consecutive analysis frames (rectangular, not yet windowed).
+    sample_rate : float > 0, Hz
+    n_bins : int or None
+        Bins kept (default all, ``frame_size // 2``).
+
+    Returns
+    -------
+    BatchSpectrum
+
+    Examples
+    --------
+    >>> n = 1024
+    >>> x = np.cos(2 * np.pi * 100.25 * np.arange(n) / n)[None, :]
+    >>> s = analyse_spectrum(x, float(n))
+    >>> round(float(s.reassigned_bins(np.array([[100]]))[0, 0]), 4)
+    100.25
+    >>> round(float(s.power[0, 100]), 3)  # scalloping of the Hann window at 1/4 bin
+    0.818
+    """
+    n = frames.shape[1]
+    keep = n // 2 if n_bins is None else min(int(n_bins), n // 2)
+    # single precision: rounding noise ~1e-7 of the peak, far under any microphone's floor
+    rect = scipy.fft.rfft(frames.astype(np.float32), axis=1)[:, : keep + 1]
+    # Hann combination 0.5 R[k] - 0.25 (R[k-1] + R[k+1]), normalised by 4/n
+    xh = (2.0 / n) * rect[:, 1:keep] - (1.0 / n) * (rect[:, : keep - 1] + rect[:, 2 : keep + 1])
+    power = np.empty((rect.shape[0], keep), dtype=np.float32)
+    power[:, 0] = 0.0
+    power[:, 1:] = xh.real * xh.real + xh.imag * xh.imag
+    return BatchSpectrum(rect=rect, power=power, bin_hz=sample_rate / n, frame_size=n)
+
+
+def _rows(padded: NDArray[np.complex128], bins: _IntArray) -> _IntArray:
+    """Row index array broadcastable against ``bins``."""
+    shape = (padded.shape[0],) + (1,) * (bins.ndim - 1)
+    return np.arange(padded.shape[0]).reshape(shape)
+
+
+def hann_kernel_gain(offset_bins: _FloatArray) -> _FloatArray:
+    """Amplitude response of the Hann window to a sine ``offset_bins`` from a bin centre (1 at 0).
+
+    Examples
+    --------
+    >>> round(float(hann_kernel_gain(np.array(0.5))), 4)
+    0.8488
+    """
+    d = np.asarray(offset_bins, dtype=np.float64)
+    denom = 1.0 - d * d
+    near = np.abs(denom) < 1e-9
+    gain = np.sinc(d) / np.where(near, 1.0, denom)
+    return np.asarray(np.where(near, 0.5, np.abs(gain)), dtype=np.float64)
+
+
+def band_floor(power: _FloatArray, edges: _IntArray) -> _FloatArray:
+    """Noise floor per bin: the median power of each band between ``edges``, spread to its bins.
+
+    Parameters
+    ----------
+    power : ndarray of float, shape (n_frames, n_bins)
+    edges : ndarray of int, shape (n_bands + 1,)
+        Increasing bin indices; bins below ``edges[0]`` take the first band's value, bins
+        from ``edges[-1]`` on the last band's.
+
+    Returns
+    -------
+    ndarray of float, shape (n_frames, n_bins)
+    """
+    n_bands = edges.size - 1
+    med = np.empty((power.shape[0], n_bands))
+    for b in range(n_bands):
+        med[:, b] = np.median(power[:, edges[b] : edges[b + 1]], axis=1)
+    # a median of Hann power over noise sits ~1.6 dB under its mean (chi-square, 2 dof):
+    # scale back to the mean so it compares with peak powers
+    med *= 1.0 / np.log(2.0)
+    band_of_bin = np.clip(np.searchsorted(edges, np.arange(power.shape[1]), side="right") - 1, 0, n_bands - 1)
+    return np.asarray(med[:, band_of_bin], dtype=np.float64)
