@@ -10,8 +10,8 @@ Method
 * The frames of one *held note* (the fingered note the analyser follows; the sounding note
   when the log has no held note) under one set of settings form a run; a gap over
   ``dropout_s`` ends it.
-* The first ``attack_s`` of the run are left out, and so is everything from the first frame
-  whose register state is "jumped".
+* The first ``attack_s`` of the run are left out, and so is everything from 40 ms before the
+  first frame whose register state is "jumped" (the change itself).
 * Ordinary least squares of corrected cents against level (dBFS) over the frames that remain:
   ``slope = Sxy / Sxx``, standard error ``sqrt(sum(r**2) / (n - 2) / Sxx)`` -- the same as
   ``scipy.stats.linregress``. The standard error treats frames as independent; analysis
@@ -26,6 +26,7 @@ Method
 
 from __future__ import annotations
 
+import copy
 import math
 import statistics
 from collections import deque
@@ -234,11 +235,19 @@ class _Run:
         self.lo = math.inf
         self.hi = -math.inf
         self.history = LevelHistory()
+        self.pending: deque[tuple[float, float, float]] = deque()
         self.broken = False
         self.break_level: float | None = None
         self.break_time: float | None = None
         self.jumped_level: float | None = None
         self.jump_kind = ""
+
+    def offer(self, time_s: float, level: float, cents: float) -> None:
+        """Queue a frame; frames older than the guard before a possible jump are fitted."""
+        self.pending.append((time_s, level, cents))
+        while self.pending and self.pending[0][0] < time_s - BREAK_LOOKBACK_S[1]:
+            _, lv, c = self.pending.popleft()
+            self.add(lv, c)
 
     def add(self, level: float, cents: float) -> None:
         self.sums.add(level, cents)
@@ -250,22 +259,32 @@ class _Run:
             self.cents = self.cents[::2]
 
     def curve(self) -> BlowingCurve:
-        fit = self.sums.fit()
-        step = max(1, math.ceil(len(self.levels) / MAX_KEPT_POINTS))
+        sums, levels, cents = self.sums, self.levels, self.cents
+        lo, hi = self.lo, self.hi
+        if not self.broken and self.pending:  # queued frames count until a jump comes
+            sums = copy.copy(self.sums)
+            levels, cents = list(levels), list(cents)
+            for _, lv, c in self.pending:
+                sums.add(lv, c)
+                levels.append(lv)
+                cents.append(c)
+                lo, hi = min(lo, lv), max(hi, lv)
+        fit = sums.fit()
+        step = max(1, math.ceil(len(levels) / MAX_KEPT_POINTS))
         midi, settings = self.key
         return BlowingCurve(
             note=self.note or note_name(midi),
             midi=midi,
             start_s=self.start_s,
             end_s=self.end_s,
-            levels_dbfs=tuple(self.levels[::step]),
-            cents=tuple(self.cents[::step]),
-            n=self.sums.n,
+            levels_dbfs=tuple(levels[::step]),
+            cents=tuple(cents[::step]),
+            n=sums.n,
             slope_cents_per_db=fit.slope if fit else None,
             slope_se_cents_per_db=fit.slope_se if fit else None,
             intercept_cents=fit.intercept if fit else None,
-            level_min_dbfs=self.lo if self.sums.n else -math.inf,
-            level_max_dbfs=self.hi if self.sums.n else -math.inf,
+            level_min_dbfs=lo if sums.n else -math.inf,
+            level_max_dbfs=hi if sums.n else -math.inf,
             break_level_dbfs=self.break_level,
             break_time_s=self.break_time,
             jumped_level_dbfs=self.jumped_level,
@@ -345,6 +364,7 @@ class BlowingCurveTracker:
             if run.broken:
                 return None
             run.broken = True
+            run.pending.clear()  # the change itself is not part of the curve
             brk = run.history.break_level(p.time_s)
             run.break_level = brk if brk is not None else p.level_dbfs
             run.break_time = p.time_s
@@ -364,7 +384,7 @@ class BlowingCurveTracker:
         run.history.add(p.time_s, p.level_dbfs)
         if p.time_s - run.start_s < self.attack_s - 1e-9:
             return None
-        run.add(p.level_dbfs, p.cents)
+        run.offer(p.time_s, p.level_dbfs, p.cents)
         return None
 
     def finish(self) -> BlowingCurve | None:

@@ -20,17 +20,22 @@ Spread is the scaled median absolute deviation of the stretch's corrected cents,
 deviation (equals σ for normally distributed frames; scipy.stats.median_abs_deviation with
 ``scale="normal"``).
 
-Register: the sounding mode from the ratio of the sounding to the held (fingered)
-fundamental when the analyser reports a held note and the ratio is 2, 3 ... (an overblown or
-vented note); otherwise the register the instrument profile puts the note in; 1 without a
-profile.
+A crescendo or diminuendo is a blowing curve, not a capture: a stretch whose level changes
+faster than ``max_level_drift_db_per_s`` (2 dB/s, least-squares slope of level against time)
+is not captured automatically.
 
-Register margin: when the held note broke into the next register during the same held note
-(the first frame whose register state is "jumped"), the margin is the break level minus the
-capture's level, dB. The break level is read as in :mod:`bench.workflow.blowing` (median
+Register: when the frames are in a "jumped" state (the held note broke into another mode
+while the same fingering was held), the sounding mode from the ratio of the sounding to the
+held fundamental (2 octave, 3 twelfth ...); otherwise the register the instrument profile puts
+the sounding note in (the player chose the fingering); without a profile, the mode if known,
+else 1.
+
+Register margin: when the held note broke into the next register (the first frame of a held
+note whose register state is "jumped", e.g. at the top of a crescendo), the margin of every
+capture of that note under the same settings -- before or after -- is the newest such break
+level minus the capture's level, dB. The break level is read as in :mod:`bench.workflow.blowing` (median
 level from 100 ms to 40 ms before the first jumped frame: the blowing level that broke the
-note, clear of the change itself). A capture taken later on the same note, under the same settings, uses the last break
-seen on that note.
+note, clear of the change itself).
 
 File format (``<log stem>.captures.csv`` beside the frame log), UTF-8 CSV with ``\\r\\n`` line
 ends and a header row, columns :data:`CAPTURE_COLUMNS`; a row with an ``index`` seen before
@@ -52,7 +57,7 @@ from typing import Any, Literal
 
 from bench.errors import LogError
 from bench.framelog import safe_cell
-from bench.workflow.blowing import LevelHistory
+from bench.workflow.blowing import LevelHistory, fit_line
 from bench.workflow.points import FramePoint, SettingsKey, as_point
 from bench.workflow.profiles import InstrumentProfile
 
@@ -73,7 +78,7 @@ __all__ = [
 CaptureSource = Literal["auto", "manual"]
 
 CAPTURE_COLUMNS: tuple[str, ...] = (
-    "index", "label", "source", "note", "midi", "register", "mode",
+    "index", "label", "source", "note", "midi", "register", "mode", "jump",
     "start_s", "end_s", "frames",
     "cents", "cents_spread", "cents_raw", "f0_hz", "target_hz",
     "level_dbfs", "level_min_dbfs", "level_max_dbfs",
@@ -85,7 +90,8 @@ CAPTURE_COLUMNS: tuple[str, ...] = (
 
 index (1, 2 ...), label (session label in force), source (auto | manual), note (sounding,
 as the log spelled it), midi, register (1, 2, 3 ...), mode (sounding mode from the held note,
-blank if unknown), start_s / end_s (seconds, frame-log time of the first and last frame used),
+blank if unknown), jump (overblown | vented when the capture is of a held note that broke
+into that mode, else blank), start_s / end_s (seconds, frame-log time of the first and last frame used),
 frames (count), cents (median, corrected to the reference temperature), cents_spread (scaled
 MAD, cents), cents_raw (median, uncorrected), f0_hz / target_hz (median, Hz), level_dbfs
 (median), level_min_dbfs / level_max_dbfs, odd_even_db and h1_db..h8_db (medians, dB re the
@@ -110,6 +116,8 @@ class CaptureThresholds:
         Longest gap (unvoiced frames, or frames out of the band) that does not end a stretch.
     manual_s : float > 0, seconds
         Default span of :meth:`CaptureDetector.capture_now` (the last 0.5 s).
+    max_level_drift_db_per_s : float > 0, dB/s
+        Automatic captures skip stretches whose level changes faster (a crescendo).
     """
 
     attack_s: float = 0.15
@@ -117,12 +125,13 @@ class CaptureThresholds:
     tolerance_cents: float = 3.0
     dropout_s: float = 0.06
     manual_s: float = 0.5
+    max_level_drift_db_per_s: float = 2.0
 
     def __post_init__(self) -> None:
         for name in ("attack_s", "dropout_s"):
             if not getattr(self, name) >= 0:
                 raise ValueError(f"{name} {getattr(self, name)!r} must be >= 0 seconds")
-        for name in ("settle_s", "tolerance_cents", "manual_s"):
+        for name in ("settle_s", "tolerance_cents", "manual_s", "max_level_drift_db_per_s"):
             if not getattr(self, name) > 0:
                 raise ValueError(f"{name} {getattr(self, name)!r} must be > 0")
 
@@ -138,6 +147,7 @@ class Capture:
     midi: int
     register: int
     mode: int | None
+    jump: str
     start_s: float
     end_s: float
     frames: int
@@ -194,11 +204,11 @@ def _median_or_none(values: Iterable[float | None]) -> float | None:
 
 def _register_for(point: FramePoint, profile: InstrumentProfile | None) -> int:
     mode = point.mode
-    if mode is not None and mode > 1:
+    if point.register_state == "jumped" and mode is not None and mode > 1:
         return mode
     if profile is not None and point.midi is not None:
         return profile.register_of(point.midi)
-    return 1
+    return mode or 1
 
 
 def capture_from_points(
@@ -240,8 +250,9 @@ def capture_from_points(
     level = statistics.median(levels) if levels else -math.inf
     harmonics = tuple(_median_or_none(p.harmonics_db[k] for p in voiced) for k in range(8))
     mode = first.mode
+    jumped = first.register_state == "jumped"
     margin = None
-    if break_level_dbfs is not None and (mode is None or mode == 1) and math.isfinite(level):
+    if break_level_dbfs is not None and not jumped and math.isfinite(level):
         margin = break_level_dbfs - level
     s = first.settings
     return Capture(
@@ -252,6 +263,7 @@ def capture_from_points(
         midi=int(first.midi) if first.midi is not None else 0,
         register=_register_for(first, profile),
         mode=mode,
+        jump=(first.jump or "jumped") if jumped else "",
         start_s=voiced[0].time_s,
         end_s=voiced[-1].time_s,
         frames=len(voiced),
@@ -339,7 +351,7 @@ class CaptureDetector:
         self._recent: deque[FramePoint] = deque()
         self._held_levels = LevelHistory()
         # settle run
-        self._run_key: tuple[int | None, int | None, SettingsKey] | None = None
+        self._run_key: tuple[int | None, int | None, bool, SettingsKey] | None = None
         self._run_start_s = 0.0
         self._last_voiced_s = -math.inf
         self._window: list[FramePoint] = []
@@ -350,7 +362,7 @@ class CaptureDetector:
         # held-note run (for register margins)
         self._held_key: tuple[int, SettingsKey] | None = None
         self._held_broken = False
-        self._held_capture_indices: list[int] = []
+        self._capture_held: dict[int, tuple[int, SettingsKey]] = {}
 
     def take_updates(self) -> list[Capture]:
         """Captures whose register margin was learnt after they were returned.
@@ -392,7 +404,7 @@ class CaptureDetector:
                 return self._end_run()
             return None
         result: Capture | None = None
-        key = (p.midi, p.mode, p.settings)
+        key = (p.midi, p.mode, p.register_state == "jumped", p.settings)
         if key != self._run_key or p.time_s - self._last_voiced_s > th.dropout_s:
             result = self._end_run()
             self._run_key = key
@@ -436,10 +448,13 @@ class CaptureDetector:
         if not self._recent:
             return None
         newest = self._recent[-1]
-        key = (newest.midi, newest.mode, newest.settings)
+        def key_of(q: FramePoint) -> tuple[object, ...]:
+            return (q.midi, q.mode, q.register_state == "jumped", q.settings)
+
+        key = key_of(newest)
         picked: list[FramePoint] = []
         for q in reversed(self._recent):
-            if q.time_s < newest.time_s - span or (q.midi, q.mode, q.settings) != key:
+            if q.time_s < newest.time_s - span or key_of(q) != key:
                 break
             picked.append(q)
         picked.reverse()
@@ -469,6 +484,9 @@ class CaptureDetector:
         self._steady, self._ref_cents, self._window = [], None, []
         if not steady or not self.auto:
             return None
+        drift = fit_line([q.time_s for q in steady], [q.level_dbfs for q in steady])
+        if drift is not None and abs(drift.slope) > self.thresholds.max_level_drift_db_per_s:
+            return None  # a crescendo: see the blowing curve
         return self._make(steady, "auto")
 
     def _end_run(self) -> Capture | None:
@@ -482,9 +500,10 @@ class CaptureDetector:
         if not points:
             return None
         first = points[0]
+        held = first.held_midi
         brk = None
-        if first.midi is not None and (first.mode is None or first.mode == 1):
-            brk = self._breaks.get((first.midi, first.settings))
+        if held is not None and first.register_state != "jumped":
+            brk = self._breaks.get((held, first.settings))
         cap = capture_from_points(
             points,
             index=self._next_index,
@@ -495,8 +514,8 @@ class CaptureDetector:
         )
         self._next_index += 1
         self.captures.append(cap)
-        if self._held_key is not None and first.midi == self._held_key[0] and cap.mode in (None, 1):
-            self._held_capture_indices.append(cap.index)
+        if held is not None and not cap.jump:
+            self._capture_held[cap.index] = (held, first.settings)
         return cap
 
     def _track_held(self, p: FramePoint) -> None:
@@ -512,19 +531,19 @@ class CaptureDetector:
                 level = brk if brk is not None else p.level_dbfs
                 self._held_broken = True
                 self._breaks[key] = level
-                self._fill_margins(level)
+                self._fill_margins(key, level)
             return
         key = (p.held_midi if p.held_f0_hz else p.midi, p.settings)
         if key != self._held_key:
             self._held_key = key  # type: ignore[assignment]
             self._held_broken = False
-            self._held_capture_indices = []
             self._held_levels.clear()
         self._held_levels.add(p.time_s, p.level_dbfs)
 
-    def _fill_margins(self, break_level_dbfs: float) -> None:
+    def _fill_margins(self, key: tuple[int, SettingsKey], break_level_dbfs: float) -> None:
+        """Give every capture of the held note ``key`` its margin to the newest break."""
         for i, cap in enumerate(self.captures):
-            if cap.index in self._held_capture_indices and math.isfinite(cap.level_dbfs):
+            if self._capture_held.get(cap.index) == key and math.isfinite(cap.level_dbfs):
                 new = replace(
                     cap,
                     register_margin_db=break_level_dbfs - cap.level_dbfs,
@@ -532,7 +551,6 @@ class CaptureDetector:
                 )
                 self.captures[i] = new
                 self._updates.append(new)
-        self._held_capture_indices = []
 
 
 def captures_from_rows(
@@ -584,6 +602,7 @@ def capture_row(cap: Capture) -> list[str]:
         str(cap.midi),
         str(cap.register),
         "" if cap.mode is None else str(cap.mode),
+        cap.jump,
         _fmt(cap.start_s, 4),
         _fmt(cap.end_s, 4),
         str(cap.frames),
@@ -739,7 +758,7 @@ def read_captures(path: str | Path) -> list[Capture]:
                 raise ValueError(source)
             values: dict[str, float | None] = {}
             for col in CAPTURE_COLUMNS:
-                if col in ("index", "label", "source", "note", "temperament", "tonic"):
+                if col in ("index", "label", "source", "note", "jump", "temperament", "tonic"):
                     continue
                 values[col] = _opt(r[col])
             col = "midi"
@@ -751,6 +770,7 @@ def read_captures(path: str | Path) -> list[Capture]:
                 midi=int(r["midi"]),
                 register=int(r["register"]),
                 mode=int(r["mode"]) if r["mode"].strip() else None,
+                jump=r["jump"].strip(),
                 start_s=values["start_s"] or 0.0,
                 end_s=values["end_s"] or 0.0,
                 frames=int(r["frames"]),

@@ -6,8 +6,9 @@ summary CSV (:func:`write_summary_csv`) and a picture (:func:`plot_chart`, PNG o
 matplotlib's Agg backend; matplotlib is imported only inside the picture functions).
 
 Which capture counts: the latest (highest index) capture of each (note, register). A capture's
-register on the chart is its sounding mode when that is 2 or more (an overblown or vented
-note), else the register the chart's profile gives the note. Captures of notes outside the
+register on the chart is its sounding mode when it was a held note that broke into mode 2 or
+more (overblown or vented while the fingering was held), else the register the chart's
+profile gives the note. Captures of notes outside the
 profile's compass, or in another register than the profile expects, are shown as extra entries.
 
 Cents are the corrected values: measured against the session's temperament, tonic and pitch
@@ -130,8 +131,9 @@ class TuningChart:
 
 
 def capture_register(cap: Capture, profile: InstrumentProfile) -> int:
-    """Register of a capture on a chart of ``profile`` (mode >= 2 wins, else the profile's)."""
-    if cap.mode is not None and cap.mode > 1:
+    """Register of a capture on a chart of ``profile``: its mode when it is a held note that
+    broke into mode 2, 3 ...; else the register the profile gives the note."""
+    if cap.jump and cap.mode is not None and cap.mode > 1:
         return cap.mode
     return profile.register_of(cap.midi)
 
@@ -193,12 +195,12 @@ def describe_settings(settings: SettingsKey) -> str:
     """One phrase: temperament, tonic, pitch standard and temperatures.
 
     >>> describe_settings(SettingsKey("equal", "C", 440.0, 23.5, 20.0))
-    'equal on C, A4 = 440.0 Hz, played at 23.5 degC, corrected to 20.0 degC'
+    'equal on C, A4 = 440.0 Hz, played at 23.5 °C, corrected to 20.0 °C'
     """
     rh = f", {settings.rh_percent:.0f} % RH" if settings.rh_percent is not None else ""
     return (
         f"{settings.temperament} on {settings.tonic}, A4 = {settings.a4_hz:.1f} Hz, "
-        f"played at {settings.temp_c:.1f} degC, corrected to {settings.ref_temp_c:.1f} degC{rh}"
+        f"played at {settings.temp_c:.1f} °C, corrected to {settings.ref_temp_c:.1f} °C{rh}"
     )
 
 

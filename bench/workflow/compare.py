@@ -137,7 +137,7 @@ def _fmt_temps(settings: tuple[SettingsKey, ...]) -> str:
     refs = sorted({s.ref_temp_c for s in settings})
     t = "/".join(f"{x:.1f}" for x in temps)
     r = "/".join(f"{x:.1f}" for x in refs)
-    return f"played at {t} degC, corrected to {r} degC"
+    return f"played at {t} °C, corrected to {r} °C"
 
 
 def compare_captures(
@@ -220,7 +220,7 @@ def compare_captures(
         warnings.append(
             "the sessions were corrected to different reference temperatures "
             f"({'/'.join(f'{x:.1f}' for x in sorted(refs_b))} vs "
-            f"{'/'.join(f'{x:.1f}' for x in sorted(refs_a))} degC); redo one with the same --ref-temp"
+            f"{'/'.join(f'{x:.1f}' for x in sorted(refs_a))} °C); redo one with the same --ref-temp"
         )
     tb = {(s.temperament, s.tonic, s.a4_hz) for s in cb.settings}
     ta = {(s.temperament, s.tonic, s.a4_hz) for s in ca.settings}
