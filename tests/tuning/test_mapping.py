@@ -100,7 +100,8 @@ def test_werckmeister_on_g_targets() -> None:
     on_g = [-1.96, -11.73, -3.91, -7.82, -11.73, -3.91, -7.82, 0, -9.78, -7.82, -5.87, -9.78]
     s = TuningSettings(a4_hz=415.0, temperament="werckmeister3", tonic="G")
     want = [x - on_g[9] for x in on_g]
-    assert list(target_offsets_cents(s)) == pytest.approx(want, abs=0.006)
+    # Differences of two published values, each rounded to 0.01 c.
+    assert list(target_offsets_cents(s)) == pytest.approx(want, abs=0.0101)
     assert target_hz(60, s) == pytest.approx(246.7605 * 2 ** (want[0] / 1200), abs=1e-3)
 
 
