@@ -49,11 +49,15 @@ def _open(path: Path):  # type: ignore[no-untyped-def]
         raise AudioFileError(f"{path}: no such file")
     if path.is_dir():
         raise AudioFileError(f"{path}: is a folder; give audio files")
+    if path.stat().st_size == 0:
+        raise AudioFileError(f"{path}: the file is empty (0 bytes)")
     try:
         f = sf.SoundFile(str(path))
     except (sf.LibsndfileError, RuntimeError, TypeError) as exc:
-        msg = str(exc).split(":")[-1].strip() or "unknown format"
+        msg = str(exc).split(":")[-1].strip().rstrip(".").lower() or "unknown format"
         raise AudioFileError(f"{path}: not readable as audio ({msg}); give WAV, FLAC or OGG") from None
+    except OSError as exc:
+        raise AudioFileError(f"{path}: cannot be read ({exc.strerror or exc})") from None
     if f.frames == 0:
         f.close()
         raise AudioFileError(f"{path}: holds no audio samples")
@@ -156,7 +160,10 @@ def analyse_file(
                 log.close()
         duration_s = f.frames / f.samplerate
         if n_frames == 0:
-            warnings.append(f"too short to analyse ({duration_s * 1000:.1f} ms)")
+            warnings.append(
+                f"too short to analyse: {f.frames} samples ({duration_s * 1000:.1f} ms), "
+                f"one frame needs {analyser.frame_size} samples"
+            )
         return FileAnalysis(
             path, duration_s, f.samplerate, f.channels, n_frames, voiced,
             tuple(notes), tuple(warnings), csv_path,

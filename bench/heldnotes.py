@@ -120,7 +120,8 @@ class HeldNoteTracker:
             if note.last_register != "jumped":
                 note.events.append(RegisterEvent(frame.time_s, frame.jump or "jump", mapping.note))
         elif frame.register == "weakening":
-            if note.last_register not in ("weakening", "jumped"):
+            # one early warning per approach to a jump: flicker in a live room is not news
+            if not note.events or note.events[-1].kind != "weakening":
                 note.events.append(RegisterEvent(frame.time_s, "weakening", mapping.note))
         if frame.register != "jumped" and frame.time_s - note.start_s >= ATTACK_SKIP_S:
             note.cents.append(mapping.cents)
