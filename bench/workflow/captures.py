@@ -68,6 +68,7 @@ __all__ = [
     "CaptureFile",
     "CaptureThresholds",
     "capture_from_points",
+    "capture_row",
     "captures_from_rows",
     "captures_path_for",
     "read_captures",
