@@ -1,0 +1,12 @@
+"""Suite-wide fixtures: no test reads or writes the user's own configuration or logs."""
+
+from __future__ import annotations
+
+import pytest
+
+
+@pytest.fixture(autouse=True)
+def _private_user_folders(tmp_path_factory, monkeypatch):
+    """Point bench's config and log folders at fresh temporary ones for every test."""
+    monkeypatch.setenv("BENCH_CONFIG_DIR", str(tmp_path_factory.mktemp("config")))
+    monkeypatch.setenv("BENCH_LOG_DIR", str(tmp_path_factory.mktemp("logs")))
