@@ -166,7 +166,7 @@ class BenchApp(App[int]):
         (``bench.airtemp.AirTemperatureFollower``); the screen says the air is followed.
     """
 
-    CSS_PATH = "bench.tcss"
+    CSS_PATH = Path(__file__).with_name("bench.tcss")  # absolute, so subclasses find it too
     TITLE = "bench"
     COMMANDS = App.COMMANDS | {BenchCommands}
     BINDINGS: ClassVar[list[Binding]] = [
@@ -227,6 +227,7 @@ class BenchApp(App[int]):
         """Readings put on screen so far (the benchmark divides it by time)."""
         self._polls = 0
         self._save_warned = False
+        self._views: dict[Any, Any] = {}
 
     # -- building -------------------------------------------------------------------
 
@@ -248,19 +249,29 @@ class BenchApp(App[int]):
             yield SettingsPanel(id="tuning")
         yield Footer()
 
+    def _view(self, selector: Any, expect_type: Any = None) -> Any:
+        """A widget of the main screen (found once; dialogs on top do not hide it)."""
+        key = (selector, expect_type)
+        widget = self._views.get(key)
+        if widget is None:
+            widget = self._main_screen.query_one(selector, expect_type)
+            self._views[key] = widget
+        return widget
+
     def on_mount(self) -> None:
-        self.query_one("#harmonics").border_title = "harmonic balance"
-        self.query_one("#trail").border_title = f"trail {TRAIL_WINDOW_S:.0f} s"
-        self.query_one("#tuning").border_title = (
+        self._main_screen = self.screen
+        self._view("#harmonics").border_title = "harmonic balance"
+        self._view("#trail").border_title = f"trail {TRAIL_WINDOW_S:.0f} s"
+        self._view("#tuning").border_title = (
             "tuning in force" if self.temp_follower is None else "tuning \u00b7 air followed"
         )
-        self.query_one(PitchTrail).window_s = TRAIL_WINDOW_S
+        self._view(PitchTrail).window_s = TRAIL_WINDOW_S
         self._connect_events(self.engine_event)
         try:
             self.engine.start()
         except BenchError as exc:
             self.start_error = exc
-            self.exit(2)
+            self.exit(2, return_code=2)
             return
         self.settings = self.engine.settings
         self._show_lock()
@@ -273,8 +284,10 @@ class BenchApp(App[int]):
     def on_resize(self, event: object = None) -> None:
         """Give the big figures twice the height on a tall terminal, the panels more width
         on a wide one."""
-        self.screen.set_class(self.size.height >= 34, "-tall")
-        self.screen.set_class(self.size.width >= 120, "-wide")
+        screen = getattr(self, "_main_screen", None)
+        if screen is not None:
+            screen.set_class(self.size.height >= 34, "-tall")
+            screen.set_class(self.size.width >= 120, "-wide")
 
     def on_unmount(self) -> None:
         self._stop_engine()
@@ -321,13 +334,13 @@ class BenchApp(App[int]):
             (r.stream_time_s, None if r.mapping is None else (r.mapping.cents_raw if raw else r.mapping.cents))
             for r in self.engine.history(TRAIL_WINDOW_S)
         )
-        self.query_one(PitchTrail).points = points
+        self._view(PitchTrail).points = points
 
     def _refresh_session(self) -> None:
         if self.engine.settings is not self.settings:  # changed elsewhere, e.g. a sensor
             self.settings = self.engine.settings
         stats = self.engine.stats
-        bar = self.query_one(SessionBar)
+        bar = self._view(SessionBar)
         bar.source = stats.source
         bar.state = stats.state
         bar.dropped_blocks = stats.dropped_blocks
@@ -353,9 +366,9 @@ class BenchApp(App[int]):
             return
         frame, mapping = reading.frame, reading.mapping
         sounding = mapping is not None
-        note, cents_face = self.query_one(NoteFace), self.query_one(CentsFace)
+        note, cents_face = self._view(NoteFace), self._view(CentsFace)
         note.sounding = cents_face.sounding = sounding
-        scale, detail = self.query_one(DeviationScale), self.query_one(DetailLine)
+        scale, detail = self._view(DeviationScale), self._view(DetailLine)
         if mapping is not None:
             shown = mapping.cents_raw if self.show_raw else mapping.cents
             note.note = mapping.note
@@ -366,13 +379,13 @@ class BenchApp(App[int]):
             detail.f0_hz = frame.f0_hz
         else:
             scale.cents = None
-        banner = self.query_one(RegisterBanner)
+        banner = self._view(RegisterBanner)
         banner.register, banner.jump = frame.register, frame.jump
-        bars = self.query_one(HarmonicBars)
+        bars = self._view(HarmonicBars)
         if frame.harmonics_db is not None or not sounding:
             bars.harmonics_db = frame.harmonics_db
             bars.odd_even_db = frame.odd_even_db
-        bar = self.query_one(SessionBar)
+        bar = self._view(SessionBar)
         bar.level_dbfs = frame.level_dbfs
         bar.clipped = frame.clipped
         bar.dropped_blocks = reading.dropped_blocks
@@ -381,7 +394,7 @@ class BenchApp(App[int]):
     def watch_settings(self, settings: TuningSettings | None) -> None:
         if settings is None:
             return
-        panel = self.query_one(SettingsPanel)
+        panel = self._view(SettingsPanel)
         panel.settings = settings
         try:
             panel.temperament_name = get_temperament(settings.temperament).name
@@ -394,21 +407,21 @@ class BenchApp(App[int]):
         self._show_lock()
 
     def watch_held(self, held: bool) -> None:
-        self.query_one(SessionBar).held = held
+        self._view(SessionBar).held = held
 
     def watch_show_raw(self, show_raw: bool) -> None:
-        self.query_one(DetailLine).main_is_raw = show_raw
+        self._view(DetailLine).main_is_raw = show_raw
         caption = "cents, RAW (no air correction)" if show_raw else "cents, air-corrected"
-        self.query_one("#cents-caption", Label).update(caption)
-        self.query_one("#cents-caption", Label).set_class(show_raw, "-raw")
+        self._view("#cents-caption", Label).update(caption)
+        self._view("#cents-caption", Label).set_class(show_raw, "-raw")
         if self.reading is not None:
             self.reading = self.reading  # redraw the figures with the other cents
         self._refresh_trail()
 
     def watch_locked_note(self, locked_note: str | None) -> None:
-        self.query_one(SettingsPanel).locked_note = locked_note
-        self.query_one(DetailLine).locked_note = locked_note
-        self.query_one("#note-caption", Label).update(
+        self._view(SettingsPanel).locked_note = locked_note
+        self._view(DetailLine).locked_note = locked_note
+        self._view("#note-caption", Label).update(
             f"note, LOCKED to {locked_note}" if locked_note else "note"
         )
 
