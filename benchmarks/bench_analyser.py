@@ -163,10 +163,10 @@ def memory(minutes: float) -> None:
         while next_mark < len(checkpoints) and n / sr / 60 >= checkpoints[next_mark]:
             gc.collect()
             marks.append((n / sr / 60, _rss_mib()))
+            print(f"  at {marks[-1][0]:6.1f} min: RSS {marks[-1][1]:8.1f} MiB  ({time.perf_counter() - t0:.0f} s)",
+                  flush=True)
             next_mark += 1
     elapsed = time.perf_counter() - t0
-    for m, rss in marks:
-        print(f"  at {m:6.1f} min: RSS {rss:8.1f} MiB")
     if len(marks) >= 2:
         print(f"RSS growth from {marks[0][0]:.1f} min to the end: {marks[-1][1] - marks[0][1]:+.1f} MiB; "
               f"ru_maxrss {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MiB; "
