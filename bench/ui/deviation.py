@@ -58,7 +58,9 @@ class DeviationScale(Widget):
             pos = max(-half, min(half, round(self.cents / SCALE_HALF_CENTS * half)))
             at = centre + pos
             plain = words.plain
-            if plain[at] == " ":
+            middle_at = plain.find(middle) if mid else -1
+            on_word = middle_at <= at < middle_at + len(middle) if mid else False
+            if plain[at] == " " and not on_word:
                 words = words[:at] + Text("\u25bc", lit) + words[at + 1 :]
         cells = ["\u2500"] * width
         for tick_cents in range(-50, 51, 10):
