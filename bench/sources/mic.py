@@ -217,6 +217,16 @@ class MicSource:
         """Input overflows plus blocks that found the ring full, since construction."""
         return self._overflows + self._ring.full_drops
 
+    @property
+    def overflows(self) -> int:
+        """Input overflows the driver reported (blocks it lost before the callback)."""
+        return self._overflows
+
+    @property
+    def full_drops(self) -> int:
+        """Blocks dropped because the engine had not taken the ring's blocks yet."""
+        return self._ring.full_drops
+
     def _callback(self, indata: NDArray[np.float32], frames: int, time_info: Any, status: Any) -> None:
         if status.input_overflow:
             self._overflows += 1

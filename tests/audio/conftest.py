@@ -1,0 +1,116 @@
+"""Fixtures for the real audio path: a JACK dummy server, an ALSA file device, and a runner
+that starts tests/audio/live_case.py in a fresh interpreter with their environment.
+
+Recipes: /work/shared/AUDIO-TESTING.md (JACK dummy driver paced by a timer; ALSA ``file``
+plugin over ``null``, which floods capture). Servers are stopped by their process id.
+"""
+
+from __future__ import annotations
+
+import ctypes.util
+import json
+import os
+import shutil
+import subprocess
+import sys
+import time
+import uuid
+from pathlib import Path
+
+import pytest
+
+REPO = Path(__file__).resolve().parents[2]
+LIVE_CASE = Path(__file__).with_name("live_case.py")
+SAMPLE_RATE = 48000
+PERIOD = 512
+
+
+def _need_portaudio() -> None:
+    if ctypes.util.find_library("portaudio") is None:
+        pytest.skip("libportaudio2 is not installed (apt-get install libportaudio2)")
+
+
+@pytest.fixture
+def jack_server(tmp_path):
+    """Name of a JACK dummy server (48 kHz, 512-frame periods) running for this test."""
+    _need_portaudio()
+    jackd = shutil.which("jackd")
+    if jackd is None:
+        pytest.skip("jackd is not installed (apt-get install jackd2)")
+    try:
+        import jack
+    except (ImportError, OSError) as exc:
+        pytest.skip(f"JACK-Client cannot load libjack: {exc}")
+    name = f"bench-test-{os.getpid()}-{uuid.uuid4().hex[:8]}"
+    server_log = tmp_path / "jackd.log"  # a file, not a pipe: an undrained pipe would stall jackd
+    log_file = server_log.open("wb")
+    proc = subprocess.Popen(
+        [jackd, "-n", name, "-d", "dummy", "-r", str(SAMPLE_RATE), "-p", str(PERIOD)],
+        stdout=log_file,
+        stderr=subprocess.STDOUT,
+    )
+    try:
+        deadline = time.monotonic() + 10.0
+        while True:
+            if proc.poll() is not None:
+                err = server_log.read_text(errors="replace")[-400:]
+                pytest.fail(f"jackd exited with {proc.returncode}: {err}")
+            try:
+                probe = jack.Client("bench-probe", servername=name, no_start_server=True)
+            except jack.JackError:
+                if time.monotonic() > deadline:
+                    pytest.fail("jackd did not come up within 10 s")
+                time.sleep(0.05)
+                continue
+            probe.close()
+            break
+        yield name
+    finally:
+        proc.terminate()
+        try:
+            proc.wait(5)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+            proc.wait(5)
+        log_file.close()
+
+
+@pytest.fixture
+def alsa_file_device(tmp_path):
+    """(device name, ALSA_CONFIG_PATH) of a capture device reading ``fixture.raw`` (S16_LE mono)."""
+    _need_portaudio()
+    if not Path("/usr/share/alsa/alsa.conf").exists():
+        pytest.skip("ALSA configuration /usr/share/alsa/alsa.conf is missing (apt-get install alsa-utils)")
+    raw = tmp_path / "fixture.raw"
+    conf = tmp_path / "asound.conf"
+    conf.write_text(
+        f'pcm.fixturefile {{ type file; slave.pcm "null"; file "/dev/null"; infile "{raw}"; format "raw" }}\n'
+        f'pcm.fixture {{ type plug; slave {{ pcm "fixturefile"; format S16_LE; rate {SAMPLE_RATE}; channels 1 }} }}\n'
+    )
+    return raw, f"/usr/share/alsa/alsa.conf:{conf}"
+
+
+def run_live_case(args: list[str], env_extra: dict[str, str], timeout_s: float = 40.0) -> dict:
+    """Run live_case.py with the given environment; its JSON result."""
+    env = dict(os.environ)
+    env.update(env_extra)
+    env["PYTHONPATH"] = os.pathsep.join([str(REPO), env.get("PYTHONPATH", "")])
+    done = subprocess.run(
+        [sys.executable, str(LIVE_CASE), *args],
+        env=env,
+        capture_output=True,
+        text=True,
+        timeout=timeout_s,
+        check=False,
+    )
+    if done.returncode != 0:
+        pytest.fail(f"live_case.py exited with {done.returncode}:\n{done.stderr[-2000:]}")
+    return json.loads(done.stdout)
+
+
+def project_analyser_available() -> bool:
+    try:
+        from dsp.analyser import StreamingAnalyser  # noqa: F401
+    except ImportError:
+        return False
+    return True
