@@ -131,7 +131,7 @@ class NoteMapping:
 @dataclass(frozen=True, slots=True)
 class _Tables:
     offsets_cents: tuple[float, ...]  # on the tonic, A = 0
-    base_cents: tuple[float, ...]  # on the tonic, tonic = 0 (|x| <= 50 for a search window)
+    base_semitones: tuple[float, ...]  # on the tonic, tonic = 0 (|x| <= 0.5 for a search window)
     a_shift_semitones: float  # base A offset / 100
     correction_cents: float
 
@@ -149,7 +149,7 @@ def _tables(settings: TuningSettings) -> _Tables:
     rh = 0.0 if settings.rh_percent is None else settings.rh_percent
     return _Tables(
         offsets_cents=offsets_from_a(base),
-        base_cents=base,
+        base_semitones=tuple(x / 100.0 for x in base),
         a_shift_semitones=base[9] / 100.0,
         correction_cents=correction_cents(settings.temp_c, settings.ref_temp_c, rh),
     )
@@ -199,7 +199,7 @@ def target_hz(midi: int, settings: TuningSettings) -> float:
     246.7605
     """
     off = _tables(settings).offsets_cents[midi % 12]
-    return settings.a4_hz * 2.0 ** ((midi - 69 + off / 100.0) / 12.0)
+    return settings.a4_hz * math.exp2((midi - 69 + off / 100.0) / 12.0)
 
 
 def target_hz_at_air(midi: int, settings: TuningSettings) -> float:
@@ -211,7 +211,7 @@ def target_hz_at_air(midi: int, settings: TuningSettings) -> float:
     >>> round(1200 * math.log2(target_hz_at_air(69, s) / 440.0), 1)
     17.5
     """
-    return target_hz(midi, settings) * 2.0 ** (-_tables(settings).correction_cents / 1200.0)
+    return target_hz(midi, settings) * math.exp2(-_tables(settings).correction_cents / 1200.0)
 
 
 def map_frequency(
@@ -256,8 +256,13 @@ def map_frequency(
         # nearest note is one of three neighbours.
         y = x + tables.a_shift_semitones
         r = round(y)
-        base = tables.base_cents
-        midi = min((r - 1, r, r + 1), key=lambda k: abs(y - k - base[k % 12] / 100.0))
+        base = tables.base_semitones
+        midi = r
+        best = abs(y - r - base[r % 12])
+        for k in (r - 1, r + 1):
+            d = abs(y - k - base[k % 12])
+            if d < best:
+                midi, best = k, d
     else:
         midi = int(locked_midi)
     position = midi + tables.offsets_cents[midi % 12] / 100.0
@@ -265,7 +270,7 @@ def map_frequency(
     return NoteMapping(
         midi=midi,
         note=note_name(midi, settings.flats),
-        target_hz=settings.a4_hz * 2.0 ** ((position - 69.0) / 12.0),
+        target_hz=settings.a4_hz * math.exp2((position - 69.0) / 12.0),
         cents_raw=cents - tables.correction_cents,
         cents=cents,
     )
