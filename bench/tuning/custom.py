@@ -72,7 +72,9 @@ class _Reporter:
         self.text = text
         self.source = source
 
-    def error(self, problem: str, fix: str, section: str | None = None, key: str | None = None) -> SettingsError:
+    def error(
+        self, problem: str, fix: str, section: str | None = None, key: str | None = None
+    ) -> SettingsError:
         line = _line_of(self.text, section, key)
         if line is None and section is not None:
             line = _line_of(self.text, None, section)
@@ -88,7 +90,9 @@ def _decode(text: str, source: str) -> dict[str, Any]:
         at = _DECODE_AT_RE.search(message)
         reason = _DECODE_AT_RE.sub("", message)
         if at is None:
-            raise SettingsError(f"{source}: not valid TOML ({reason}); check the file's syntax") from None
+            raise SettingsError(
+                f"{source}: not valid TOML ({reason}); check the file's syntax"
+            ) from None
         number = int(at.group(1))
         lines = text.splitlines()
         bad = lines[number - 1] if 0 < number <= len(lines) else ""
@@ -106,6 +110,46 @@ def _ratio(value: str) -> Fraction | None:
         return Fraction(value.strip())
     except (ValueError, ZeroDivisionError):
         return None
+
+
+_VALUE_HELP = {
+    "pitches": 'cents above C (e.g. 90.2) or a ratio in quotes (e.g. "16/15")',
+    "deviations": "cents from equal temperament (e.g. -3.9)",
+}
+
+
+def _value_cents(rep: _Reporter, section: str, key: str, pc: int, value: object) -> float:
+    """Cents above C of one table entry, or a one-line error naming its line."""
+    cents: float | None = None
+    if isinstance(value, str) and section == "pitches":
+        ratio = _ratio(value)
+        if ratio is not None and not 1 <= ratio < 2:
+            raise rep.error(
+                f"ratio {value!r} for {key} is outside the octave",
+                'give a ratio from 1 (inclusive) to 2 (exclusive), e.g. "9/8"',
+                section=section,
+                key=key,
+            )
+        if ratio is not None:
+            cents = 1200.0 * math.log2(ratio)
+    elif isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value):
+        cents = float(value) + (100.0 * pc if section == "deviations" else 0.0)
+    if cents is None:
+        what = "a number of cents or a ratio" if section == "pitches" else "a number of cents"
+        raise rep.error(
+            f"{key} = {value!r} is not {what}",
+            f"give {_VALUE_HELP[section]}",
+            section=section,
+            key=key,
+        )
+    if section == "pitches" and not 0.0 <= cents < 1200.0:
+        raise rep.error(
+            f"{key} = {value!r} cents is outside the octave",
+            "give cents above C from 0 to below 1200",
+            section=section,
+            key=key,
+        )
+    return cents
 
 
 def parse_temperament(text: str, source: str = "<temperament>") -> Temperament:
@@ -148,7 +192,9 @@ def parse_temperament(text: str, source: str = "<temperament>") -> Temperament:
 
     tid = data.get("id")
     if tid is None:
-        raise SettingsError(f'{source}: the id is missing; add a line such as id = "my-temperament"')
+        raise SettingsError(
+            f'{source}: the id is missing; add a line such as id = "my-temperament"'
+        )
     if not isinstance(tid, str) or not _ID_RE.match(tid):
         raise rep.error(
             f"id {tid!r} is not a plain identifier",
@@ -163,22 +209,33 @@ def parse_temperament(text: str, source: str = "<temperament>") -> Temperament:
         )
     for key in ("name", "description"):
         if key in data and not isinstance(data[key], str):
-            raise rep.error(f"{key} {data[key]!r} is not text", f'write {key} = "..." in quotes', key=key)
+            raise rep.error(
+                f"{key} {data[key]!r} is not text", f'write {key} = "..." in quotes', key=key
+            )
     name = data.get("name", tid)
     description = data.get("description", "Custom temperament.")
 
     present = [k for k in ("pitches", "deviations") if k in data]
     if len(present) != 1:
-        problem = "both [pitches] and [deviations] are given" if present else "no [pitches] or [deviations] table"
+        problem = (
+            "both [pitches] and [deviations] are given"
+            if present
+            else "no [pitches] or [deviations] table"
+        )
         raise rep.error(
             problem,
-            "give exactly one: [pitches] (cents above C, or ratios) or [deviations] (cents from equal)",
+            "give exactly one: [pitches] (cents above C, or ratios) or [deviations] "
+            "(cents from equal)",
             section=present[-1] if present else None,
         )
     section = present[0]
     table = data[section]
     if not isinstance(table, dict):
-        raise rep.error(f"{section} is not a table", f"write [{section}] on its own line, then one line per note", key=section)
+        raise rep.error(
+            f"{section} is not a table",
+            f"write [{section}] on its own line, then one line per note",
+            key=section,
+        )
 
     cents_above_c: dict[int, float] = {}
     key_of: dict[int, str] = {}
@@ -200,36 +257,7 @@ def parse_temperament(text: str, source: str = "<temperament>") -> Temperament:
                 key=key,
             )
         key_of[pc] = key
-        if isinstance(value, bool) or not isinstance(value, (int, float, str)):
-            value_cents = None
-        elif isinstance(value, str):
-            ratio = _ratio(value) if section == "pitches" else None
-            if ratio is None:
-                value_cents = None
-            elif not 1 <= ratio < 2:
-                raise rep.error(
-                    f"ratio {value!r} for {key} is outside the octave",
-                    "give a ratio from 1 (inclusive) to 2 (exclusive), e.g. \"9/8\"",
-                    section=section,
-                    key=key,
-                )
-            else:
-                value_cents = 1200.0 * math.log2(ratio)
-        else:
-            value_cents = float(value) + (100.0 * pc if section == "deviations" else 0.0)
-            if not math.isfinite(value_cents):
-                value_cents = None
-        if value_cents is None:
-            what = 'cents above C (e.g. 90.2) or a ratio in quotes (e.g. "16/15")' if section == "pitches" else "cents from equal temperament (e.g. -3.9)"
-            raise rep.error(f"{key} = {value!r} is not a number of cents" + (" or a ratio" if section == "pitches" else ""), f"give {what}", section=section, key=key)
-        if section == "pitches" and not 0.0 <= value_cents < 1200.0:
-            raise rep.error(
-                f"{key} = {value!r} cents is outside the octave",
-                "give cents above C from 0 to below 1200",
-                section=section,
-                key=key,
-            )
-        cents_above_c[pc] = value_cents
+        cents_above_c[pc] = _value_cents(rep, section, key, pc, value)
 
     missing = [pitch_class_name(p) for p in range(12) if p not in cents_above_c]
     if missing:

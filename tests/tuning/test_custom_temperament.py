@@ -171,3 +171,15 @@ def test_unreadable_file(tmp_path: Path) -> None:
 def test_parse_temperament_from_text() -> None:
     t = parse_temperament(WERCK_AS_DEVIATIONS, "inline")
     assert t.source == "inline" and t.id == "wren-wm3"
+
+
+def test_deviation_must_be_a_number(tmp_path: Path) -> None:
+    msg = _error(tmp_path, _replace(WERCK_AS_DEVIATIONS, "D = -7.82", 'D = "-7.82"'))
+    assert "line 6: D = '-7.82' is not a number of cents; give cents from equal temperament" in msg
+    msg = _error(tmp_path, _replace(WERCK_AS_DEVIATIONS, "D = -7.82", "D = true"))
+    assert "line 6: D = True is not a number of cents" in msg
+
+
+def test_cents_outside_the_octave(tmp_path: Path) -> None:
+    msg = _error(tmp_path, _replace(JUST_AS_RATIOS, 'B = "15/8"', "B = 1250"))
+    assert "line 17: B = 1250 cents is outside the octave; give cents above C from 0 to below 1200" in msg
