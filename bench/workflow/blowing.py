@@ -210,7 +210,7 @@ class BlowingCurve:
             slope = "no slope (level did not change)"
         else:
             slope = (
-                f"{self.slope_cents_per_db:+.2f} ± {self.slope_se_cents_per_db or 0.0:.2f} c/dB "
+                f"{self.slope_cents_per_db:+.3f} ± {self.slope_se_cents_per_db or 0.0:.3f} c/dB "
                 f"over {self.level_min_dbfs:.1f}..{self.level_max_dbfs:.1f} dBFS"
             )
         brk = (

@@ -257,8 +257,9 @@ def format_text_chart(chart: TuningChart, *, half_width_cents: int = 25) -> str:
         c = e.capture
         margin = f"{c.register_margin_db:+.1f}dB" if c.register_margin_db is not None else "-"
         extra = "  (not in this profile's plan)" if not e.expected else ""
+        cents = c.cents if abs(c.cents) >= 0.05 else 0.0  # no "-0.0"
         lines.append(
-            f"{name}{e.register:>3} {c.cents:>+7.1f} {c.cents_spread:>6.1f} {margin:>7}  "
+            f"{name}{e.register:>3} {cents:>+7.1f} {c.cents_spread:>6.1f} {margin:>7}  "
             f"{_bar(c.cents, c.cents_spread, half_width_cents)}{extra}"
         )
     n_checked = sum(1 for e in chart.entries if e.expected and e.capture is not None)
@@ -392,19 +393,19 @@ def draw_blowing_axes(ax, curves: Sequence[BlowingCurve]) -> None:  # type: igno
     colours = ["#1f5f8b", "#b5651d", "#2e7d32", "#6a1b9a", "#c62828"]
     for i, c in enumerate(curves):
         colour = colours[i % len(colours)]
-        ax.plot(c.levels_dbfs, c.cents, ".", color=colour, markersize=2, alpha=0.5)
+        ax.plot(c.levels_dbfs, c.cents, ".", color=colour, markersize=3, alpha=0.35)
         if c.slope_cents_per_db is not None:
             xs = [c.level_min_dbfs, c.level_max_dbfs]
             ys = [c.cents_at(x) for x in xs]
-            ax.plot(xs, ys, "-", color=colour, linewidth=1.5,
-                    label=f"{c.note}: {c.slope_cents_per_db:+.2f} ± {c.slope_se_cents_per_db or 0:.2f} c/dB")
+            ax.plot(xs, ys, "-", color="#222222", linewidth=0.9,
+                    label=f"{c.note}: {c.slope_cents_per_db:+.3f} ± {c.slope_se_cents_per_db or 0:.3f} c/dB")
         if c.break_level_dbfs is not None:
             ax.axvline(c.break_level_dbfs, color=colour, linestyle="--", linewidth=1.0,
                        label=f"{c.note} broke at {c.break_level_dbfs:.1f} dBFS")
     ax.axhspan(-GUIDE_CENTS, GUIDE_CENTS, color="#e6e6e6", zorder=0)
     ax.set_xlabel("level (dBFS)")
     ax.set_ylabel("cents (corrected)")
-    ax.set_title("blowing curve", fontsize=10)
+    ax.set_title("blowing curve: " + ", ".join(c.note for c in curves), fontsize=10)
     ax.grid(color="#dddddd", linewidth=0.5)
     ax.legend(loc="upper left", fontsize=8, frameon=False)
 

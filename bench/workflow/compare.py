@@ -243,7 +243,12 @@ def compare_captures(
 
 
 def _f(v: float | None, spec: str, width: int) -> str:
-    return f"{v:{spec}}".rjust(width) if v is not None and math.isfinite(v) else "-".rjust(width)
+    if v is None or not math.isfinite(v):
+        return "-".rjust(width)
+    text = f"{v:{spec}}"
+    if text.lstrip("+-").strip("0.") == "":  # no "-0.0"
+        text = f"{0.0:{spec}}"
+    return text.rjust(width)
 
 
 def format_comparison(cmp: Comparison) -> str:
@@ -320,33 +325,38 @@ def plot_comparison(cmp: Comparison, path: str | Path, *, title: str | None = No
     try:
         xs = list(range(len(both)))
         deltas = [c.delta_cents or 0.0 for c in both]
-        noise = [c.noise_cents or 0.0 for c in both]
-        colours = ["#c0392b" if c.moved else "#9bb7cc" for c in both]
-        ax.axhspan(-GUIDE_CENTS, GUIDE_CENTS, color="#eeeeee", zorder=0)
-        ax.axhline(0.0, color="#555555", linewidth=0.8)
-        ax.bar(xs, deltas, color=colours, edgecolor="#333333", linewidth=0.5, zorder=2)
-        ax.errorbar(xs, [0.0] * len(xs), yerr=[max(n, cmp.min_cents) for n in noise], fmt="none",
-                    ecolor="#555555", elinewidth=0.8, capsize=3, zorder=3)
+        noise = [max(c.noise_cents or 0.0, cmp.min_cents) for c in both]
+        colours = ["#c0392b" if c.moved else "#4f7ea8" for c in both]
+        ax.axhspan(-GUIDE_CENTS, GUIDE_CENTS, color="#f0f0f0", zorder=0, label=f"±{GUIDE_CENTS:g} c guide")
+        ax.bar(xs, [2 * n for n in noise], bottom=[-n for n in noise], width=0.8, color="#d9d9d9",
+               edgecolor="#b0b0b0", linewidth=0.5, zorder=1, label="noise band of the note")
+        ax.axhline(0.0, color="#555555", linewidth=0.8, zorder=2)
+        ax.bar(xs, deltas, width=0.45, color=colours, edgecolor="#333333", linewidth=0.5, zorder=3,
+               label="change (red: moved beyond noise)")
         for x, c in zip(xs, both, strict=True):
             if c.moved:
                 ax.annotate(f"{c.delta_cents:+.1f}", (x, c.delta_cents or 0.0), ha="center",
                             va="bottom" if (c.delta_cents or 0) >= 0 else "top", fontsize=8)
         lim = max([8.0] + [abs(d) * 1.25 for d in deltas] + [n * 1.2 for n in noise])
         ax.set_ylim(-lim, lim)
+        ax.set_xlim(-0.7, len(xs) - 0.3)
         ax.set_ylabel("change, cents (corrected)")
+        ax.legend(loc="upper left", fontsize=8, ncol=3, frameon=False)
         moved_names = ", ".join(f"{c.note} R{c.register}" for c in cmp.moved()) or "nothing"
         head = title or f"{cmp.after_name} against {cmp.before_name}"
-        ax.set_title(f"{head}\nmoved beyond noise (red): {moved_names}; "
-                     f"{_fmt_temps(cmp.before_settings)} / {_fmt_temps(cmp.after_settings)}",
-                     fontsize=9)
+        ax.set_title(f"{head}\nmoved beyond noise: {moved_names}; before {_fmt_temps(cmp.before_settings)}, "
+                     f"after {_fmt_temps(cmp.after_settings)}", fontsize=9)
         ax.grid(axis="y", color="#dddddd", linewidth=0.5)
         oe = [c.delta_odd_even_db if c.delta_odd_even_db is not None else 0.0 for c in both]
         ax2.axhline(0.0, color="#555555", linewidth=0.8)
         ax2.bar(xs, oe, color="#7a9a5a", edgecolor="#333333", linewidth=0.5)
         ax2.set_ylabel("change of\nodd/even, dB", fontsize=8)
         ax2.set_xticks(xs)
-        ax2.set_xticklabels([f"{c.note}\nR{c.register}" for c in both], fontsize=7,
-                            rotation=90 if len(both) > 14 else 0)
+        many = len(both) > 14
+        ax2.set_xticklabels([f"{c.note}{' ' if many else chr(10)}R{c.register}" for c in both], fontsize=7,
+                            rotation=90 if many else 0)
+        oe_lim = max([1.0] + [abs(v) * 1.25 for v in oe])
+        ax2.set_ylim(-oe_lim, oe_lim)
         ax2.grid(axis="y", color="#dddddd", linewidth=0.5)
         fig.tight_layout()
         path.parent.mkdir(parents=True, exist_ok=True)
