@@ -182,4 +182,4 @@ def test_deviation_must_be_a_number(tmp_path: Path) -> None:
 
 def test_cents_outside_the_octave(tmp_path: Path) -> None:
     msg = _error(tmp_path, _replace(JUST_AS_RATIOS, 'B = "15/8"', "B = 1250"))
-    assert "line 17: B = 1250 cents is outside the octave; give cents above C from 0 to below 1200" in msg
+    assert "line 18: B = 1250 cents is outside the octave; give cents above C from 0 to below 1200" in msg
