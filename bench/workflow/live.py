@@ -1,0 +1,208 @@
+"""The workflow while playing: captures, their file, the chart and the blowing curve, fed one
+reading at a time.
+
+:class:`LiveWorkflow` bundles a :class:`~bench.workflow.captures.CaptureDetector`, a
+:class:`~bench.workflow.blowing.BlowingCurveTracker` and the session's captures file. It is
+fed from the engine thread (``Engine(on_reading=workflow.push)``) or from the UI thread (new
+readings of ``engine.history(...)``); every public method takes a lock, so the UI may read
+from its own thread while the engine feeds. Nothing here waits on audio or the screen.
+"""
+
+from __future__ import annotations
+
+import threading
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+from bench.errors import LogError
+from bench.workflow.blowing import BlowingCurve, BlowingCurveTracker
+from bench.workflow.captures import (
+    Capture,
+    CaptureDetector,
+    CaptureFile,
+    CaptureThresholds,
+    captures_path_for,
+    read_captures,
+)
+from bench.workflow.chart import TuningChart, build_chart
+from bench.workflow.profiles import InstrumentProfile, get_profile
+
+__all__ = ["LiveWorkflow"]
+
+
+class LiveWorkflow:
+    """Captures, chart and blowing curve of a live session.
+
+    Parameters
+    ----------
+    profile : InstrumentProfile, str or None
+        Instrument (a family name, a .toml path or a profile); default alto.
+    log_path : Path or None
+        The session's frame log; captures go to ``<log stem>.captures.csv`` beside it
+        (appended to when it exists: a resumed session keeps its numbering). None: captures
+        are kept in memory only.
+    label : str
+        Session label put on new captures ("after undercutting hole 3").
+    auto : bool
+        Automatic capture of settled notes.
+    thresholds : CaptureThresholds or None
+    on_capture : callable(Capture), optional
+        Called (in the feeding thread) with each new or updated capture; a UI wraps it with
+        ``post_message``.
+
+    Raises
+    ------
+    LogError
+        The captures file cannot be written.
+    """
+
+    def __init__(
+        self,
+        *,
+        profile: InstrumentProfile | str | None = None,
+        log_path: str | Path | None = None,
+        label: str = "",
+        auto: bool = True,
+        thresholds: CaptureThresholds | None = None,
+        on_capture: Callable[[Capture], None] | None = None,
+    ) -> None:
+        self._lock = threading.Lock()
+        self.profile = get_profile(profile) if isinstance(profile, str) else (profile or get_profile("alto"))
+        self.on_capture = on_capture
+        self._file: CaptureFile | None = None
+        self.file_error: str | None = None
+        """Why the captures file stopped being written (None while all is well)."""
+        earlier: list[Capture] = []
+        if log_path is not None:
+            path = captures_path_for(log_path)
+            if path.exists() and path.stat().st_size > 0:
+                earlier = read_captures(path)
+            self._file = CaptureFile(path)
+        self.captures_path = self._file.path if self._file else None
+        self._earlier = earlier
+        self._detector = CaptureDetector(
+            profile=self.profile,
+            label=label,
+            auto=auto,
+            thresholds=thresholds,
+            first_index=max((c.index for c in earlier), default=0) + 1,
+        )
+        self._blowing = BlowingCurveTracker()
+        self._last_break: BlowingCurve | None = None
+
+    # -- switches ----------------------------------------------------------------------------
+
+    @property
+    def auto(self) -> bool:
+        """Automatic capture on or off."""
+        return self._detector.auto
+
+    @auto.setter
+    def auto(self, value: bool) -> None:
+        with self._lock:
+            self._detector.auto = bool(value)
+
+    @property
+    def label(self) -> str:
+        """Session label put on new captures."""
+        return self._detector.label
+
+    @label.setter
+    def label(self, value: str) -> None:
+        with self._lock:
+            self._detector.label = str(value)
+
+    # -- feeding -----------------------------------------------------------------------------
+
+    def push(self, reading: Any) -> list[Capture]:
+        """Feed one reading (``bench.reading.Reading``, a frame-log row or a FramePoint).
+
+        Returns the captures that are new or were updated (same index, a register margin
+        learnt from a break); each has been written to the captures file already.
+        """
+        with self._lock:
+            out: list[Capture] = []
+            cap = self._detector.push(reading)
+            if cap is not None:
+                out.append(cap)
+            out += self._detector.take_updates()
+            brk = self._blowing.push(reading)
+            if brk is not None:
+                self._last_break = brk
+            self._store(out)
+        self._tell(out)
+        return out
+
+    def capture_now(self, last_s: float | None = None) -> Capture | None:
+        """The capture key: capture the note sounding now from the last ``last_s`` seconds
+        (default 0.5 s), settled or not. None when nothing is sounding."""
+        with self._lock:
+            cap = self._detector.capture_now(last_s)
+            out = [cap] if cap is not None else []
+            self._store(out)
+        self._tell(out)
+        return cap
+
+    def finish(self) -> list[Capture]:
+        """The stream ended: close the current note (its capture, if any, is returned)."""
+        with self._lock:
+            cap = self._detector.finish()
+            self._blowing.finish()
+            out = [cap] if cap is not None else []
+            self._store(out)
+        self._tell(out)
+        return out
+
+    def close(self) -> None:
+        """Finish and close the captures file; safe to call twice."""
+        self.finish()
+        with self._lock:
+            if self._file is not None:
+                self._file.close()
+                self._file = None
+
+    # -- reading -----------------------------------------------------------------------------
+
+    def captures(self) -> list[Capture]:
+        """Every capture of the session (earlier runs of a resumed session first)."""
+        with self._lock:
+            return [*self._earlier, *self._detector.captures]
+
+    def chart(self, label: str | None = None) -> TuningChart:
+        """The tuning chart of the session so far (optionally of one label only)."""
+        return build_chart(self.captures(), self.profile, label=label)
+
+    def blowing_curve(self) -> BlowingCurve | None:
+        """Blowing curve of the note sounding now (or the last one played)."""
+        with self._lock:
+            return self._blowing.current()
+
+    def last_break(self) -> BlowingCurve | None:
+        """Blowing curve up to the newest register break seen, None before any."""
+        with self._lock:
+            return self._last_break
+
+    # -- internals ---------------------------------------------------------------------------
+
+    def _store(self, caps: list[Capture]) -> None:
+        if self._file is None:
+            return
+        try:
+            for cap in caps:
+                self._file.write(cap)
+        except LogError as exc:  # keep measuring and capturing in memory; the UI shows it
+            self.file_error = str(exc)
+            self._file.close()
+            self._file = None
+
+    def _tell(self, caps: list[Capture]) -> None:
+        if self.on_capture is not None:
+            for cap in caps:
+                self.on_capture(cap)
+
+    def __enter__(self) -> LiveWorkflow:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()

@@ -1,0 +1,134 @@
+"""The live workflow fed reading by reading, as the engine's on_reading hook would."""
+
+from __future__ import annotations
+
+import threading
+
+import pytest
+
+from bench.reading import Reading
+from bench.tuning import TuningSettings, map_frequency
+from bench.workflow.captures import captures_from_rows, read_captures
+from bench.workflow.live import LiveWorkflow
+from dsp.synth import NoteEvent
+
+from .sessions import analyse, render_events, scale_events
+
+OFFSETS = {65: 1.0, 67: -4.0, 69: 6.0}
+
+
+@pytest.fixture(scope="module")
+def readings():
+    from dsp.analyser import StreamingAnalyser
+
+    events = scale_events(list(OFFSETS), OFFSETS) + [
+        NoteEvent(349.2282, 3.0, level_dbfs=-30.0, crescendo_db=12.0, cents_per_db=0.5,
+                  jump_at_s=2.4, jump_kind="overblown")
+    ]
+    r = render_events(events, seed=4)
+    s = TuningSettings()
+    out = []
+    for f in StreamingAnalyser(48000).process(r.audio):
+        m = map_frequency(f.f0_hz, s) if f.f0_hz is not None else None
+        out.append(Reading(f, m, s, None, f.time_s, 0, None))
+    return r, out
+
+
+def test_live_captures_go_to_the_file_beside_the_log(tmp_path, readings):
+    r, rs = readings
+    log = tmp_path / "session-20260301-100000.csv"
+    told = []
+    with LiveWorkflow(profile="alto", log_path=log, label="as made", on_capture=told.append) as wf:
+        for reading in rs:
+            wf.push(reading)
+    side = tmp_path / "session-20260301-100000.captures.csv"
+    assert wf.captures_path == side
+    saved = read_captures(side)
+    first = {c.midi: c for c in saved}
+    assert [c.midi for c in saved][:3] == list(OFFSETS)
+    for m, off in OFFSETS.items():
+        assert first[m].cents == pytest.approx(off, abs=0.5)
+        assert first[m].label == "as made"
+    # the F4 break of the crescendo gives the earlier F4 its margin (an update, same index)
+    assert first[65].register_margin_db is not None
+    assert first[65].register_margin_db == pytest.approx(-30.0 + 12.0 * 2.4 / 3.0 - (-20.0), abs=0.6)
+    assert {c.index for c in told} == {c.index for c in saved}
+    # the break seen live
+    brk = wf.last_break()
+    assert brk is not None and brk.note == "F4" and brk.jump_kind == "overblown"
+    assert brk.slope_cents_per_db == pytest.approx(0.5, abs=0.03)
+    chart = wf.chart()
+    assert {e.midi for e in chart.checked()} >= set(OFFSETS)
+
+
+def test_resumed_session_continues_numbering(tmp_path, readings):
+    _, rs = readings
+    log = tmp_path / "s.csv"
+    with LiveWorkflow(log_path=log) as wf:
+        for reading in rs:
+            wf.push(reading)
+    n = len(wf.captures())
+    with LiveWorkflow(log_path=log, label="after undercutting hole 3") as wf2:
+        for reading in rs[:400]:
+            wf2.push(reading)
+        cap = wf2.capture_now()
+    new = wf2.captures()[n:]
+    assert new and new[0].index == n + 1 and new[0].label == "after undercutting hole 3"
+    assert cap is not None and cap is new[-1] and cap.source == "manual"
+    total = len(wf2.captures())
+    assert [c.index for c in read_captures(tmp_path / "s.captures.csv")] == list(range(1, total + 1))
+
+
+def test_auto_off_and_capture_key(readings):
+    _, rs = readings
+    wf = LiveWorkflow(auto=False)
+    got = []
+    for i, reading in enumerate(rs):
+        got += wf.push(reading)
+        if i == 150:  # 0.75 s into the first note (F4, +1 c)
+            key = wf.capture_now()
+    assert got == [c for c in got if c.source == "manual"]  # updates of the manual one only
+    assert key is not None and key.note == "F4" and key.cents == pytest.approx(1.0, abs=0.5)
+
+
+def test_live_equals_offline(readings):
+    _, rs = readings
+    wf = LiveWorkflow(profile="alto")
+    for reading in rs:
+        wf.push(reading)
+    wf.finish()
+    from bench.workflow.profiles import get_profile
+
+    assert wf.captures() == captures_from_rows(rs, profile=get_profile("alto"))
+
+
+def test_reading_from_another_thread_while_feeding(readings):
+    _, rs = readings
+    wf = LiveWorkflow()
+    errors = []
+
+    def feed():
+        try:
+            for reading in rs:
+                wf.push(reading)
+        except Exception as exc:  # noqa: BLE001
+            errors.append(exc)
+
+    t = threading.Thread(target=feed)
+    t.start()
+    while t.is_alive():
+        wf.chart()
+        wf.blowing_curve()
+    t.join()
+    assert errors == []
+    assert len(wf.captures()) >= 3
+
+
+def test_file_failure_keeps_capturing(tmp_path, readings):
+    _, rs = readings
+    wf = LiveWorkflow(log_path=tmp_path / "s.csv")
+    wf._file.close()  # the disk went away: writing now fails with LogError
+    for reading in rs:
+        wf.push(reading)
+    assert wf.file_error is not None and "closed" in wf.file_error
+    assert len(wf.captures()) >= 3
