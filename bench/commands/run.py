@@ -76,8 +76,9 @@ def _say(message: str) -> None:
     print(message, file=sys.stderr, flush=True)
 
 
-def build_source(args: argparse.Namespace, *, realtime_file: bool) -> Any:
-    """The source ``--input`` names; a missing microphone falls back to the demo (one line)."""
+def build_source(args: argparse.Namespace, *, realtime_file: bool) -> tuple[Any, str | None]:
+    """The source ``--input`` names, and a one-line notice when a missing microphone made
+    it fall back to the demo instrument (None otherwise)."""
     from bench.sources.base import DEFAULT_BLOCK_SIZE
 
     block = int(_positive("--block", args.block, "samples per block, e.g. 512", integer=True) or DEFAULT_BLOCK_SIZE)
@@ -91,7 +92,7 @@ def build_source(args: argparse.Namespace, *, realtime_file: bool) -> Any:
     if kind == "demo":
         from bench.sources.demo import DemoSource
 
-        return DemoSource(rate_i or 48000, block_size=block)
+        return DemoSource(rate_i or 48000, block_size=block), None
     if kind == "mic":
         from bench.sources.mic import MicSource, resolve_input_device
 
@@ -100,18 +101,17 @@ def build_source(args: argparse.Namespace, *, realtime_file: bool) -> Any:
         except DeviceError as exc:
             if args.device is not None:
                 raise
-            _say(f"{exc}; playing the demo instrument instead")
             from bench.sources.demo import DemoSource
 
-            return DemoSource(rate_i or 48000, block_size=block)
-        return MicSource(args.device, sample_rate=rate_i, block_size=block)
+            return DemoSource(rate_i or 48000, block_size=block), f"{exc}; playing the demo instrument instead"
+        return MicSource(args.device, sample_rate=rate_i, block_size=block), None
     if args.device is not None:
         raise SettingsError(f"--device {args.device!r} applies to --input mic, not to the file {kind}")
     if rate_i is not None:
         raise SettingsError(f"--rate {rate_i} applies to mic and demo; the file {kind} plays at its own rate")
     from bench.sources.wavfile import WavFileSource
 
-    return WavFileSource(Path(kind), block_size=block, realtime=realtime_file)
+    return WavFileSource(Path(kind), block_size=block, realtime=realtime_file), None
 
 
 def _log_file(args: argparse.Namespace) -> Path | None:
@@ -147,11 +147,13 @@ def run_command(args: argparse.Namespace) -> int:
 
         temp_source = AirTemperatureSource(args.temp_source)
         settings = settings_from_args(argparse.Namespace(temp=temp_source.read_temp_c()), settings)
-    source = build_source(args, realtime_file=not args.no_ui)
+    source, notice = build_source(args, realtime_file=not args.no_ui)
     log_path = _log_file(args)
     if args.no_ui:
+        if notice:
+            _say(notice)
         return _run_unattended(args, source, settings, log_path, log_rate, duration_s)
-    return _run_screen(args, source, settings, log_path, log_rate)
+    return _run_screen(args, source, settings, log_path, log_rate, notice)
 
 
 def _start_follower(args: argparse.Namespace, engine: Any, report) -> Any:
@@ -166,24 +168,27 @@ def _start_follower(args: argparse.Namespace, engine: Any, report) -> Any:
     return follower
 
 
-def _start_engine(make, source: Any, args: argparse.Namespace) -> Any:
-    """Build and start the engine; an unusable default microphone falls back to the demo."""
+def _start_engine(make, source: Any, args: argparse.Namespace) -> tuple[Any, str | None]:
+    """Build and start the engine; an unusable default microphone falls back to the demo.
+
+    Returns the engine and a one-line notice when it fell back (None otherwise).
+    """
     engine = make(source)
     try:
         engine.start()
     except DeviceError as exc:
         if args.input != "mic" or args.device is not None:
             raise
-        _say(f"{exc}; playing the demo instrument instead")
         from bench.sources.demo import DemoSource
 
         engine = make(DemoSource(source.sample_rate, block_size=getattr(source, "block_size", 512)))
         engine.start()
-    return engine
+        return engine, f"{exc}; playing the demo instrument instead"
+    return engine, None
 
 
-def _run_screen(args, source, settings, log_path, log_rate) -> int:
-    from bench.config import save_settings
+def _run_screen(args, source, settings, log_path, log_rate, notice) -> int:
+    from bench.config import default_log_dir
     from bench.engine import Engine
 
     try:
@@ -192,25 +197,25 @@ def _run_screen(args, source, settings, log_path, log_rate) -> int:
         if exc.name and exc.name.startswith("bench.ui"):
             raise BenchError("the screen is not installed in this build; use --no-ui") from None
         raise
-    engine = _start_engine(
+    # Started here so a device that cannot open is one line before the screen appears;
+    # the app connects its event handler through the settable ``on_event``.
+    engine, fallback = _start_engine(
         lambda src: Engine(src, settings, log_path=log_path, log_rows_per_s=log_rate), source, args
     )
+    notice = fallback or notice
     follower = _start_follower(args, engine, lambda message: None)
     try:
         accepted = inspect.signature(run_app).parameters
-        extras = {"log_dir": args.log_dir, "temp_follower": follower}
-        kwargs = {k: v for k, v in extras.items() if k in accepted}
-        result = run_app(engine, **kwargs)
+        extras = {
+            "log_dir": args.log_dir or default_log_dir(),
+            "temp_follower": follower,
+            "notice": notice,
+        }
+        result = run_app(engine, **{k: v for k, v in extras.items() if k in accepted})
     finally:
         if follower is not None:
             follower.stop()
         engine.stop()
-        try:
-            save_settings(engine.settings)
-        except OSError as exc:
-            _say(f"warning: settings not remembered: {exc}")
-    if engine.stats.log_rows and engine.stats.log_path is None and log_path is not None:
-        _say(f"log: {log_path}")
     return int(result) if isinstance(result, int) else 0
 
 
@@ -227,8 +232,8 @@ def _run_unattended(args, source, settings, log_path, log_rate, duration_s) -> i
             lines.put(("out", note.describe()))
 
     def on_event(event) -> None:  # engine thread
-        if event.kind in ("jump", "weakening"):
-            return  # shown in the held-note lines
+        if event.kind in ("jump", "weakening", "log_started"):
+            return  # shown in the held-note lines / the first line
         lines.put(("err", f"{event.kind.replace('_', ' ')}: {event.message}"))
 
     def drain() -> None:
@@ -242,13 +247,15 @@ def _run_unattended(args, source, settings, log_path, log_rate, duration_s) -> i
             else:
                 _say(text)
 
-    engine = _start_engine(
+    engine, fallback = _start_engine(
         lambda src: Engine(
             src, settings, log_path=log_path, log_rows_per_s=log_rate, on_event=on_event, on_reading=on_reading
         ),
         source,
         args,
     )
+    if fallback:
+        _say(fallback)
     follower = _start_follower(args, engine, lambda message: lines.put(("err", f"temperature: {message}")))
     _say(f"listening to {engine.source.description}; log {log_path}; Ctrl-C stops")
     wall0_s = time.monotonic()
