@@ -526,7 +526,8 @@ class CaptureDetector:
                 self._held_key = None
             return
         if p.register_state == "jumped":
-            key = self._held_key if p.held_f0_hz is None else (p.held_midi, p.settings)
+            held = p.held_midi
+            key = self._held_key if p.held_f0_hz is None or held is None else (held, p.settings)
             if key is not None and key == self._held_key and not self._held_broken:
                 brk = self._held_levels.break_level(p.time_s)
                 level = brk if brk is not None else p.level_dbfs
@@ -534,9 +535,12 @@ class CaptureDetector:
                 self._breaks[key] = level
                 self._fill_margins(key, level)
             return
-        key = (p.held_midi if p.held_f0_hz else p.midi, p.settings)
+        held_now = p.held_midi if p.held_f0_hz else p.midi
+        if held_now is None:
+            return
+        key = (held_now, p.settings)
         if key != self._held_key:
-            self._held_key = key  # type: ignore[assignment]
+            self._held_key = key
             self._held_broken = False
             self._held_levels.clear()
         self._held_levels.add(p.time_s, p.level_dbfs)

@@ -23,7 +23,7 @@ import math
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING, Literal
+from typing import TYPE_CHECKING, Any, Literal
 
 from bench.errors import BenchError, LogError
 from bench.framelog import safe_cell
@@ -159,11 +159,11 @@ def build_chart(
     """
     latest: dict[tuple[int, int], Capture] = {}
     flats = False
-    for cap in sorted(captures, key=lambda c: c.index):
-        if label is not None and cap.label != label:
+    for one in sorted(captures, key=lambda c: c.index):
+        if label is not None and one.label != label:
             continue
-        latest[(cap.midi, capture_register(cap, profile))] = cap
-        flats = flats or ("b" in cap.note[1:2])
+        latest[(one.midi, capture_register(one, profile))] = one
+        flats = flats or ("b" in one.note[1:2])
     keys = set(profile.expected())
     keys.update(latest)
     entries = []
@@ -327,7 +327,7 @@ _REGISTER_STYLE = {1: ("o", "#1f5f8b"), 2: ("s", "#b5651d"), 3: ("^", "#2e7d32")
 _OTHER_STYLE = ("D", "#6a1b9a")
 
 
-def agg_pyplot():  # type: ignore[no-untyped-def]
+def agg_pyplot() -> Any:
     """matplotlib.pyplot on the Agg backend (imported here only, never at package import)."""
     import matplotlib
 

@@ -11,6 +11,10 @@ import re
 
 from bench.errors import SettingsError
 
+from collections.abc import Callable
+
+_tuning_note_name: Callable[..., str] | None
+_tuning_parse_note: Callable[[str], int] | None
 try:  # the tuning model's parser and speller
     from bench.tuning.notes import note_name as _tuning_note_name
     from bench.tuning.notes import parse_note as _tuning_parse_note
@@ -80,4 +84,4 @@ def freq_of_midi(midi: int, a4_hz: float = 440.0) -> float:
     >>> round(freq_of_midi(65), 3)
     349.228
     """
-    return a4_hz * 2.0 ** ((midi - 69) / 12)
+    return float(a4_hz * 2.0 ** ((midi - 69) / 12))

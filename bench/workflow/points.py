@@ -181,15 +181,16 @@ def point_from_frame(frame: Any, mapping: Any | None, settings: Any) -> FramePoi
     )
     voiced = frame.f0_hz is not None and mapping is not None
     harm = frame.harmonics_db if voiced and frame.harmonics_db is not None else _NO_HARMONICS
+    m = mapping
     return FramePoint(
         time_s=float(frame.time_s),
         voiced=voiced,
         f0_hz=float(frame.f0_hz) if voiced else None,
-        midi=int(mapping.midi) if voiced else None,
-        note=str(mapping.note) if voiced else "",
-        target_hz=float(mapping.target_hz) if voiced else None,
-        cents_raw=float(mapping.cents_raw) if voiced else None,
-        cents=float(mapping.cents) if voiced else None,
+        midi=int(m.midi) if m is not None and voiced else None,
+        note=str(m.note) if m is not None and voiced else "",
+        target_hz=float(m.target_hz) if m is not None and voiced else None,
+        cents_raw=float(m.cents_raw) if m is not None and voiced else None,
+        cents=float(m.cents) if m is not None and voiced else None,
         level_dbfs=float(frame.level_dbfs),
         register_state=(frame.register or "") if voiced else "",
         jump=(frame.jump or "") if voiced else "",

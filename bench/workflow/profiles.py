@@ -398,7 +398,7 @@ def parse_profile_text(text: str, where: str = "<profile>") -> InstrumentProfile
                    f"missing note {outside[0]} lies outside the compass; list notes between lowest and highest")
     return InstrumentProfile(
         name=name,
-        title=table.get("title", name),
+        title=str(table.get("title", name)),
         lowest_midi=low,
         highest_midi=high,
         register_starts=starts,
