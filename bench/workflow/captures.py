@@ -438,14 +438,19 @@ class CaptureDetector:
         """End of the stream: close the current stretch; return its capture if any."""
         return self._end_run()
 
-    def capture_now(self, last_s: float | None = None) -> Capture | None:
+    def capture_now(self, last_s: float | None = None, *, last_frames: int | None = None) -> Capture | None:
         """Capture the current note from the last ``last_s`` seconds, settled or not.
 
         Uses the voiced frames of the newest note (same note, mode and settings) within
-        ``last_s`` (default ``thresholds.manual_s``) of the newest frame. Works with
-        :attr:`auto` on or off. Returns None when no voiced frame is at hand.
+        ``last_s`` (default ``thresholds.manual_s``) of the newest frame, or its last
+        ``last_frames`` frames when that is given. Works with :attr:`auto` on or off.
+        Returns None when no voiced frame is at hand.
         """
         span = self.thresholds.manual_s if last_s is None else float(last_s)
+        if last_frames is not None:
+            if last_frames < 1:
+                raise ValueError(f"last_frames {last_frames} must be >= 1")
+            span = max(self.thresholds.manual_s, 5.0)
         if not self._recent:
             return None
         newest = self._recent[-1]
@@ -458,6 +463,8 @@ class CaptureDetector:
             if q.time_s < newest.time_s - span or key_of(q) != key:
                 break
             picked.append(q)
+            if last_frames is not None and len(picked) >= last_frames:
+                break
         picked.reverse()
         return self._make(picked, "manual")
 

@@ -134,11 +134,12 @@ class LiveWorkflow:
         self._tell(out)
         return out
 
-    def capture_now(self, last_s: float | None = None) -> Capture | None:
+    def capture_now(self, last_s: float | None = None, *, last_frames: int | None = None) -> Capture | None:
         """The capture key: capture the note sounding now from the last ``last_s`` seconds
-        (default 0.5 s), settled or not. None when nothing is sounding."""
+        (default 0.5 s) or its last ``last_frames`` frames, settled or not. None when nothing
+        is sounding."""
         with self._lock:
-            cap = self._detector.capture_now(last_s)
+            cap = self._detector.capture_now(last_s, last_frames=last_frames)
             out = [cap] if cap is not None else []
             self._store(out)
         self._tell(out)

@@ -157,6 +157,19 @@ def test_manual_capture_with_auto_off(scale_rows):
     assert det.captures == [cap]
 
 
+def test_manual_capture_of_the_last_frames(scale_rows):
+    det = CaptureDetector(auto=False)
+    for row in scale_rows:
+        if float(row["time_s"]) > 2.5:  # inside the third note (A4, -9 c)
+            break
+        det.push(row)
+    cap = det.capture_now(last_frames=10)
+    assert cap is not None and cap.frames == 10 and cap.note == "A4"
+    assert cap.cents == pytest.approx(-9.0, abs=0.5)
+    with pytest.raises(ValueError, match=r"last_frames 0 must be >= 1"):
+        det.capture_now(last_frames=0)
+
+
 def test_label_changes_between_passes(scale_rows):
     det = CaptureDetector(profile=ALTO, label="before")
     half = len(scale_rows) // 2
