@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import collections
 import dataclasses
+import math
 import threading
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
@@ -183,15 +184,15 @@ class BenchApp(App[int]):
             self.event = event
             """The :class:`bench.engine.EngineEvent`."""
 
-    reading: reactive[Reading | None] = reactive(None, always_update=True, init=False)
-    """The reading on screen."""
-    settings: reactive[TuningSettings | None] = reactive(None, init=False)
+    reading: reactive[Reading | None] = reactive(None, always_update=True, init=False, repaint=False)
+    """The reading on screen (the views repaint themselves: no repaint of the whole app)."""
+    settings: reactive[TuningSettings | None] = reactive(None, init=False, repaint=False)
     """Settings the engine applies now."""
-    held: reactive[bool] = reactive(False, init=False)
+    held: reactive[bool] = reactive(False, init=False, repaint=False)
     """True while the view is held still (the engine keeps measuring and logging)."""
-    show_raw: reactive[bool] = reactive(False, init=False)
+    show_raw: reactive[bool] = reactive(False, init=False, repaint=False)
     """True when the big figure shows raw cents instead of air-corrected ones."""
-    locked_note: reactive[str | None] = reactive(None, init=False)
+    locked_note: reactive[str | None] = reactive(None, init=False, repaint=False)
     """Note the target is locked to, or None."""
 
     def __init__(
@@ -362,6 +363,8 @@ class BenchApp(App[int]):
     # -- watchers: push display state into the widgets ---------------------------------
 
     def watch_reading(self, reading: Reading | None) -> None:
+        # Values are rounded to what each view can show, so that a view whose figure has
+        # not changed is not drawn again (a reactive set to an equal value does nothing).
         if reading is None:
             return
         frame, mapping = reading.frame, reading.mapping
@@ -372,21 +375,24 @@ class BenchApp(App[int]):
         if mapping is not None:
             shown = mapping.cents_raw if self.show_raw else mapping.cents
             note.note = mapping.note
-            cents_face.cents = shown
-            scale.cents = shown
-            detail.cents, detail.cents_raw = mapping.cents, mapping.cents_raw
-            detail.target_hz = mapping.target_hz
-            detail.f0_hz = frame.f0_hz
+            cents_face.cents = float(round(shown))
+            scale.cents = round(shown, 1)
+            detail.cents, detail.cents_raw = round(mapping.cents, 1), round(mapping.cents_raw, 1)
+            detail.target_hz = round(mapping.target_hz, 2)
+            detail.f0_hz = None if frame.f0_hz is None else round(frame.f0_hz, 2)
         else:
             scale.cents = None
         banner = self._view(RegisterBanner)
         banner.register, banner.jump = frame.register, frame.jump
         bars = self._view(HarmonicBars)
         if frame.harmonics_db is not None or not sounding:
-            bars.harmonics_db = frame.harmonics_db
-            bars.odd_even_db = frame.odd_even_db
+            bars.harmonics_db = (
+                None if frame.harmonics_db is None else tuple(round(h) for h in frame.harmonics_db)
+            )
+            bars.odd_even_db = None if frame.odd_even_db is None else round(frame.odd_even_db, 1)
         bar = self._view(SessionBar)
-        bar.level_dbfs = frame.level_dbfs
+        level = frame.level_dbfs
+        bar.level_dbfs = round(level, 1) if math.isfinite(level) else level
         bar.clipped = frame.clipped
         bar.dropped_blocks = reading.dropped_blocks
         bar.log_path = reading.log_path

@@ -4,15 +4,16 @@ from __future__ import annotations
 
 from rich.text import Text
 from textual.reactive import reactive
-from textual.widget import Widget
+from bench.ui.lineview import LineView
 
+from bench.ui.glyphs import text_from_cells
 from bench.ui.readout import offset_side
 
 SCALE_HALF_CENTS = 50.0
 """The scale runs from -50 to +50 cents: half a tempered semitone either side."""
 
 
-class DeviationScale(Widget):
+class DeviationScale(LineView):
     """Three lines: the words FLAT / SHARP, the scale with its marker, and the cent labels.
 
     The bar grows from the centre towards the marker, so the side can be read from its shape
@@ -78,9 +79,7 @@ class DeviationScale(Widget):
             else:
                 cells[centre + pos] = "\u2588"
             styles[centre + pos] = lit
-        scale = Text(no_wrap=True, overflow="crop")
-        for ch, st in zip(cells, styles):
-            scale.append(ch, st)
+        scale = text_from_cells(cells, styles)
 
         label_cells = [" "] * width
         for tick_cents in (-50, -25, 0, 25, 50):

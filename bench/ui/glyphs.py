@@ -87,3 +87,19 @@ def _glyph(ch: str) -> tuple[str, ...]:
     """Grid of one character; unknown characters are blank."""
     ch = _ALIASES.get(ch, ch)
     return _GLYPHS.get(ch) or _GLYPHS.get(ch.upper()) or _GLYPHS[" "]
+
+
+def text_from_cells(chars: list[str], styles: list) -> "Text":
+    """One line of Rich text from per-cell characters and styles, one span per run of a style.
+
+    Fewer spans make the screen cheaper to draw than one span per cell.
+    """
+    from rich.text import Text
+
+    line = Text(no_wrap=True, overflow="crop")
+    start = 0
+    for i in range(1, len(chars) + 1):
+        if i == len(chars) or styles[i] != styles[start]:
+            line.append("".join(chars[start:i]), styles[start])
+            start = i
+    return line

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from rich.text import Text
 from textual.reactive import reactive
-from textual.widget import Widget
+from bench.ui.lineview import LineView
 
 FLOOR_DB = -40.0
 """Bottom of the bar scale, dB relative to the strongest harmonic."""
@@ -13,7 +13,7 @@ _ODD_INK, _EVEN_INK = "\u2588", "\u2592"  # solid block, medium shade
 _BAR_WIDTH = 2
 
 
-class HarmonicBars(Widget):
+class HarmonicBars(LineView):
     """Bars of H1..H8 in dB relative to the strongest, with the odd/even balance figure.
 
     Odd harmonics are drawn solid and labelled with their number in one colour; even ones

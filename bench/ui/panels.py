@@ -7,7 +7,7 @@ import math
 from rich.style import Style
 from rich.text import Text
 from textual.reactive import reactive
-from textual.widget import Widget
+from bench.ui.lineview import LineView
 
 from bench.tuning import TuningSettings
 
@@ -17,7 +17,7 @@ def _signed(value: float | None, unit: str, digits: int = 1) -> str:
     return "--" if value is None else f"{value:+.{digits}f} {unit}"
 
 
-class SessionBar(Widget):
+class SessionBar(LineView):
     """One line: the source and its state, input level and clipping, dropped input, log file,
     the held view."""
 
@@ -76,7 +76,7 @@ class SessionBar(Widget):
         return text
 
 
-class SettingsPanel(Widget):
+class SettingsPanel(LineView):
     """The tuning in force: temperament and tonic, A4 and its standard, air and reference
     temperature with the correction they make, and the target lock."""
 
@@ -118,7 +118,7 @@ class SettingsPanel(Widget):
         return Text("\n").join(lines)
 
 
-class DetailLine(Widget):
+class DetailLine(LineView):
     """One line under the scale: the other cents figure, heard and target frequency, lock."""
 
     DEFAULT_CSS = "DetailLine { height: 1; }"

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from rich.text import Text
 from textual.reactive import reactive
-from textual.widget import Widget
+from bench.ui.lineview import LineView
 
 from bench.ui.glyphs import GLYPH_ROWS, glyph_width, render_big
 
@@ -49,7 +49,7 @@ def _big(text: str, width: int, height: int) -> Text:
     return Text("\n".join(line.center(width) for line in lines), no_wrap=True, overflow="crop")
 
 
-class NoteFace(Widget):
+class NoteFace(LineView):
     """The note name in block letters, e.g. ``F#5``; dimmed while nothing sounds."""
 
     DEFAULT_CSS = "NoteFace { height: 5; }"
@@ -66,13 +66,13 @@ class NoteFace(Widget):
         return _big(self.note or "-", *self.content_size)
 
 
-class CentsFace(Widget):
+class CentsFace(LineView):
     """The offset from the target in whole cents, block digits, coloured and classed by side."""
 
     DEFAULT_CSS = "CentsFace { height: 5; }"
 
     cents: reactive[float | None] = reactive(None)
-    """Offset shown, cents; None before the first note."""
+    """Offset shown, cents (the screen gives whole cents); None before the first note."""
     sounding: reactive[bool] = reactive(False)
 
     def watch_cents(self, cents: float | None) -> None:

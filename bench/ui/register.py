@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 from rich.text import Text
 from textual.reactive import reactive
-from textual.widget import Widget
+from bench.ui.lineview import LineView
 
 
 @dataclass(frozen=True, slots=True)
@@ -54,7 +54,7 @@ def register_look(register: str | None, jump: str | None) -> str:
     return register if register in ("steady", "weakening") else "silent"
 
 
-class RegisterBanner(Widget):
+class RegisterBanner(LineView):
     """Full-width banner of the register monitor.
 
     Each state has its own words, border pattern and colour: a plain line while settled,

@@ -4,7 +4,9 @@ from __future__ import annotations
 
 from rich.text import Text
 from textual.reactive import reactive
-from textual.widget import Widget
+from bench.ui.lineview import LineView
+
+from bench.ui.glyphs import text_from_cells
 
 TRAIL_HALF_CENTS = 25.0
 """The trail spans -25..+25 cents; points beyond are pinned to the edge row."""
@@ -14,7 +16,7 @@ _BRAILLE_BASE = 0x2800
 _DOT_BITS = ((0x01, 0x02, 0x04, 0x40), (0x08, 0x10, 0x20, 0x80))
 
 
-class PitchTrail(Widget):
+class PitchTrail(LineView):
     """Offset in cents against time; newest on the right, ``window_s`` seconds wide.
 
     Each terminal cell holds 2 x 4 braille dots. Gaps where nothing sounded stay blank.
@@ -59,16 +61,20 @@ class PitchTrail(Widget):
                 label = f"{-TRAIL_HALF_CENTS:+3.0f}"
             else:
                 label = ""
-            line = Text(f"{label:>{label_w - 1}} \u2502", style=axis, no_wrap=True, overflow="crop")
+            chars = [f"{label:>{label_w - 1}} \u2502"]
+            styles = [axis]
             for c in range(cols):
                 bits = grid[r][c]
                 if bits:
-                    line.append(chr(_BRAILLE_BASE + bits), trace)
+                    chars.append(chr(_BRAILLE_BASE + bits))
+                    styles.append(trace)
                 elif r == zero_row:
-                    line.append("\u2508", zero)
+                    chars.append("\u2508")
+                    styles.append(zero)
                 else:
-                    line.append(" ")
-            lines.append(line)
+                    chars.append(" ")
+                    styles.append(axis)
+            lines.append(text_from_cells(chars, styles))
         foot = f"-{self.window_s:.0f} s".ljust(cols - 2) + "now"
         lines.append(Text(" " * label_w + foot, style=axis, no_wrap=True, overflow="crop"))
         return Text("\n").join(lines)

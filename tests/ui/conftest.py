@@ -39,3 +39,12 @@ def make_app(tmp_path: Path):
         return RecordingApp(engine, **kwargs)
 
     return make
+
+
+async def until(pilot, condition, timeout_s: float = 10.0) -> None:
+    """Let the app run until ``condition()`` holds; fail after ``timeout_s`` of waiting."""
+    waited = 0.0
+    while not condition():
+        await pilot.pause(0.05)
+        waited += 0.05
+        assert waited < timeout_s, "the screen did not get there in time"

@@ -15,6 +15,7 @@ from bench.tuning.temperaments import TEMPERAMENT_IDS, get_temperament
 from bench.ui.app import BenchApp, EventRelay, run_app
 from bench.ui.dialogs import ValueDialog
 from bench.ui.panels import SettingsPanel
+from conftest import until
 from ui_fakes import FakeEngine, FakeEvent
 
 SIZE = (100, 30)
@@ -363,8 +364,7 @@ def test_settings_changed_elsewhere_are_shown(engine, make_app):
         app = make_app(engine)
         async with app.run_test(size=SIZE) as pilot:
             engine.set_settings(TuningSettings(temp_c=24.0))  # e.g. a temperature sensor
-            await pilot.pause(0.4)
-            assert "24.0\u00b0C" in panel_text(app)
+            await until(pilot, lambda: "24.0\u00b0C" in panel_text(app))
 
     run(scenario())
 
