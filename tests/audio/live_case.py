@@ -9,7 +9,8 @@ cannot change inside one process.
 the engine for the interpreter lock) plays ``--wav`` into the engine's input ports once
 they appear, after ``--lead-in`` seconds of silence, and notes the wall time
 (CLOCK_MONOTONIC, shared by both processes) of the process cycle that carried the first
-sample. Run as ``python live_case.py feed WAV LEAD_IN_S`` it is that feeder. ``alsa``: the ``--device`` (an ALSA file
+sample. Run as ``python live_case.py feed WAV LEAD_IN_S [LOOP_S]`` it is that feeder (with
+``LOOP_S`` it repeats the WAV for that many seconds). ``alsa``: the ``--device`` (an ALSA file
 plugin) floods the input; nothing is fed.
 """
 
@@ -30,14 +31,17 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 class Feeder:
     """A JACK client writing a signal to its output port, connected to the reader's inputs."""
 
-    def __init__(self, audio: np.ndarray, lead_in_s: float) -> None:
+    def __init__(self, audio: np.ndarray, lead_in_s: float, loop_s: float | None = None) -> None:
         import jack
 
         self.jack = jack
         self.client = jack.Client("bench-feeder", no_start_server=True)
         self.rate = self.client.samplerate
         self.port = self.client.outports.register("out")
-        self.audio = audio.astype(np.float32)
+        audio = audio.astype(np.float32)
+        if loop_s is not None:
+            audio = np.tile(audio, int(np.ceil(loop_s * self.rate / len(audio))))[: int(loop_s * self.rate)]
+        self.audio = audio
         self.lead_in_frames = int(lead_in_s * self.rate)
         self.pos = -1  # -1: waiting for a connection
         self.onset_wall_s: float | None = None
@@ -139,12 +143,13 @@ class AubioAnalyser:
         self._fed = 0
 
 
-def feed(wav: Path, lead_in_s: float) -> int:
+def feed(wav: Path, lead_in_s: float, loop_s: float | None = None) -> int:
     """The feeder process: connect, play, print one JSON line with its timings, exit."""
     import soundfile as sf
 
     audio, _ = sf.read(wav, dtype="float32")
-    feeder = Feeder(audio, lead_in_s)
+    feeder = Feeder(audio, lead_in_s, loop_s)
+    audio = feeder.audio
     try:
         connected = feeder.connect_when_ready()
         deadline = time.monotonic() + lead_in_s + len(audio) / feeder.rate + 10.0
@@ -160,7 +165,7 @@ def feed(wav: Path, lead_in_s: float) -> int:
 def main() -> int:
     ap = argparse.ArgumentParser()
     if len(sys.argv) > 1 and sys.argv[1] == "feed":
-        return feed(Path(sys.argv[2]), float(sys.argv[3]))
+        return feed(Path(sys.argv[2]), float(sys.argv[3]), float(sys.argv[4]) if len(sys.argv) > 4 else None)
     ap.add_argument("mode", choices=["jack", "alsa"])
     ap.add_argument("--device", required=True)
     ap.add_argument("--wav", type=Path)
@@ -170,6 +175,8 @@ def main() -> int:
     ap.add_argument("--block", type=int, default=512)
     ap.add_argument("--rate", type=int, default=48000)
     ap.add_argument("--analyser", choices=["project", "aubio"], default="project")
+    ap.add_argument("--loop", type=float, default=None, help="repeat the WAV for this many seconds")
+    ap.add_argument("--no-readings", action="store_true", help="leave the per-reading list out")
     args = ap.parse_args()
 
     from bench.engine import Engine
@@ -200,7 +207,8 @@ def main() -> int:
         import subprocess
 
         feeder = subprocess.Popen(
-            [sys.executable, __file__, "feed", str(args.wav), str(args.lead_in)],
+            [sys.executable, __file__, "feed", str(args.wav), str(args.lead_in)]
+            + ([str(args.loop)] if args.loop else []),
             stdout=subprocess.PIPE,
             text=True,
         )
@@ -210,7 +218,7 @@ def main() -> int:
         result["start_s"] = time.monotonic() - wall0
         result["description"] = source.description
         result["input_latency_s"] = source.input_latency_s
-        deadline = time.monotonic() + args.seconds
+        deadline = time.monotonic() + args.seconds + (args.loop or 0.0)
         while time.monotonic() < deadline and engine.running:
             if feeder is not None and feeder.poll() is not None:
                 time.sleep(0.3)  # let the tail of the feed reach the readings
@@ -250,7 +258,11 @@ def main() -> int:
         hop_s=(readings[1][1] - readings[0][1]) if len(readings) > 1 else None,
         input_seconds=readings[-1][1] if readings else 0.0,
     )
-    result["readings"] = readings
+    if readings and result.get("onset_wall_s"):
+        onset = result["onset_wall_s"]
+        first = next((r for r in readings if r[0] > onset and r[2] is not None), None)
+        result["first_voiced_latency_s"] = first[0] - onset if first else None
+    result["readings"] = [] if args.no_readings else readings
     json.dump(result, sys.stdout)
     return 0
 
