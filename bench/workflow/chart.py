@@ -264,9 +264,12 @@ def format_text_chart(chart: TuningChart, *, half_width_cents: int = 25) -> str:
         )
     n_checked = sum(1 for e in chart.entries if e.expected and e.capture is not None)
     n_expected = sum(1 for e in chart.entries if e.expected)
+    n_extra = sum(1 for e in chart.entries if e.status == "extra")
     far = [e for e in chart.checked() if abs(e.capture.cents) > GUIDE_CENTS]  # type: ignore[union-attr]
     lines.append(
-        f"{n_checked} of {n_expected} notes checked; "
+        f"{n_checked} of {n_expected} notes checked"
+        + (f" (and {n_extra} outside the profile's plan)" if n_extra else "")
+        + "; "
         f"{len(far)} outside ±{GUIDE_CENTS:g} c"
         + (": " + ", ".join(f"{e.note} R{e.register}" for e in far) if far else "")
     )
@@ -357,17 +360,21 @@ def draw_chart_axes(ax, chart: TuningChart) -> None:  # type: ignore[no-untyped-
     n = len(regs)
     ymax = 15.0
     for k, reg in enumerate(regs):
-        es = [e for e in chart.entries if e.register == reg and e.capture is not None]
-        if not es:
-            continue
         marker, colour = _REGISTER_STYLE.get(reg, _OTHER_STYLE)
         dx = (k - (n - 1) / 2) * 0.12  # keep registers sharing a note apart
-        xs = [xpos[e.midi] + dx for e in es]
-        ys = [e.capture.cents for e in es]  # type: ignore[union-attr]
-        err = [e.capture.cents_spread for e in es]  # type: ignore[union-attr]
-        ax.errorbar(xs, ys, yerr=err, fmt=marker, color=colour, ecolor=colour, elinewidth=1.2,
-                    capsize=3, markersize=6, linestyle="none", label=f"register {reg}", zorder=3)
-        ymax = max(ymax, *(abs(y) + e for y, e in zip(ys, err, strict=True)))
+        for planned in (True, False):
+            es = [e for e in chart.entries
+                  if e.register == reg and e.capture is not None and e.expected == planned]
+            if not es:
+                continue
+            xs = [xpos[e.midi] + dx for e in es]
+            ys = [e.capture.cents for e in es]  # type: ignore[union-attr]
+            err = [e.capture.cents_spread for e in es]  # type: ignore[union-attr]
+            label = f"register {reg}" if planned else f"register {reg}, outside the profile's plan"
+            ax.errorbar(xs, ys, yerr=err, fmt=marker, color=colour, ecolor=colour, elinewidth=1.2,
+                        capsize=3, markersize=6, linestyle="none", label=label, zorder=3,
+                        markerfacecolor=colour if planned else "white")
+            ymax = max(ymax, *(abs(y) + e for y, e in zip(ys, err, strict=True)))
     unchecked = chart.unchecked()
     if unchecked:
         trans = blended_transform_factory(ax.transData, ax.transAxes)
@@ -384,6 +391,13 @@ def draw_chart_axes(ax, chart: TuningChart) -> None:  # type: ignore[no-untyped-
     names = {e.midi: e.note for e in chart.entries}
     ax.set_xticklabels([names[m] for m in midis], rotation=90 if len(midis) > 14 else 0, fontsize=8)
     ax.set_ylabel("cents (corrected)")
+    off = chart.profile.written_offset_semitones
+    if off:
+        way = "lower" if off > 0 else "higher"
+        what = "an octave" if abs(off) == 12 else f"{abs(off)} semitones"
+        ax.set_xlabel(f"sounding note (written {what} {way}, {chart.profile.clef} clef)", fontsize=8)
+    else:
+        ax.set_xlabel("note (sounding = written)", fontsize=8)
     ax.grid(axis="y", color="#dddddd", linewidth=0.5)
     ax.legend(loc="upper left", fontsize=8, ncol=4, frameon=False)
 
