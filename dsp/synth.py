@@ -24,6 +24,7 @@ from __future__ import annotations
 
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
+from functools import lru_cache
 from typing import Literal
 
 import numpy as np
@@ -498,18 +499,27 @@ class _GridNoise:
 
 def _noise_gain(sos: NDArray[np.float64]) -> float:
     """RMS gain of a filter for unit white noise (root energy of its impulse response)."""
+    return _noise_gain_cached(sos.tobytes(), sos.shape[0])
+
+
+@lru_cache(maxsize=16)
+def _noise_gain_cached(sos_bytes: bytes, n_sections: int) -> float:
+    """Cached body of _noise_gain."""
+    sos = np.frombuffer(sos_bytes, dtype=np.float64).reshape(n_sections, 6).copy()
     impulse = np.zeros(1 << 16)
     impulse[0] = 1.0
     h = scipy.signal.sosfilt(sos, impulse)
     return float(np.sqrt(np.sum(h * h)))
 
 
+@lru_cache(maxsize=8)
 def _breath_sos(sample_rate: float) -> NDArray[np.float64]:
     """Band of the breath noise: 400 Hz to 9 kHz (or 0.42 fs), 2nd order each side."""
     hi = min(9000.0, 0.42 * sample_rate)
     return np.asarray(scipy.signal.butter(2, [400.0, hi], btype="bandpass", fs=sample_rate, output="sos"))
 
 
+@lru_cache(maxsize=8)
 def _room_sos(sample_rate: float) -> NDArray[np.float64]:
     """Room noise colour: low-passed at 800 Hz (air handling, traffic)."""
     return np.asarray(scipy.signal.butter(2, 800.0, btype="lowpass", fs=sample_rate, output="sos"))
