@@ -527,7 +527,7 @@ class BenchApp(App[int]):
     # -- typed values ---------------------------------------------------------------------
 
     def action_type_a4(self) -> None:
-        names = ", ".join(std.name for std in PITCH_STANDARDS[:3])
+        names = ", ".join(std.name for std in PITCH_STANDARDS if std.a4_hz in (415.0, 440.0))
         self.push_screen(
             ValueDialog(
                 "A4 in Hz, or a pitch standard name",

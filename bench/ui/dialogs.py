@@ -37,7 +37,8 @@ class ValueDialog(ModalScreen[str | None]):
         with Vertical(id="value-dialog"):
             yield Label(self._prompt, id="value-prompt")
             yield Input(value=self._value, select_on_focus=True, id="value-input")
-            yield Label(f"{self._hint}  \u00b7  Enter to apply, Esc to leave", id="value-hint")
+            yield Label(self._hint, id="value-hint")
+            yield Label("Enter applies  \u00b7  Esc leaves it as it was", id="value-keys")
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
         event.stop()

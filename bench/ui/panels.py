@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 from rich.style import Style
 from rich.text import Text
@@ -45,6 +46,14 @@ class SessionBar(LineView):
     """True while the user holds the view still."""
 
     def render(self) -> Text:
+        # Short, vital items first (state, level, drops, log); the long source description
+        # last, where the line may cut it. A log path too long for the line shows its name.
+        text = self._line(self.log_path)
+        if self.log_path and text.cell_len > self.content_size.width:
+            text = self._line(Path(self.log_path).name)
+        return text
+
+    def _line(self, log_shown: str | None) -> Text:
         label = self.get_component_rich_style("session-bar--label")
         value = self.get_component_rich_style("session-bar--value")
         alarm = self.get_component_rich_style("session-bar--alarm")
@@ -53,10 +62,8 @@ class SessionBar(LineView):
         if self.held:
             text.append(" HELD ", alarm)
             text.append(" ")
-        text.append("source ", label)
-        text.append(f"{self.source or '?'}", value)
         state_ok = self.state in ("running", "")
-        text.append(f" {self.state}" if self.state else "", value if state_ok else alarm)
+        text.append(self.state or "--", value if state_ok else alarm)
         text.append("  in ", label)
         if self.level_dbfs is None or not math.isfinite(self.level_dbfs):
             text.append("silent" if self.level_dbfs is not None else "--", value)
@@ -68,11 +75,13 @@ class SessionBar(LineView):
         text.append("  dropped ", label)
         text.append(str(self.dropped_blocks), alarm if self.dropped_blocks else value)
         text.append("  log ", label)
-        if self.log_path:
+        if log_shown:
             text.append(" REC ", on)
-            text.append(f" {self.log_path}", value)
+            text.append(f" {log_shown}", value)
         else:
             text.append("off", value)
+        text.append("  source ", label)
+        text.append(self.source or "?", value)
         return text
 
 
