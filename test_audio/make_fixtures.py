@@ -35,6 +35,13 @@ def _f(x: float) -> float | None:
     return None if not math.isfinite(x) else round(float(x), 6)
 
 
+def _json_safe(v: object) -> object:
+    """Strict JSON has no inf/nan: write them as the strings "inf", "-inf", "nan"."""
+    if isinstance(v, float) and not math.isfinite(v):
+        return str(v)
+    return v
+
+
 def _sidecar(name: str, r: Rendering | None, *, sample_rate: int, channels: int, subtype: str,
              description: str, options: dict, n_samples: int, extra: dict | None = None) -> dict:
     doc: dict = {
@@ -45,7 +52,7 @@ def _sidecar(name: str, r: Rendering | None, *, sample_rate: int, channels: int,
         "subtype": subtype,
         "n_samples": n_samples,
         "duration_s": n_samples / sample_rate,
-        "render_options": options,
+        "render_options": {k: _json_safe(v) for k, v in options.items()},
         "truth_hop_s": TRUTH_HOP_S,
         "notes": [],
         "jumps": [],
@@ -86,7 +93,7 @@ def _write_wav(path: Path, data: np.ndarray, sample_rate: int, subtype: str) -> 
 def _write(name: str, data: np.ndarray, sample_rate: int, subtype: str, doc: dict) -> None:
     path = HERE / f"{name}.wav"
     _write_wav(path, data, sample_rate, subtype)
-    (HERE / f"{name}.json").write_text(json.dumps(doc, indent=1) + "\n")
+    (HERE / f"{name}.json").write_text(json.dumps(doc, indent=1, allow_nan=False) + "\n")
     print(f"wrote {path.relative_to(HERE.parent)} ({path.stat().st_size} bytes)")
 
 
