@@ -293,3 +293,22 @@ def test_bad_options():
         render([NoteEvent(440.0, 1.0)], 48000, reverb_s=-1)
     with pytest.raises(TypeError, match="expected NoteEvent"):
         render([(440.0, 1.0)], 48000)  # type: ignore[list-item]
+
+
+def test_committed_fixture_matches_its_sidecar():
+    # test_audio/ is written by make_fixtures.py from this synth: the clean A4 file's DFT peak
+    # and RMS level must be what its JSON sidecar says.
+    import json
+    from pathlib import Path
+
+    import soundfile as sf
+
+    here = Path(__file__).resolve().parents[2] / "test_audio"
+    doc = json.loads((here / "steady_a4_48k_clean.json").read_text())
+    x, sr = sf.read(here / "steady_a4_48k_clean.wav", dtype="float64")
+    start, end = doc["notes"][0]["start_s"], doc["notes"][0]["end_s"]
+    seg = x[int((start + 0.2) * sr) : int((end - 0.2) * sr)]
+    f0 = doc["notes"][0]["event"]["f0_hz"]
+    assert sr == doc["sample_rate"] and x.size == doc["n_samples"]
+    assert _peak_hz(seg, sr, f0) == pytest.approx(f0, abs=0.01)
+    assert _rms_dbfs(seg) == pytest.approx(doc["notes"][0]["event"]["level_dbfs"], abs=0.02)
