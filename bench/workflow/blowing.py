@@ -10,8 +10,9 @@ Method
 * The frames of one *held note* (the fingered note the analyser follows; the sounding note
   when the log has no held note) under one set of settings form a run; a gap over
   ``dropout_s`` ends it.
-* The first ``attack_s`` of the run are left out, and so is everything from 40 ms before the
-  first frame whose register state is "jumped" (the change itself).
+* The first ``attack_s`` of the run are left out, and so are the last :data:`GUARD_S` (60 ms)
+  before the first frame whose register state is "jumped" (the change itself) or before the
+  note ends (the release), and everything after the jump.
 * Ordinary least squares of corrected cents against level (dBFS) over the frames that remain:
   ``slope = Sxy / Sxx``, standard error ``sqrt(sum(r**2) / (n - 2) / Sxx)`` -- the same as
   ``scipy.stats.linregress``. The standard error treats frames as independent; analysis
@@ -44,6 +45,9 @@ __all__ = [
     "find_blowing_curves",
     "fit_line",
 ]
+
+GUARD_S = 0.06
+"""Frames this close before a jump or the end of the note are left out of the fit, seconds."""
 
 BREAK_LOOKBACK_S = (0.10, 0.04)
 """Span before the first jumped frame whose median level is the break level, seconds."""
@@ -245,7 +249,7 @@ class _Run:
     def offer(self, time_s: float, level: float, cents: float) -> None:
         """Queue a frame; frames older than the guard before a possible jump are fitted."""
         self.pending.append((time_s, level, cents))
-        while self.pending and self.pending[0][0] < time_s - BREAK_LOOKBACK_S[1]:
+        while self.pending and self.pending[0][0] < time_s - GUARD_S:
             _, lv, c = self.pending.popleft()
             self.add(lv, c)
 
@@ -395,6 +399,7 @@ class BlowingCurveTracker:
 
     def _close(self) -> None:
         if self._run is not None:
+            self._run.pending.clear()  # the release is not part of the curve
             self.finished.append(self._run.curve())
             self._run = None
 

@@ -146,6 +146,8 @@ def test_custom_profile_file(tmp_path):
         ('name = "x"\n', 1, r"unexpected 'name' outside \[instrument\]"),
         ('[instrument]\nname = "x"\nlowest = "F4"\nhighest = "G6"\nmissing = ["C2"]\n', 5, r"missing note C2 lies outside the compass"),
     ],
+    ids=["syntax", "unknown-key", "bad-note", "highest-below", "registers-start", "offset-type",
+         "clef", "missing-key", "outside-table", "missing-outside"],
 )
 def test_bad_profile_file_gives_one_line_with_file_and_line(tmp_path, text, line, pattern):
     path = tmp_path / "bad.toml"
