@@ -352,6 +352,10 @@ class BenchApp(App[int]):
         event = message.event
         kind = getattr(event, "kind", "")
         text = getattr(event, "message", str(event))
+        if kind in ("device_lost", "source_error", "source_ended"):
+            self._view(SessionBar).problem = text
+        elif kind == "device_back":
+            self._view(SessionBar).problem = ""
         if kind in ("device_lost", "source_error", "log_error"):
             self.notify(text, title=kind.replace("_", " "), severity="error", timeout=8)
         elif kind in ("jump", "source_ended"):

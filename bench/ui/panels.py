@@ -44,6 +44,8 @@ class SessionBar(LineView):
     """File being logged to; None when logging is off."""
     held: reactive[bool] = reactive(False)
     """True while the user holds the view still."""
+    problem: reactive[str] = reactive("")
+    """The engine's last word on why input stopped or failed ("" while all is well)."""
 
     def render(self) -> Text:
         # Short, vital items first (state, level, drops, log); the long source description
@@ -64,6 +66,8 @@ class SessionBar(LineView):
             text.append(" ")
         state_ok = self.state in ("running", "")
         text.append(self.state or "--", value if state_ok else alarm)
+        if self.problem and not state_ok:
+            text.append(f" {self.problem}", alarm)
         text.append("  in ", label)
         if self.level_dbfs is None or not math.isfinite(self.level_dbfs):
             text.append("silent" if self.level_dbfs is not None else "--", value)

@@ -14,7 +14,7 @@ from bench.tuning.standards import PITCH_STANDARDS
 from bench.tuning.temperaments import TEMPERAMENT_IDS, get_temperament
 from bench.ui.app import BenchApp, EventRelay, run_app
 from bench.ui.dialogs import ValueDialog
-from bench.ui.panels import SettingsPanel
+from bench.ui.panels import SessionBar, SettingsPanel
 from conftest import until
 from ui_fakes import FakeEngine, FakeEvent
 
@@ -339,6 +339,8 @@ def test_events_from_another_thread_become_notifications(make_app):
             thread.join()
             await pilot.pause(0.2)
             assert ("microphone unplugged", "error") in app.notes
+            engine.state = "device_lost"
+            await until(pilot, lambda: "microphone unplugged" in app.query_one(SessionBar).render().plain)
             assert ("logging to early.csv", "information") in app.notes
 
     run(scenario())
