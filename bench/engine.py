@@ -388,6 +388,9 @@ class Engine:
             thread.join(timeout_s)
         if thread is None or not thread.is_alive():
             self._finish()
+        else:
+            # The thread is stuck in the source (a driver that hangs): keep the rows anyway.
+            self._close_log_from_outside()
         self._state = "stopped" if self._state not in ("ended", "error") else self._state
         if thread is None:
             self._thread = threading.Thread()  # marks the engine as used
@@ -404,6 +407,21 @@ class Engine:
             return True
         thread.join(timeout_s)
         return not thread.is_alive()
+
+    def _close_log_from_outside(self) -> None:
+        """Close the log while the engine thread may still be alive (it never writes
+        without holding the log lock, and finds no log afterwards)."""
+        if not self._log_lock.acquire(timeout=1.0):
+            return
+        try:
+            log, self._log = self._log, None
+        finally:
+            self._log_lock.release()
+        if log is not None:
+            try:
+                log.close()
+            except (OSError, LogError) as exc:
+                self._emit("log_error", f"closing the log {log.path} failed: {exc}")
 
     def _finish(self) -> None:
         """Close the log and the source (thread gone, or never started)."""
@@ -500,9 +518,9 @@ class Engine:
             attempt += 1
             try:
                 self._source.start()
-            except BenchError:
-                continue
-            except Exception:  # noqa: BLE001 - keep retrying whatever the driver says
+            except Exception as exc:  # noqa: BLE001 - keep retrying whatever the driver says
+                if attempt == 1:  # say once why it is not back yet
+                    self._emit("source_error", f"reopening failed: {exc}")
                 continue
             self._state = "running"
             self._emit("device_back", f"input back after {attempt} attempt(s): {self._source.description}")

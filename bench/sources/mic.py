@@ -12,6 +12,8 @@ same with a queue or ring).
 
 from __future__ import annotations
 
+import atexit
+import threading
 from dataclasses import dataclass
 from typing import Any
 
@@ -87,6 +89,39 @@ def list_input_devices() -> list[InputDevice]:
                 )
             )
     return found
+
+
+CLOSE_TIMEOUT_S = 2.0
+"""Longest the engine waits for PortAudio to close a stream (seconds)."""
+
+
+def _close_in_background(stream: Any, timeout_s: float) -> threading.Thread | None:
+    """Abort and close ``stream`` in a daemon thread; wait up to ``timeout_s``.
+
+    Closing a stream whose audio server died can block for ever (PortAudio 19.6's JACK host
+    API does, measured). Then the thread is left behind, and sounddevice's exit handler,
+    which would close the same stream and hang or abort the interpreter, is unregistered.
+    Returns the thread if it is still stuck, else None.
+    """
+
+    def close() -> None:
+        for step in (stream.abort, stream.close):
+            try:
+                step()
+            except Exception:  # noqa: BLE001 - a lost device may fail either step
+                pass
+
+    thread = threading.Thread(target=close, name="bench-mic-close", daemon=True)
+    thread.start()
+    thread.join(timeout_s)
+    if not thread.is_alive():
+        return None
+    import sounddevice as sd
+
+    handler = getattr(sd, "_exit_handler", None)
+    if handler is not None:
+        atexit.unregister(handler)
+    return thread
 
 
 def _default_input_index(sd: Any) -> int | None:
@@ -211,6 +246,7 @@ class MicSource:
         self._stopping = False
         self._opened_once = False
         self._last_block_s = 0.0
+        self._stuck_close: threading.Thread | None = None
 
     @property
     def dropped_blocks(self) -> int:
@@ -241,6 +277,14 @@ class MicSource:
     def start(self) -> None:
         sd = import_sounddevice()
         self._close()
+        if self._stuck_close is not None:
+            self._stuck_close.join(0.5)
+            if self._stuck_close.is_alive():
+                name = self.device.label() if self.device else str(self.device_spec)
+                raise DeviceError(
+                    f"the lost input {name} has not closed (did its audio server stop?); restart bench to reconnect"
+                )
+            self._stuck_close = None
         if self._opened_once:
             # A device pulled and plugged back needs a fresh PortAudio device list.
             try:
@@ -293,9 +337,9 @@ class MicSource:
             if block is not None:
                 self._last_block_s = now_s
                 return block
-            if (self._finished and not self._stopping) or (
-                now_s - self._last_block_s > self.stall_timeout_s
-            ):
+            stream = self._stream
+            ended = self._finished or not getattr(stream, "active", True)
+            if (ended and not self._stopping) or now_s - self._last_block_s > self.stall_timeout_s:
                 name = self.device.label() if self.device else str(self.device_spec)
                 self._close()
                 raise DeviceError(f"input {name} stopped delivering audio (unplugged or server gone?)")
@@ -308,14 +352,9 @@ class MicSource:
         if stream is None:
             return
         self._stopping = True
-        try:
-            stream.abort()
-        except Exception:  # noqa: BLE001 - a lost device may fail to abort; closing is what matters
-            pass
-        try:
-            stream.close()
-        except Exception:  # noqa: BLE001
-            pass
+        stuck = _close_in_background(stream, CLOSE_TIMEOUT_S)
+        if stuck is not None:
+            self._stuck_close = stuck
 
     def stop(self) -> None:
         self._close()

@@ -14,6 +14,7 @@ import shutil
 import subprocess
 import sys
 import time
+import types
 import uuid
 from pathlib import Path
 
@@ -32,7 +33,7 @@ def _need_portaudio() -> None:
 
 @pytest.fixture
 def jack_server(tmp_path):
-    """Name of a JACK dummy server (48 kHz, 512-frame periods) running for this test."""
+    """A JACK dummy server (48 kHz, 512-frame periods) running for this test: ``.name``, ``.pid``."""
     _need_portaudio()
     jackd = shutil.which("jackd")
     if jackd is None:
@@ -64,7 +65,7 @@ def jack_server(tmp_path):
                 continue
             probe.close()
             break
-        yield name
+        yield types.SimpleNamespace(name=name, pid=proc.pid)
     finally:
         proc.terminate()
         try:

@@ -177,6 +177,8 @@ def main() -> int:
     ap.add_argument("--analyser", choices=["project", "aubio"], default="project")
     ap.add_argument("--loop", type=float, default=None, help="repeat the WAV for this many seconds")
     ap.add_argument("--no-readings", action="store_true", help="leave the per-reading list out")
+    ap.add_argument("--kill-server", type=int, default=None, metavar="PID", help="stop the JACK server mid-run")
+    ap.add_argument("--kill-after", type=float, default=1.5, metavar="S")
     args = ap.parse_args()
 
     from bench.engine import Engine
@@ -219,7 +221,15 @@ def main() -> int:
         result["description"] = source.description
         result["input_latency_s"] = source.input_latency_s
         deadline = time.monotonic() + args.seconds + (args.loop or 0.0)
+        kill_at = time.monotonic() + args.kill_after if args.kill_server else None
         while time.monotonic() < deadline and engine.running:
+            if kill_at is not None and time.monotonic() >= kill_at:
+                import os
+                import signal
+
+                os.kill(args.kill_server, signal.SIGTERM)  # the audio server goes away
+                result["killed_at_wall_s"] = time.monotonic()
+                kill_at = None
             if feeder is not None and feeder.poll() is not None:
                 time.sleep(0.3)  # let the tail of the feed reach the readings
                 break
@@ -230,12 +240,14 @@ def main() -> int:
     finally:
         engine.stop()
         if feeder is not None:
+            if args.kill_server:
+                feeder.kill()  # its server is gone; nothing to report
             try:
                 out, _ = feeder.communicate(timeout=15)
             except subprocess.TimeoutExpired:
                 feeder.kill()
                 out, _ = feeder.communicate()
-            fed = json.loads(out) if out.strip() else {}
+            fed = json.loads(out) if out and out.strip() else {}
             result["jack_rate"] = fed.get("rate")
             result["connected"] = fed.get("connected")
             result["onset_wall_s"] = fed.get("onset_wall_s")

@@ -61,7 +61,7 @@ def test_jack_paced_input_reads_known_notes_promptly(jack_server, tmp_path, anal
     res = run_live_case(
         ["jack", "--device", "system", "--wav", str(wav), "--seconds", "12", "--lead-in", str(lead_in_s),
          "--log", str(log), "--analyser", analyser],
-        {"JACK_DEFAULT_SERVER": jack_server},
+        {"JACK_DEFAULT_SERVER": jack_server.name},
     )  # fmt: skip
     assert res["jack_rate"] == SAMPLE_RATE
     assert "JACK" in res["description"] and res["connected"]
@@ -131,3 +131,24 @@ def test_alsa_flood_is_counted_as_dropped_input(alsa_file_device):
     voiced = [r for r in res["readings"] if r[2] is not None]
     assert voiced, "no tone came through the ALSA file device"
     assert [r[3] for r in voiced].count("A4") > 0.5 * len(voiced)
+
+
+def test_jack_server_going_away_is_reported_and_keeps_the_log(jack_server, tmp_path):
+    wav = tmp_path / "long.wav"
+    sf.write(wav, _tone(A4_HZ, 6.0).astype(np.float32), SAMPLE_RATE, subtype="FLOAT")
+    log = tmp_path / "session.csv"
+    res = run_live_case(
+        ["jack", "--device", "system", "--wav", str(wav), "--seconds", "5", "--lead-in", "0.2",
+         "--log", str(log), "--analyser", "aubio", "--kill-server", str(jack_server.pid), "--kill-after", "1.5"],
+        {"JACK_DEFAULT_SERVER": jack_server.name},
+    )  # fmt: skip
+    kinds = [e["kind"] for e in res["events"]]
+    assert kinds[:2] == ["log_started", "device_lost"], kinds
+    lost = res["events"][1]
+    assert "stopped delivering audio" in lost["message"]
+    # found within the stall timeout (2 s) of the server going, and the engine still stops at once
+    assert 1.0 < lost["time_s"] < 4.0
+    assert res["stop_s"] < 1.5 and not res["still_running"]
+    rows = read_frame_log(log)
+    assert len(rows) == res["frames"] > 100
+    assert "A4" in {r["note"] for r in rows}

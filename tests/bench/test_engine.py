@@ -275,3 +275,29 @@ def test_latency_and_cpu_are_measured():
     assert stats.latency_s is not None and math.isfinite(stats.latency_s)
     assert stats.cpu_s > 0
     assert stats.blocks == len(blocks)
+
+
+def test_stop_keeps_the_log_when_the_source_hangs(tmp_path):
+    release = threading.Event()
+
+    class HangingSource(ScriptedSource):
+        def read(self, timeout_s):
+            if self._i == 20:
+                release.wait()  # a driver call that never returns
+            return super().read(timeout_s)
+
+    log = tmp_path / "session.csv"
+    engine = Engine(HangingSource(frame_blocks(sine(440.0, 1.0, RATE), 512)), TuningSettings(),
+                    log_path=log, analyser_factory=FakeAnalyser)  # fmt: skip
+    engine.start()
+    try:
+        deadline = 100
+        while engine.stats.blocks < 20 and deadline:
+            threading.Event().wait(0.05)
+            deadline -= 1
+        engine.stop(timeout_s=0.2)
+        assert engine.running  # still stuck in the driver...
+        assert engine.log_path is None  # ...but the log is closed with every row measured
+        assert len(read_frame_log(log)) == engine.stats.frames == 20 * 512 // 256
+    finally:
+        release.set()
