@@ -11,7 +11,7 @@ from its own thread while the engine feeds. Nothing here waits on audio or the s
 from __future__ import annotations
 
 import threading
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from pathlib import Path
 from typing import Any
 
@@ -90,6 +90,7 @@ class LiveWorkflow:
         )
         self._blowing = BlowingCurveTracker()
         self._last_break: BlowingCurve | None = None
+        self._last_time_s = float("-inf")
 
     # -- switches ----------------------------------------------------------------------------
 
@@ -123,6 +124,9 @@ class LiveWorkflow:
         """
         with self._lock:
             out: list[Capture] = []
+            time_s = getattr(reading, "stream_time_s", None)
+            if time_s is not None:
+                self._last_time_s = max(self._last_time_s, float(time_s))
             cap = self._detector.push(reading)
             if cap is not None:
                 out.append(cap)
@@ -133,6 +137,34 @@ class LiveWorkflow:
             self._store(out)
         self._tell(out)
         return out
+
+    def push_new(self, readings: Iterable[Any]) -> list[Capture]:
+        """Feed only the readings newer than any fed before (by ``stream_time_s``).
+
+        For a screen that polls ``engine.history(seconds)`` at display rate: pass the whole
+        window each time; readings already seen are skipped.
+        """
+        out: list[Capture] = []
+        for reading in readings:
+            if float(reading.stream_time_s) > self._last_time_s:
+                out += self.push(reading)
+        return out
+
+    def set_log_path(self, log_path: str | Path | None) -> None:
+        """The session log moved to a new file (or stopped): captures from now on go beside
+        the new log. Captures so far stay in memory and keep their numbers."""
+        with self._lock:
+            if self._file is not None:
+                self._file.close()
+                self._file = None
+            self.captures_path = None
+            self.file_error = None
+            if log_path is not None:
+                try:
+                    self._file = CaptureFile(captures_path_for(log_path))
+                    self.captures_path = self._file.path
+                except LogError as exc:
+                    self.file_error = str(exc)
 
     def capture_now(self, last_s: float | None = None, *, last_frames: int | None = None) -> Capture | None:
         """The capture key: capture the note sounding now from the last ``last_s`` seconds

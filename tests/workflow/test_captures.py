@@ -307,3 +307,12 @@ def test_point_from_log_row_reads_unvoiced_and_quoted_cells():
 def test_thresholds_validate():
     with pytest.raises(ValueError, match=r"settle_s 0 must be > 0"):
         CaptureThresholds(settle_s=0)
+
+
+def test_thinned_log_still_gives_the_captures(scale_rows):
+    # a log written at 20 rows a second (bench run --log-rate 20): every 10th 5-ms frame
+    thin = scale_rows[::10]
+    caps = captures_from_rows(thin, profile=ALTO)
+    assert [c.midi for c in caps] == list(OFFSETS)
+    for cap in caps:
+        assert cap.cents == pytest.approx(OFFSETS[cap.midi], abs=0.5)

@@ -132,3 +132,36 @@ def test_file_failure_keeps_capturing(tmp_path, readings):
         wf.push(reading)
     assert wf.file_error is not None and "closed" in wf.file_error
     assert len(wf.captures()) >= 3
+
+
+def test_polling_the_history_window_feeds_each_reading_once(readings):
+    # a screen polling engine.history(1.0) every 100 ms of input passes overlapping windows
+    _, rs = readings
+    wf, ref = LiveWorkflow(), LiveWorkflow()
+    for reading in rs:
+        ref.push(reading)
+    for end in range(1, len(rs) + 20, 20):
+        end = min(end, len(rs))
+        window = [r for r in rs[:end] if r.stream_time_s > rs[end - 1].stream_time_s - 1.0]
+        wf.push_new(window)
+    assert wf.captures() == ref.captures()
+
+
+def test_new_log_file_mid_session(tmp_path, readings):
+    _, rs = readings
+    wf = LiveWorkflow(log_path=tmp_path / "a.csv")
+    half = len(rs) // 4  # within the second note
+    for reading in rs[:half]:
+        wf.push(reading)
+    n_first = len(wf.captures())
+    wf.set_log_path(tmp_path / "b.csv")
+    for reading in rs[half:]:
+        wf.push(reading)
+    wf.close()
+    a = read_captures(tmp_path / "a.captures.csv")
+    b = read_captures(tmp_path / "b.captures.csv")
+    total = len(wf.captures())
+    assert total > n_first
+    assert [c.index for c in wf.captures()] == list(range(1, total + 1))
+    assert {c.index for c in a} == set(range(1, n_first + 1))
+    assert {c.index for c in b} >= set(range(n_first + 1, total + 1))  # new ones go beside b
