@@ -64,8 +64,45 @@ def _open(path: Path):  # type: ignore[no-untyped-def]
     return f
 
 
-def _blocks(f, warnings: list[str]) -> Iterator[NDArray[np.float32]]:  # type: ignore[no-untyped-def]
-    """Mono float32 blocks at the analysis rate; non-finite samples become silence."""
+MIN_SALVAGE_BLOCK = 256
+"""Smallest read (samples) tried when a damaged file fails mid-read, to keep what decodes."""
+
+
+def _wav_shortfall(path: Path, f) -> str | None:  # type: ignore[no-untyped-def]
+    """For a RIFF/WAVE file whose data chunk promises more bytes than the file holds, a warning."""
+    if f.format not in ("WAV", "WAVEX"):
+        return None
+    try:
+        with open(path, "rb") as raw:
+            head = raw.read(12)
+            if len(head) < 12 or head[:4] != b"RIFF" or head[8:12] != b"WAVE":
+                return None
+            while True:
+                chunk = raw.read(8)
+                if len(chunk) < 8:
+                    return None
+                size = int.from_bytes(chunk[4:], "little")
+                if chunk[:4] == b"data":
+                    held = path.stat().st_size - raw.tell()
+                    break
+                raw.seek(size + (size & 1), 1)
+    except OSError:
+        return None
+    if held >= size:
+        return None
+    return (
+        f"cut short: the header promises {size} bytes of samples, the file holds {max(held, 0)} "
+        f"(a half-copied recording? copy it again); analysed what is there"
+    )
+
+
+def _blocks(f, warnings: list[str], counter: list[int]) -> Iterator[NDArray[np.float32]]:  # type: ignore[no-untyped-def]
+    """Mono float32 blocks at the analysis rate; non-finite samples become silence.
+
+    A read that fails mid-file (a cut-short or damaged file) is retried from the same place
+    in smaller pieces, so the audio before the damage is kept. ``counter[0]`` counts the
+    file's samples read.
+    """
     resampler = None
     if not MIN_RATE_HZ <= f.samplerate <= MAX_RATE_HZ:
         import soxr
@@ -73,22 +110,47 @@ def _blocks(f, warnings: list[str]) -> Iterator[NDArray[np.float32]]:  # type: i
         resampler = soxr.ResampleStream(f.samplerate, RESAMPLE_RATE_HZ, 1, dtype="float32")
         warnings.append(f"resampled from {f.samplerate} Hz to {RESAMPLE_RATE_HZ} Hz")
     bad = 0
-    try:
-        for block in f.blocks(blocksize=READ_BLOCK, dtype="float32", always_2d=True):
-            mono = block.mean(axis=1, dtype=np.float64).astype(np.float32)
-            finite = np.isfinite(mono)
-            if not finite.all():
-                bad += int((~finite).sum())
-                mono[~finite] = 0.0
-            if resampler is not None:
-                mono = resampler.resample_chunk(mono)
-            yield mono
-    except RuntimeError as exc:  # libsndfile error mid-file (truncated data)
-        warnings.append(f"stopped reading early: {exc}")
+    size = READ_BLOCK
+    while True:
+        pos = counter[0]
+        try:
+            block = f.read(size, dtype="float32", always_2d=True)
+        except (RuntimeError, sf_error()) as exc:  # libsndfile error mid-file
+            if size > MIN_SALVAGE_BLOCK:
+                try:
+                    f.seek(pos)
+                    size = max(size // 4, MIN_SALVAGE_BLOCK)
+                    continue
+                except (RuntimeError, sf_error()):
+                    pass
+            reason = str(exc).replace("Error :", "").strip().rstrip(".") or "read error"
+            warnings.append(
+                f"stopped reading at {pos / f.samplerate:.2f} s of {f.frames / f.samplerate:.2f} s "
+                f"({reason}): the file is cut short or damaged; analysed the part before"
+            )
+            break
+        if len(block) == 0:
+            break
+        counter[0] = pos + len(block)
+        mono = block.mean(axis=1, dtype=np.float64).astype(np.float32)
+        finite = np.isfinite(mono)
+        if not finite.all():
+            bad += int((~finite).sum())
+            mono[~finite] = 0.0
+        if resampler is not None:
+            mono = resampler.resample_chunk(mono)
+        yield mono
     if resampler is not None:
         yield resampler.resample_chunk(np.zeros(0, np.float32), last=True)
     if bad:
         warnings.append(f"{bad} non-finite samples (NaN/Inf) replaced by silence")
+
+
+def sf_error() -> type[Exception]:
+    """soundfile's error class (LibsndfileError, a RuntimeError in soundfile >= 0.11)."""
+    import soundfile as sf
+
+    return getattr(sf, "LibsndfileError", RuntimeError)
 
 
 def analyse_file(
@@ -130,14 +192,17 @@ def analyse_file(
         notes: list[HeldNote] = []
         log = CsvFrameLog(csv_path, overwrite=True, flush_interval_s=1.0) if csv_path else None
         n_frames = voiced = 0
-        read = 0
         locked_note = None
         if locked_midi is not None:
             from bench.tuning.notes import note_name
 
             locked_note = note_name(locked_midi, settings.flats)
+        shortfall = _wav_shortfall(path, f)
+        if shortfall:
+            warnings.append(shortfall)
+        counter = [0]
         try:
-            for block in _blocks(f, warnings):
+            for block in _blocks(f, warnings, counter):
                 for frame in analyser.process(block):
                     mapping = None
                     if frame.f0_hz is not None:
@@ -149,19 +214,18 @@ def analyse_file(
                     done = tracker.push(frame, mapping, settings)
                     if done is not None:
                         notes.append(done)
-                read = min(f.frames, read + READ_BLOCK)
                 if progress is not None:
-                    progress(read / f.frames)
+                    progress(min(counter[0] / f.frames, 1.0))
             last = tracker.finish()
             if last is not None:
                 notes.append(last)
         finally:
             if log is not None:
                 log.close()
-        duration_s = f.frames / f.samplerate
-        if n_frames == 0:
+        duration_s = counter[0] / f.samplerate  # what was read: less than promised if cut short
+        if n_frames == 0 and not any(w.startswith("stopped reading") for w in warnings):
             warnings.append(
-                f"too short to analyse: {f.frames} samples ({duration_s * 1000:.1f} ms), "
+                f"too short to analyse: {counter[0]} samples ({duration_s * 1000:.1f} ms), "
                 f"one frame needs {analyser.frame_size} samples"
             )
         return FileAnalysis(
