@@ -111,11 +111,13 @@ def _blocks(f, warnings: list[str], counter: list[int]) -> Iterator[NDArray[np.f
         warnings.append(f"resampled from {f.samplerate} Hz to {RESAMPLE_RATE_HZ} Hz")
     bad = 0
     size = READ_BLOCK
+    first_reason = ""
     while True:
         pos = counter[0]
         try:
             block = f.read(size, dtype="float32", always_2d=True)
         except (RuntimeError, sf_error()) as exc:  # libsndfile error mid-file
+            first_reason = first_reason or str(exc).replace("Error :", "").strip().rstrip(".")
             if size > MIN_SALVAGE_BLOCK:
                 try:
                     f.seek(pos)
@@ -123,7 +125,7 @@ def _blocks(f, warnings: list[str], counter: list[int]) -> Iterator[NDArray[np.f
                     continue
                 except (RuntimeError, sf_error()):
                     pass
-            reason = str(exc).replace("Error :", "").strip().rstrip(".") or "read error"
+            reason = first_reason or "read error"
             warnings.append(
                 f"stopped reading at {pos / f.samplerate:.2f} s of {f.frames / f.samplerate:.2f} s "
                 f"({reason}): the file is cut short or damaged; analysed the part before"
