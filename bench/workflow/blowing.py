@@ -331,6 +331,7 @@ class BlowingCurveTracker:
         """Back to the state after construction."""
         self._run: _Run | None = None
         self._last_voiced_s = -math.inf
+        self._prev_time_s = math.inf
         self.finished: list[BlowingCurve] = []
 
     def current(self) -> BlowingCurve | None:
@@ -350,10 +351,13 @@ class BlowingCurveTracker:
         """
         p = as_point(item, mapping, settings)
         if not p.voiced:
+            self._prev_time_s = p.time_s
             if p.time_s - self._last_voiced_s > self.dropout_s:
                 self._close()
             return None
-        gap = p.time_s - self._last_voiced_s > self.dropout_s
+        step = max(0.0, p.time_s - self._prev_time_s)  # beyond the frame spacing itself
+        self._prev_time_s = p.time_s
+        gap = p.time_s - self._last_voiced_s > self.dropout_s + step
         self._last_voiced_s = p.time_s
         run = self._run
         if p.register_state == "jumped":

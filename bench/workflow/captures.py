@@ -7,7 +7,8 @@ much louder it could be blown before it broke into the next register (when that 
 When is a note settled?  (defaults of :class:`CaptureThresholds`)
 
 * a *run* is a sequence of voiced frames mapped to the same note, in the same sounding mode
-  and under the same settings, with no gap longer than ``dropout_s`` (60 ms);
+  and under the same settings, with no gap longer than ``dropout_s`` (60 ms) beyond the
+  spacing of the frames (so a frame log thinned to a few rows a second still works);
 * the first ``attack_s`` (150 ms) of a run are the attack and are never used;
 * the run is *settled* once every frame of the last ``settle_s`` (300 ms) lies within
   ``tolerance_cents`` (±3 c) of those frames' median; that median is the stretch's reference;
@@ -355,6 +356,7 @@ class CaptureDetector:
         self._run_key: tuple[int | None, int | None, bool, SettingsKey] | None = None
         self._run_start_s = 0.0
         self._last_voiced_s = -math.inf
+        self._prev_time_s = math.inf
         self._window: list[FramePoint] = []
         self._post_attack_s: float | None = None
         self._steady: list[FramePoint] = []
@@ -401,12 +403,17 @@ class CaptureDetector:
                 self._recent.popleft()
         self._track_held(p)
         if not p.voiced:
+            self._prev_time_s = p.time_s
             if p.time_s - self._last_voiced_s > th.dropout_s:
                 return self._end_run()
             return None
         result: Capture | None = None
         key = (p.midi, p.mode, p.register_state == "jumped", p.settings)
-        if key != self._run_key or p.time_s - self._last_voiced_s > th.dropout_s:
+        # a gap is judged beyond the frame spacing itself (a log thinned to 10 rows/s has
+        # 100 ms between rows and no gap)
+        step = max(0.0, p.time_s - self._prev_time_s)
+        self._prev_time_s = p.time_s
+        if key != self._run_key or p.time_s - self._last_voiced_s > th.dropout_s + step:
             result = self._end_run()
             self._run_key = key
             self._run_start_s = p.time_s

@@ -309,9 +309,10 @@ def test_thresholds_validate():
         CaptureThresholds(settle_s=0)
 
 
-def test_thinned_log_still_gives_the_captures(scale_rows):
-    # a log written at 20 rows a second (bench run --log-rate 20): every 10th 5-ms frame
-    thin = scale_rows[::10]
+@pytest.mark.parametrize("every", [10, 20])
+def test_thinned_log_still_gives_the_captures(scale_rows, every):
+    # a log written at 20 or 10 rows a second (bench run --log-rate): every 10th/20th 5-ms frame
+    thin = scale_rows[::every]
     caps = captures_from_rows(thin, profile=ALTO)
     assert [c.midi for c in caps] == list(OFFSETS)
     for cap in caps:
