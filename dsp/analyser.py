@@ -53,7 +53,11 @@ FMAX_HZ = 4500.0
 _MAINS_HZ = np.array([50.0, 60.0, 100.0, 120.0, 150.0, 180.0])
 _MAINS_TOLERANCE = 0.005  # mains frequency stays within +-0.4 %: common practice (grid codes)
 _CLARITY_MIN = 0.5
-_FLATNESS_MIN = 0.05
+_PEAK_SNR_MIN_DB = 20.0  # strongest harmonic over the local floor; noise maxima reach ~10 dB
+_CLARITY_HOLD = 0.3
+_PEAK_SNR_HOLD_DB = 14.0
+_HOLD_CENTS = 50.0  # a sustained frame must stay within this of the previous voiced f0
+_FLATNESS_MIN = 0.005  # centre segments within 23 dB of the loudest: level steps pass, knocks (decaying ~10 dB per segment) do not
 _SEGMENTS = 8
 _PEAK_LIMIT_HZ = 10000.0
 _CHUNK_FRAMES = 32
@@ -67,6 +71,7 @@ class _Batch:
     floor: NDArray[np.float64]
     refined: RefinedPitch
     voiced: NDArray[np.bool_]
+    sustain: NDArray[np.bool_]
     clarity: NDArray[np.float64]
     level_dbfs: NDArray[np.float64]
     fast_level_dbfs: NDArray[np.float64]
@@ -197,6 +202,7 @@ class StreamingAnalyser:
         self._buf_start = 0  # absolute index of self._buf[0]
         self._n_in = 0
         self._next_end = self._n
+        self._prev_f0: float | None = None
         self._monitor.lock(None)
         self._monitor.reset()
 
@@ -284,6 +290,7 @@ class StreamingAnalyser:
         update = self._monitor.update
         f0s = b.refined.f0_hz.tolist()
         voiced_l = b.voiced.tolist()
+        sustain_l = b.sustain.tolist()
         harm_db = harmonic_levels_db(b.refined.harmonic_amp).tolist()
         oe = odd_even_db(b.refined.harmonic_amp).tolist()
         evidence = summarise_evidence(b.evidence).tolist()
@@ -292,8 +299,11 @@ class StreamingAnalyser:
         level = b.level_dbfs.tolist()
         clip = b.clip.tolist()
         ends_l = ends.tolist()
+        prev = self._prev_f0
         for i in range(len(ends_l)):
             f0 = f0s[i] if voiced_l[i] else None
+            if f0 is None and prev is not None and sustain_l[i] and abs(1200.0 * math.log2(f0s[i] / prev)) <= _HOLD_CENTS:
+                f0 = f0s[i]
             reading = update(f0, evidence[i], fast_level[i])
             h_db: tuple[float, ...] | None = None
             oe_db: float | None = None
@@ -306,6 +316,7 @@ class StreamingAnalyser:
                 else:
                     h_db = tuple(harm_db[i])
                     oe_db = oe[i]
+            prev = f0
             e = ends_l[i]
             out.append(
                 Frame(
@@ -322,6 +333,7 @@ class StreamingAnalyser:
                     held_f0_hz=reading.held_f0_hz,
                 )
             )
+        self._prev_f0 = prev
         return out
 
     def _refine_single(self, b: _Batch, i: int, f_hz: float) -> tuple[float | None, tuple[float, ...] | None, float | None]:
@@ -338,7 +350,7 @@ class StreamingAnalyser:
         """Vectorised per-frame measurements."""
         sr = self._sr
         spec = analyse_spectrum(x, sr, self._n_bins)
-        floor = band_floor(spec.power, self._edges)
+        floor = band_floor(spec.power)
         top = spec.power[:, self._lo_bin : self._hi_bin].max(axis=1, keepdims=True)
         floor = np.maximum(floor, top * 1e-12)  # digital-silence-clean tones: relative floor
         peaks = find_peaks(spec, floor, self._lo_bin, self._hi_bin)
@@ -351,20 +363,17 @@ class StreamingAnalyser:
         seg = (x * x).reshape(x.shape[0], _SEGMENTS, -1).sum(axis=2)
         with np.errstate(divide="ignore"):
             level = 10.0 * np.log10(seg.sum(axis=1) / self._n)
-            fast_level = 10.0 * np.log10(seg[:, _SEGMENTS // 2 :].sum(axis=1) / (self._n // 2))
+            # newest quarter of the window (~21 ms at 48 kHz): a level step shows quickly
+            fast_level = 10.0 * np.log10(seg[:, -2:].sum(axis=1) / (self._n // 4))
         centre = seg[:, 2:6]
         flat = centre.min(axis=1) >= _FLATNESS_MIN * np.maximum(seg.max(axis=1), 1e-300)
         rel = np.abs(f0_safe[:, None] / _MAINS_HZ[None, :] - 1.0)
         hum = (rel <= _MAINS_TOLERANCE).any(axis=1)
-        voiced = (
-            np.isfinite(f0)
-            & (f0_safe >= self._fmin)
-            & (f0_safe <= self._fmax)
-            & (clarity >= _CLARITY_MIN)
-            & flat
-            & ~hum
-            & (level > -100.0)
-        )
+        usable = np.isfinite(f0) & (f0_safe >= self._fmin) & (f0_safe <= self._fmax) & flat & ~hum & (level > -100.0)
+        voiced = usable & (clarity >= _CLARITY_MIN) & (refined.best_snr_db >= _PEAK_SNR_MIN_DB)
+        # hysteresis: a note already sounding stays voiced on weaker evidence (reverberant
+        # tails, breath noise); see _analyse_chunk
+        sustain = usable & (clarity >= _CLARITY_HOLD) & (refined.best_snr_db >= _PEAK_SNR_HOLD_DB)
         half = x[:, self._n // 2 :]
         fast = analyse_spectrum(half, sr, self._fast_bins)
         evidence = self._evidence(fast, f0_safe)
@@ -373,6 +382,7 @@ class StreamingAnalyser:
             floor=floor,
             refined=refined,
             voiced=voiced,
+            sustain=sustain,
             clarity=np.clip(clarity, 0.0, 1.0),
             level_dbfs=level,
             fast_level_dbfs=fast_level,
@@ -382,22 +392,36 @@ class StreamingAnalyser:
         )
 
     def _clarity(self, spec: BatchSpectrum, f0: NDArray[np.float64]) -> NDArray[np.float64]:
-        """Share of the in-band energy within +-2 bins of the harmonics of ``f0``."""
+        """1 - (power density between the harmonics of ``f0``) / (density on them), clipped 0..1.
+
+        "On" a harmonic: the 3 bins nearest it (>= 97 % of a Hann-windowed sine's energy);
+        "between": the other bins from the lowest search bin up to half a harmonic above the
+        last harmonic counted (at most 40, below the peak search limit). A periodic tone has
+        empty valleys (clarity near 1); noise fills both alike (near 0), even for a low
+        candidate whose harmonics cover half the bins.
+        """
         df = spec.bin_hz
-        n_bins = spec.power.shape[1]
+        n_frames, n_bins = spec.power.shape
         k = np.arange(1, 41, dtype=np.float64)
         pos = f0[:, None] * k[None, :]
         inside = pos <= self._limit_hz
-        centre = np.clip(np.rint(pos / df).astype(np.intp), 2, n_bins - 3)
-        rows = np.arange(spec.power.shape[0])[:, None, None]
-        bins = centre[:, :, None] + np.arange(-2, 3)[None, None, :]
-        e = spec.power[rows, bins].sum(axis=2)
-        # where harmonics sit closer than 5 bins their neighbourhoods overlap: count each bin once
-        spacing = f0 / df
-        overlap = np.clip(5.0 / np.maximum(spacing, 1e-9), 1.0, None)
-        harm = (e * inside).sum(axis=1) / overlap
-        total = spec.power[:, self._lo_bin : self._hi_bin].sum(axis=1)
-        return np.asarray(harm / np.maximum(total, 1e-300), dtype=np.float64)
+        centre = np.minimum(np.rint(pos / df).astype(np.intp), n_bins - 2)
+        rows = np.arange(n_frames)[:, None]
+        p = spec.power
+        on = (p[rows, centre - 1] + p[rows, centre] + p[rows, centre + 1]).astype(np.float64)
+        e_on = (on * inside).sum(axis=1)
+        n_on = 3.0 * inside.sum(axis=1)
+        n_h = inside.sum(axis=1)
+        top = np.minimum(np.rint((n_h + 0.5) * f0 / df).astype(np.intp), self._hi_bin)
+        top = np.maximum(top, self._lo_bin + 1)
+        cum = np.cumsum(p[:, self._lo_bin : self._hi_bin + 1], axis=1, dtype=np.float64)
+        e_all = cum[np.arange(n_frames), top - self._lo_bin]
+        n_all = (top - self._lo_bin + 1).astype(np.float64)
+        e_off = np.maximum(e_all - e_on, 0.0)
+        n_off = np.maximum(n_all - n_on, 1.0)
+        dens_on = e_on / np.maximum(n_on, 1.0)
+        ratio = (e_off / n_off) / np.maximum(dens_on, 1e-300)
+        return np.asarray(np.clip(1.0 - ratio, 0.0, 1.0) * (n_h > 0), dtype=np.float64)
 
     def _evidence(self, fast: BatchSpectrum, f0: NDArray[np.float64]) -> NDArray[np.float64]:
         """Powers at k f0 / m (k = 1..8, m = 1..3), max over +-1 bin of the half window."""

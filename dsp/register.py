@@ -10,10 +10,10 @@ harmonics* (powers of harmonics k = 1..8 of the held note, taken from a short, r
 window), not on a smoothed pitch track:
 
 * ``r2`` = odd / even energy of the held note (dB), ``r3`` = energy off / on the
-  multiples of 3. Each has a baseline: a peak hold (decaying ``baseline_decay_db_per_s``)
-  learnt while the note is steady.
+  multiples of 3. Each has a baseline: a slow average (``baseline_s``) learnt while the
+  note is steady.
 * **jumped** (mode m = 2 or 3) when, in continuous tone, ``r_m`` falls at least
-  ``collapse_db`` below its baseline *and* either the energy on the multiples of m rose by
+  ``collapse_db`` below its baseline and below ``collapsed_ratio_db``, *and* either the energy on the multiples of m rose by
   ``even_rise_db`` against ~100 ms earlier (the new mode's fundamental takes over; this
   holds in a reverberant room, where the held note's odd harmonics decay only slowly) or
   the collapse is total (``deep_collapse_db``). It is reported at the first such frame.
@@ -115,6 +115,10 @@ class RegisterMonitor:
         as a collapse.
     deep_collapse_db : float > collapse_db, dB
         Drop that counts as a jump without further evidence.
+    collapsed_ratio_db : float, dB
+        A collapse also needs the ratio itself this low: the held note's odd (off-3)
+        harmonics weaker than the even (on-3) ones by 10 dB. A drop from a huge baseline
+        (a plain sine has no even harmonics at all) is no collapse.
     even_rise_db : float > 0, dB
         Rise of the energy on the new mode's harmonics, re ~100 ms before, that confirms a
         collapse.
@@ -129,8 +133,11 @@ class RegisterMonitor:
         Time a foreign pitch must persist to become the new held note.
     warmup_s : float >= 0, seconds
         Time after a new note during which baselines are learnt and no jump is reported.
-    baseline_decay_db_per_s : float >= 0, dB/s
-        Decay of the baselines' peak hold.
+    baseline_s : float > 0, seconds
+        Time constant of the baselines (exponential average over steady frames).
+    weaken_hold_s : float > 0, seconds
+        Time the odd/even ratio must stay ``weaken_db`` under its baseline before
+        "weakening" is reported.
 
     Examples
     --------
@@ -146,26 +153,30 @@ class RegisterMonitor:
         *,
         collapse_db: float = 15.0,
         deep_collapse_db: float = 30.0,
+        collapsed_ratio_db: float = -10.0,
         even_rise_db: float = 3.0,
-        weaken_db: float = 4.0,
+        weaken_db: float = 6.0,
         rise_db: float = 3.0,
         silence_s: float = 0.05,
         confirm_s: float = 0.015,
         warmup_s: float = 0.04,
-        baseline_decay_db_per_s: float = 3.0,
+        baseline_s: float = 0.15,
+        weaken_hold_s: float = 0.02,
     ) -> None:
         if not (hop_s > 0.0 and math.isfinite(hop_s)):
             raise ValueError(f"hop_s {hop_s!r} must be a positive number of seconds")
         self.hop_s = float(hop_s)
         self.collapse_db = collapse_db
         self.deep_collapse_db = deep_collapse_db
+        self.collapsed_ratio_db = collapsed_ratio_db
         self.even_rise_db = even_rise_db
         self.weaken_db = weaken_db
         self.rise_db = rise_db
         self._silence_frames = max(1, int(round(silence_s / hop_s)))
         self._confirm_frames = max(1, int(round(confirm_s / hop_s)))
         self._warmup_frames = int(round(warmup_s / hop_s))
-        self._decay_per_frame = baseline_decay_db_per_s * hop_s
+        self._baseline_alpha = 1.0 - math.exp(-hop_s / baseline_s)
+        self._weak_frames = max(1, int(round(weaken_hold_s / hop_s)))
         # reference span for rises: frames 150..70 ms before now
         self._ref_far = max(2, int(round(0.15 / hop_s)))
         self._ref_near = max(1, int(round(0.07 / hop_s)))
@@ -190,11 +201,13 @@ class RegisterMonitor:
         self._base_r2 = -math.inf
         self._base_r3 = -math.inf
         self._weak_run = 0
+        self._back_run = 0
         self._hist_level = np.full(self._hist_len, np.nan)
         self._hist_even = np.full(self._hist_len, np.nan)
         self._hist_mult3 = np.full(self._hist_len, np.nan)
         self._hist_steady = np.zeros(self._hist_len, dtype=bool)
         self._hist_pos = 0
+        self._intact = False
         self._steady_level = math.nan  # level of the last steady stretch, >= 70 ms back
 
     def lock(self, target_hz: float | None) -> None:
@@ -227,7 +240,7 @@ class RegisterMonitor:
         self._hist_level[i] = level_db
         self._hist_even[i] = even_db
         self._hist_mult3[i] = mult3_db
-        self._hist_steady[i] = self._state == "steady"
+        self._hist_steady[i] = self._intact
         self._hist_pos += 1
         if self._hist_pos > self._ref_near:
             j = (self._hist_pos - 1 - self._ref_near) % self._hist_len
@@ -268,6 +281,7 @@ class RegisterMonitor:
         RegisterReading
         """
         if f0_hz is None:
+            self._intact = False
             self._unvoiced_run += 1
             self._push(level_dbfs, math.nan, math.nan)
             if self._unvoiced_run >= self._silence_frames and self._held_hz is not None:
@@ -292,6 +306,9 @@ class RegisterMonitor:
         odd_db, even_db, off3_db, mult3_db = evidence_db[m - 1] if related else evidence_db[0]
         r2 = odd_db - even_db
         r3 = off3_db - mult3_db
+        # the held note's odd harmonics intact (no weakening yet): its level is the blowing
+        # level a later jump is compared with
+        self._intact = m == 1 and self._state == "steady" and r2 >= self._base_r2 - 2.0
 
         if not related:
             self._push(level_dbfs, even_db, mult3_db)
@@ -310,15 +327,20 @@ class RegisterMonitor:
 
         if self._state == "jumped":
             self._push(level_dbfs, even_db, mult3_db)
-            back = r2 > self._base_r2 - 0.5 * self.collapse_db if self._mode == 2 else r3 > self._base_r3 - 0.5 * self.collapse_db
-            if m == 1 and back:
+            base = self._base_r2 if self._mode == 2 else self._base_r3
+            ratio = r2 if self._mode == 2 else r3
+            back = m == 1 and ratio > max(base - self.weaken_db, self.collapsed_ratio_db)
+            self._back_run = self._back_run + 1 if back else 0
+            if self._back_run >= self._weak_frames:  # the held note's own harmonics are back
                 self._state, self._jump, self._mode = "steady", None, 1
+                self._back_run = 0
                 return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db, pushed=True)
             if self._target_hz is None:
                 self._held_hz = f0_hz / m
             return RegisterReading("jumped", self._jump, self._held_or_target(), self._mode)
 
-        if self._frames_in_note >= self._warmup_frames:
+        locked_fresh = self._target_hz is not None and m > 1 and not math.isfinite(self._base_r2)
+        if self._frames_in_note >= self._warmup_frames or locked_fresh:
             jump_mode = self._jump_mode(m, r2, r3, even_db, mult3_db)
             if jump_mode:
                 # against the level the note was blown at while steady (~70 ms and more
@@ -327,7 +349,9 @@ class RegisterMonitor:
                 ref_level = self._steady_level
                 if not math.isfinite(ref_level):
                     ref_level = self._reference(self._hist_level)
-                rise = level_dbfs - ref_level
+                # no reference at all (a locked note that started in the upper register):
+                # blowing too hard is the usual cause (common practice)
+                rise = level_dbfs - ref_level if math.isfinite(ref_level) else math.inf
                 self._state = "jumped"
                 self._mode = jump_mode
                 self._jump = "overblown" if rise >= self.rise_db else "vented"
@@ -346,7 +370,7 @@ class RegisterMonitor:
                     self._start_note(f0_hz)
                     return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db)
                 return RegisterReading(self._state, None, self._held_or_target(), 1)
-        return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db)
+        return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db, m_related=m)
 
     def _held_or_target(self) -> float | None:
         """Held note to report."""
@@ -354,15 +378,20 @@ class RegisterMonitor:
 
     def _jump_mode(self, m: int, r2: float, r3: float, even_db: float, mult3_db: float) -> int:
         """Mode the pipe jumped to (2 or 3) on this frame's evidence, else 0."""
+        if self._target_hz is not None and m in (2, 3) and not math.isfinite(self._base_r2):
+            # locked, and the note never sounded in the first register: judge the target's
+            # own harmonics directly, with no baseline
+            ratio = r2 if m == 2 else r3
+            return m if ratio <= self.collapsed_ratio_db - self.collapse_db else 0
         if m in (1, 2):
             drop = self._base_r2 - r2
-            if drop >= self.collapse_db:
+            if drop >= self.collapse_db and r2 <= self.collapsed_ratio_db:
                 rise = even_db - self._reference(self._hist_even)
                 if drop >= self.deep_collapse_db or rise >= self.even_rise_db:
                     return 2
         if m in (1, 3):
             drop = self._base_r3 - r3
-            if drop >= self.collapse_db:
+            if drop >= self.collapse_db and r3 <= self.collapsed_ratio_db:
                 rise = mult3_db - self._reference(self._hist_mult3)
                 if drop >= self.deep_collapse_db or rise >= self.even_rise_db:
                     return 3
@@ -378,6 +407,7 @@ class RegisterMonitor:
         mult3_db: float,
         *,
         pushed: bool = False,
+        m_related: int = 1,
     ) -> RegisterReading:
         """Steady or weakening frame of the held note: learn baselines."""
         if not pushed:
@@ -385,14 +415,25 @@ class RegisterMonitor:
         self._frames_in_note += 1
         self._mode = 1
         self._jump = None
+        if m_related > 1:
+            # a foreign register during warm-up: no baseline to learn from it
+            self._state = "steady"
+            return RegisterReading("steady", None, self._held_or_target(), 1)
         if self._target_hz is None:
             self._held_hz = f0_hz
         weak = r2 <= self._base_r2 - self.weaken_db and self._frames_in_note > self._warmup_frames
         self._weak_run = self._weak_run + 1 if weak else 0
-        if self._weak_run >= 2:
+        if self._weak_run >= self._weak_frames:
             self._state = "weakening"
         else:
             self._state = "steady"
-            self._base_r2 = max(r2, self._base_r2 - self._decay_per_frame)
-            self._base_r3 = max(r3, self._base_r3 - self._decay_per_frame)
+            if not math.isfinite(self._base_r2):
+                self._base_r2, self._base_r3 = r2, r3
+            else:
+                # a slow average, not a peak hold: in a reverberant room the harmonics of a
+                # note with vibrato beat by several dB, and a peak hold would read that as
+                # a fall of the odd harmonics
+                a = self._baseline_alpha
+                self._base_r2 += a * (r2 - self._base_r2)
+                self._base_r3 += a * (r3 - self._base_r3)
         return RegisterReading(self._state, None, self._held_or_target(), 1)

@@ -1,0 +1,148 @@
+"""Register monitor on the synthetic duct flute (dsp.synth), whose truth is exact.
+
+Physics checked (Fletcher & Rossing, *The Physics of Musical Instruments*, 1998, open pipe):
+the overblown or vented octave keeps only the multiples of 2 f0 of the fingered note, the
+twelfth only the multiples of 3 f0. "Overblown" = the level rose at the change (blowing
+harder; common practice, the synth steps +8 dB in 30 ms); "vented" = the level kept.
+Targets: each jump reported within 60 ms of the change (by ready_s), with its kind; no jump
+reported on steady notes.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from dsp.analyser import StreamingAnalyser
+from dsp.register import RegisterMonitor, summarise_evidence
+from dsp.synth import NoteEvent, render
+
+SR = 48000
+
+
+def _onsets(frames):
+    """(ready_s, jump kind) of each frame where 'jumped' begins."""
+    out = []
+    prev = None
+    for f in frames:
+        if f.register == "jumped" and prev != "jumped":
+            out.append((f.ready_s, f.jump))
+        prev = f.register
+    return out
+
+
+def _score(jumps, onsets, window_s=0.06):
+    hits, kinds, used = 0, 0, set()
+    for t, kind, _ in jumps:
+        cand = [k for k, (r, _) in enumerate(onsets) if t - 0.05 <= r <= t + window_s and k not in used]
+        if cand:
+            used.add(cand[0])
+            hits += 1
+            kinds += onsets[cand[0]][1] == kind
+    return hits, kinds, len(onsets) - len(used)
+
+
+@pytest.fixture(scope="module")
+def jump_set():
+    rng = np.random.default_rng(5)
+    notes = []
+    for i in range(12):
+        f = float(rng.choice([293.66, 349.23, 392.0, 440.0, 523.25, 587.33, 698.46]))
+        kind = ["overblown", "vented"][i % 2]
+        notes.append(
+            NoteEvent(
+                f, 0.8, jump_at_s=float(rng.uniform(0.35, 0.55)), jump_kind=kind,
+                weaken_s=float(rng.choice([0.0, 0.1])), vibrato_cents=float(rng.uniform(0, 8)), gap_s=0.12,
+            )
+        )
+    return render(notes, SR, seed=9)
+
+
+def test_jumps_found_with_their_kind_within_60_ms(jump_set):
+    frames = StreamingAnalyser(SR).process(jump_set.audio)
+    hits, kinds, false = _score(jump_set.jumps, _onsets(frames))
+    n = len(jump_set.jumps)
+    assert hits / n >= 0.95  # recall
+    assert kinds / n >= 0.9  # kind right (vented vs overblown)
+    assert hits / (hits + false) >= 0.95  # precision
+
+
+def test_sounding_pitch_is_the_octave_once_jumped(jump_set):
+    frames = StreamingAnalyser(SR).process(jump_set.audio)
+    times = np.array([f.time_s for f in frames])
+    truth = jump_set.truth(times)
+    after = truth.settled & (truth.mode == 2)
+    f0 = np.array([np.nan if f.f0_hz is None else f.f0_hz for f in frames])
+    err = np.abs(1200 * np.log2(f0[after] / truth.sounding_f0_hz[after]))
+    assert after.sum() > 100
+    assert np.median(err) < 0.5
+    held = np.array([np.nan if f.held_f0_hz is None else f.held_f0_hz for f in frames])
+    assert np.median(np.abs(1200 * np.log2(held[after] / truth.held_f0_hz[after]))) < 1.0
+
+
+def test_no_jump_on_steady_notes():
+    notes = [
+        NoteEvent(349.23, 0.8, vibrato_cents=12, gap_s=0.1),
+        NoteEvent(392.0, 0.8, crescendo_db=6.0, cents_per_db=2.0, gap_s=0.1),
+        NoteEvent(440.0, 0.8, h1_offset_db=-15.0, gap_s=0.1),  # fundamental under the 2nd harmonic
+        NoteEvent(880.0, 0.8, gap_s=0.1),  # a new note an octave up, after silence
+        NoteEvent(523.25, 0.8),
+    ]
+    r = render(notes, SR, seed=3)
+    frames = StreamingAnalyser(SR).process(r.audio)
+    assert _onsets(frames) == []
+    voiced = [f for f in frames if f.f0_hz is not None]
+    assert sum(f.register == "weakening" for f in voiced) <= 0.02 * len(voiced)
+
+
+def test_weakening_comes_before_the_jump():
+    r = render([NoteEvent(440.0, 1.2, jump_at_s=0.8, jump_kind="vented", weaken_s=0.3)], SR, seed=1)
+    frames = StreamingAnalyser(SR).process(r.audio)
+    t_jump = r.jumps[0][0]
+    states = [(f.ready_s, f.register) for f in frames if f.register is not None]
+    weak = [t for t, s in states if s == "weakening"]
+    assert weak and t_jump - 0.35 < weak[0] < t_jump
+    first_jump = next(t for t, s in states if s == "jumped")
+    assert weak[0] < first_jump <= t_jump + 0.06
+
+
+def test_twelfth_is_a_jump_too():
+    r = render([NoteEvent(261.63, 1.0, jump_at_s=0.5, jump_kind="overblown", jump_mode=3)], SR, seed=2)
+    frames = StreamingAnalyser(SR).process(r.audio)
+    hits, kinds, false = _score(r.jumps, _onsets(frames))
+    assert (hits, kinds, false) == (1, 1, 0)
+    late = [f for f in frames if f.ready_s > r.jumps[0][0] + 0.15 and f.f0_hz is not None and f.ready_s < 0.9]
+    assert late and all(abs(f.f0_hz / (3 * f.held_f0_hz) - 1) < 0.01 for f in late)
+
+
+def test_lock_judges_against_the_target():
+    # a note that starts in the octave register: unlocked it is just a new note; locked to
+    # the fingered note an octave below, it is a jumped register
+    r = render([NoteEvent(440.0, 0.8, mode=2)], SR, seed=4)
+    an = StreamingAnalyser(SR)
+    free = [f for f in an.process(r.audio) if f.f0_hz is not None]
+    assert all(f.register == "steady" for f in free)
+    an.reset()
+    an.lock(440.0)
+    locked = [f for f in an.process(r.audio) if f.f0_hz is not None]
+    steady_part = locked[len(locked) // 4 :]
+    assert all(f.register == "jumped" and f.held_f0_hz == 440.0 for f in steady_part)
+    an.lock(None)
+
+
+def test_monitor_alone_on_hand_made_evidence():
+    mon = RegisterMonitor(0.005)
+    first = np.array([1.0, 0.1, 0.05, 0.02, 0.01, 0.005, 0.002, 0.001])  # all harmonics
+    octave = np.array([1e-9, 1.0, 1e-9, 0.1, 1e-9, 0.03, 1e-9, 0.01])  # only the even ones, louder
+    ev_first = summarise_evidence(np.tile(first, (3, 1))).tolist()
+    ev_oct = summarise_evidence(np.stack([octave, octave, octave])).tolist()
+    for _ in range(60):
+        assert mon.update(440.0, ev_first, -20.0).register == "steady"
+    jumped = mon.update(880.0, ev_oct, -12.0)  # level +8 dB at the change
+    assert (jumped.register, jumped.jump, jumped.mode) == ("jumped", "overblown", 2)
+    assert jumped.held_f0_hz == pytest.approx(440.0)
+    for _ in range(20):
+        assert mon.update(None, ev_first, -90.0).register is None  # silence ends the note
+    assert mon.update(880.0, ev_first, -20.0).register == "steady"  # a new note
+    with pytest.raises(ValueError, match="target_hz -1"):
+        mon.lock(-1.0)
