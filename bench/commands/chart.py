@@ -39,8 +39,8 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
         "AFTER are frame logs or captures files; give the same file with --before-label and "
         "--after-label to compare two passes of one session.",
     )
-    c.add_argument("before", type=Path, metavar="BEFORE")
-    c.add_argument("after", type=Path, metavar="AFTER")
+    c.add_argument("before", type=Path, metavar="BEFORE", help="session before the adjustment")
+    c.add_argument("after", type=Path, metavar="AFTER", help="session after it")
     c.add_argument("--profile", metavar="NAME|FILE", help="instrument profile (default: best fit)")
     c.add_argument("--out", type=Path, metavar="CHANGES.png|CHANGES.svg", help="draw the changes")
     c.add_argument("--csv", type=Path, metavar="CHANGES.csv", help="write the table as CSV")
