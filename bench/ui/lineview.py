@@ -21,6 +21,7 @@ class LineView(Widget):
         super().__init__(*args, **kwargs)
         self._strips: list[Strip] | None = None
         self._strips_width = -1
+        self._base_style = None  # the widget's own Rich style, found once per style change
 
     def refresh(self, *regions, **kwargs):  # type: ignore[override]
         self._strips = None
@@ -28,11 +29,18 @@ class LineView(Widget):
 
     def notify_style_update(self) -> None:
         self._strips = None
+        self._base_style = None
         super().notify_style_update()
+
+    def _base(self):
+        """The widget's Rich style (colour and background from CSS), cached."""
+        if self._base_style is None:
+            self._base_style = self.rich_style
+        return self._base_style
 
     def _build_strips(self, width: int) -> list[Strip]:
         """Strips of ``render()``, each cropped or padded to ``width`` cells."""
-        base = self.rich_style
+        base = self._base()
         console = self.app.console
         text = self.render()
         if not isinstance(text, Text):
@@ -52,4 +60,4 @@ class LineView(Widget):
             self._strips_width = width
         if 0 <= y < len(self._strips):
             return self._strips[y]
-        return Strip.blank(width, self.rich_style)
+        return Strip.blank(width, self._base())

@@ -280,3 +280,20 @@ def test_layout_fits_the_terminal(engine, make_app, size):
             assert shot.stat().st_size > 0
 
     run(scenario())
+
+
+def test_flat_sharp_and_centred_figures_have_different_colours(engine, make_app):
+    async def scenario():
+        app = make_app(engine)
+        colours = {}
+        async with app.run_test(size=SIZE) as pilot:
+            for cents in (+20.0, -20.0, 0.0):
+                engine.show(at_cents(A4_HZ, cents))
+                await pilot.pause(0.2)
+                face = app.query_one(CentsFace)
+                inked = [seg for y in range(5) for seg in face.render_line(y) if seg.text.strip()]
+                colours[cents] = {seg.style.color for seg in inked}
+        assert all(len(c) == 1 for c in colours.values())
+        assert len({next(iter(c)) for c in colours.values()}) == 3
+
+    run(scenario())
