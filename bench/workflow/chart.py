@@ -359,6 +359,7 @@ def draw_chart_axes(ax, chart: TuningChart) -> None:  # type: ignore[no-untyped-
     regs = sorted({e.register for e in chart.entries})
     n = len(regs)
     ymax = 15.0
+    any_margin = False
     for k, reg in enumerate(regs):
         marker, colour = _REGISTER_STYLE.get(reg, _OTHER_STYLE)
         dx = (k - (n - 1) / 2) * 0.12  # keep registers sharing a note apart
@@ -375,6 +376,15 @@ def draw_chart_axes(ax, chart: TuningChart) -> None:  # type: ignore[no-untyped-
                         capsize=3, markersize=6, linestyle="none", label=label, zorder=3,
                         markerfacecolor=colour if planned else "white")
             ymax = max(ymax, *(abs(y) + e for y, e in zip(ys, err, strict=True)))
+            for x, y, e, entry in zip(xs, ys, err, es, strict=True):
+                margin = entry.capture.register_margin_db  # type: ignore[union-attr]
+                if margin is not None:
+                    any_margin = True
+                    ax.annotate(f"{margin:+.1f} dB", (x, y + e), xytext=(0, 4),
+                                textcoords="offset points", ha="center", fontsize=6, color="#666666")
+    if any_margin:
+        ax.text(0.995, 0.015, "grey dB: level left before the note broke into the next register",
+                transform=ax.transAxes, ha="right", va="bottom", fontsize=6, color="#666666")
     unchecked = chart.unchecked()
     if unchecked:
         trans = blended_transform_factory(ax.transData, ax.transAxes)
@@ -433,8 +443,10 @@ def plot_chart(
 ) -> Path:
     """Save the chart as PNG or SVG (by the suffix of ``path``).
 
-    One series per register (markers and error bars = spread), grey ±5 c guide band, grey
-    crosses along the bottom for unchecked notes, dotted lines at register boundaries. With
+    One series per register (markers and error bars = spread; open markers for notes outside
+    the profile's plan; small grey "+N dB" above a note: its register margin), grey ±5 c
+    guide band, grey crosses along the bottom for unchecked notes, dotted lines at register
+    boundaries. With
     ``blowing`` curves a second panel shows cents against level with the fit and the break.
 
     Raises
