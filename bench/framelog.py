@@ -71,7 +71,7 @@ def frame_row(
         _num(frame.f0_hz, 4) if voiced else "",
         _num(frame.clarity, 3),
         _num(frame.level_dbfs, 2),
-        mapping.note if voiced and mapping else "",
+        safe_cell(mapping.note) if voiced and mapping else "",
         _num(mapping.target_hz, 4) if voiced and mapping else "",
         _num(mapping.cents_raw, 3) if voiced and mapping else "",
         _num(mapping.cents, 3) if voiced and mapping else "",
@@ -80,13 +80,13 @@ def frame_row(
         _num(frame.odd_even_db, 2) if voiced else "",
         *(_num(h, 2) if h is not None else "" for h in harm),
         safe_cell(str(settings.temperament)),
-        settings.tonic,
+        safe_cell(str(settings.tonic)),
         _num(settings.a4_hz, 2),
         _num(settings.temp_c, 2),
         _num(settings.ref_temp_c, 2),
         "1" if frame.clipped else "0",
         _num(frame.held_f0_hz, 4) if voiced else "",
-        locked_note or "",
+        safe_cell(locked_note or ""),
         _num(settings.rh_percent, 1) if settings.rh_percent is not None else "",
     ]
     return row
@@ -214,10 +214,37 @@ class CsvFrameLog:
         self.close()
 
 
+def _complete_end(raw) -> int:  # type: ignore[no-untyped-def]
+    """Byte offset just past the last line end of a binary file (drops a torn last line)."""
+    raw.seek(0, os.SEEK_END)
+    pos = raw.tell()
+    while pos > 0:
+        step = min(65536, pos)
+        raw.seek(pos - step)
+        i = raw.read(step).rfind(b"\n")
+        if i >= 0:
+            return pos - step + i + 1
+        pos -= step
+    return 0
+
+
+def _complete_lines(raw, end: int) -> Iterator[str]:  # type: ignore[no-untyped-def]
+    """Decoded lines of ``raw`` up to byte ``end``, line ends kept (so quoted CRs stay CRs)."""
+    raw.seek(0)
+    done = 0
+    for line in raw:
+        done += len(line)
+        if done > end:
+            return
+        yield line.decode("utf-8")
+
+
 def iter_frame_log(path: Path | str) -> Iterator[dict[str, str]]:
     """Rows of a frame log as dicts, tolerating a torn last line (a killed writer).
 
-    A last line without its line end, or with fewer cells than the header, is dropped.
+    A last line without its line end (even one cut inside a UTF-8 character), or with fewer
+    cells than the header, is dropped. The file is read line by line, so memory does not grow
+    with the log's length.
 
     Raises
     ------
@@ -226,23 +253,27 @@ def iter_frame_log(path: Path | str) -> Iterator[dict[str, str]]:
     """
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        raw = path.open("rb")
     except FileNotFoundError:
         raise LogError(f"no such log file: {path}") from None
-    except UnicodeDecodeError:
-        raise LogError(f"{path} is not a UTF-8 frame log") from None
     except OSError as exc:
         raise LogError(f"cannot read {path}: {exc.strerror or exc}") from None
-    if text and not text.endswith("\n"):
-        text = text[: text.rfind("\n") + 1]  # torn last line
-    reader = csv.reader(io.StringIO(text, newline=""))
-    header = next(reader, None)
-    if header is None or tuple(header[: len(FRAME_LOG_COLUMNS)]) != FRAME_LOG_COLUMNS:
-        raise LogError(f"{path} is not a frame log (its header differs); give a CSV written by bench")
-    for cells in reader:
-        if len(cells) < len(FRAME_LOG_COLUMNS):
-            continue
-        yield dict(zip(header, cells, strict=False))
+    with raw:
+        try:
+            reader = csv.reader(_complete_lines(raw, _complete_end(raw)))
+            header = next(reader, None)
+            if header is None or tuple(header[: len(FRAME_LOG_COLUMNS)]) != FRAME_LOG_COLUMNS:
+                raise LogError(f"{path} is not a frame log (its header differs); give a CSV written by bench")
+            for cells in reader:
+                if len(cells) < len(FRAME_LOG_COLUMNS):
+                    continue
+                yield dict(zip(header, cells, strict=False))
+        except UnicodeDecodeError:
+            raise LogError(f"{path} is not a UTF-8 frame log; give a CSV written by bench") from None
+        except csv.Error as exc:
+            raise LogError(f"{path} is not a valid CSV ({exc}); give a CSV written by bench") from None
+        except OSError as exc:
+            raise LogError(f"cannot read {path}: {exc.strerror or exc}") from None
 
 
 def read_frame_log(path: Path | str) -> list[dict[str, str]]:
