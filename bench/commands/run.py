@@ -290,8 +290,8 @@ def _run_unattended(args, source, settings, log_path, log_rate, duration_s) -> i
 
 
 def _is_live(engine: Any) -> bool:
-    """True for a microphone or a real-time paced source (wall time counts)."""
-    return bool(getattr(engine.source, "_pacer", None) is None or engine.source._pacer.realtime)  # noqa: SLF001
+    """True for a microphone or a real-time paced source (wall time counts too)."""
+    return bool(getattr(engine.source, "realtime", True))
 
 
 def _finish_notes(tracker, lines) -> None:

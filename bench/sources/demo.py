@@ -126,6 +126,7 @@ class DemoSource:
             raise DeviceError(f"block size {block_size} is too small; use 16 samples or more")
         self.sample_rate = int(sample_rate)
         self.block_size = int(block_size)
+        self.realtime = bool(realtime)
         self.loops = loops
         self.dropped_blocks = 0
         self.ended = False

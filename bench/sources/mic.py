@@ -197,8 +197,12 @@ class MicSource:
         Frames per callback and per block handed to the engine.
     mix_channels : int >= 1
         1 records channel 0; more records that many channels and averages them.
-    ring_blocks : int >= 2
-        Blocks the ring holds before new ones are dropped (64 x 512 at 48 kHz = 0.68 s).
+    ring_blocks : int >= 2 or None
+        Blocks the ring holds before new ones are dropped; None holds ``ring_s`` seconds.
+    ring_s : float > 0, seconds
+        Input the ring holds when ``ring_blocks`` is None (the engine catches up after a
+        hiccup of the machine this long instead of losing input; 2 s at 48 kHz, block 512,
+        is 188 blocks, 385 kB).
     stall_timeout_s : float > 0, seconds
         A running stream that delivers nothing for this long counts as a lost device.
     clock : Clock, optional
@@ -218,7 +222,8 @@ class MicSource:
         sample_rate: int | None = None,
         block_size: int = DEFAULT_BLOCK_SIZE,
         mix_channels: int = 1,
-        ring_blocks: int = 64,
+        ring_blocks: int | None = None,
+        ring_s: float = 2.0,
         stall_timeout_s: float = 2.0,
         clock: Clock | None = None,
     ) -> None:
@@ -234,7 +239,10 @@ class MicSource:
         self.stall_timeout_s = float(stall_timeout_s)
         self._requested_rate = sample_rate
         self._clock = clock or SystemClock()
-        self._ring = BlockRing(ring_blocks, self.block_size)
+        self._ring_blocks = ring_blocks
+        self._ring_s = float(ring_s)
+        self._ring = BlockRing(ring_blocks or self._blocks_for(sample_rate or 48000), self.block_size)
+        self._full_drops_before = 0  # drops counted by rings of earlier streams
         self.sample_rate = int(sample_rate or 48000)
         self.ended = False
         self.description = f"microphone {device if device is not None else '(default)'}"
@@ -251,7 +259,7 @@ class MicSource:
     @property
     def dropped_blocks(self) -> int:
         """Input overflows plus blocks that found the ring full, since construction."""
-        return self._overflows + self._ring.full_drops
+        return self._overflows + self.full_drops
 
     @property
     def overflows(self) -> int:
@@ -261,7 +269,10 @@ class MicSource:
     @property
     def full_drops(self) -> int:
         """Blocks dropped because the engine had not taken the ring's blocks yet."""
-        return self._ring.full_drops
+        return self._full_drops_before + self._ring.full_drops
+
+    def _blocks_for(self, sample_rate: int) -> int:
+        return max(2, int(np.ceil(self._ring_s * sample_rate / self.block_size)))
 
     def _callback(self, indata: NDArray[np.float32], frames: int, time_info: Any, status: Any) -> None:
         if status.input_overflow:
@@ -304,6 +315,10 @@ class MicSource:
             ) from None
         self.device = dev
         self.sample_rate = rate
+        capacity = self._ring_blocks or self._blocks_for(rate)
+        if capacity != self._ring.capacity:  # sized before the stream opens, never in the callback
+            self._full_drops_before += self._ring.full_drops
+            self._ring = BlockRing(capacity, self.block_size)
         self._ring.clear()
         self._finished = False
         self._stopping = False

@@ -47,6 +47,7 @@ class WavFileSource:
             raise AudioFileError(f"block size {block_size} is too small; use 16 samples or more")
         self.path = Path(path)
         self.block_size = int(block_size)
+        self.realtime = bool(realtime)
         info = _file_info(self.path)
         self.sample_rate = int(info.samplerate)
         self._channels = int(info.channels)
