@@ -4,9 +4,9 @@ from __future__ import annotations
 
 from rich.text import Text
 from textual.reactive import reactive
-from bench.ui.lineview import LineView
 
 from bench.ui.glyphs import text_from_cells
+from bench.ui.lineview import LineView
 from bench.ui.readout import offset_side
 
 SCALE_HALF_CENTS = 50.0

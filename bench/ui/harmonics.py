@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from rich.text import Text
 from textual.reactive import reactive
+
 from bench.ui.lineview import LineView
 
 FLOOR_DB = -40.0

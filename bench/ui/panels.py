@@ -8,9 +8,9 @@ from pathlib import Path
 from rich.style import Style
 from rich.text import Text
 from textual.reactive import reactive
-from bench.ui.lineview import LineView
 
 from bench.tuning import TuningSettings
+from bench.ui.lineview import LineView
 
 
 def _signed(value: float | None, unit: str, digits: int = 1) -> str:

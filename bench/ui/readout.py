@@ -4,9 +4,9 @@ from __future__ import annotations
 
 from rich.text import Text
 from textual.reactive import reactive
-from bench.ui.lineview import LineView
 
 from bench.ui.glyphs import GLYPH_ROWS, glyph_width, render_big
+from bench.ui.lineview import LineView
 
 ON_TARGET_CENTS = 5.0
 """Half-width of the "on target" window, cents.

@@ -6,6 +6,7 @@ from dataclasses import dataclass
 
 from rich.text import Text
 from textual.reactive import reactive
+
 from bench.ui.lineview import LineView
 
 

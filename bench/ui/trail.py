@@ -4,9 +4,9 @@ from __future__ import annotations
 
 from rich.text import Text
 from textual.reactive import reactive
-from bench.ui.lineview import LineView
 
 from bench.ui.glyphs import text_from_cells
+from bench.ui.lineview import LineView
 
 TRAIL_HALF_CENTS = 25.0
 """The trail spans -25..+25 cents; points beyond are pinned to the edge row."""

@@ -4,7 +4,6 @@ harmonic bars, the key guide, the held view, and the layout at 80 x 24."""
 from __future__ import annotations
 
 import asyncio
-import math
 from pathlib import Path
 
 import pytest
