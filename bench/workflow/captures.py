@@ -12,9 +12,10 @@ When is a note settled?  (defaults of :class:`CaptureThresholds`)
 * the first ``attack_s`` (150 ms) of a run are the attack and are never used;
 * the run is *settled* once every frame of the last ``settle_s`` (300 ms) lies within
   ``tolerance_cents`` (±3 c) of those frames' median; that median is the stretch's reference;
-* the steady stretch goes on while frames stay within ±3 c of the reference (single stray
-  frames are skipped); it ends when frames stay outside for ``dropout_s``, when the note, mode
-  or settings change, or when the sound stops. Its frames make one capture.
+* the steady stretch goes on while frames stay within ±3 c of the reference (stray frames,
+  off in pitch or even on another note such as an octave slip, are skipped for up to
+  ``dropout_s``); it ends when frames stay outside for ``dropout_s``, when the note, mode or
+  settings change for that long, or when the sound stops. Its frames make one capture.
 
 Spread is the scaled median absolute deviation of the stretch's corrected cents,
 ``1.4826 * median(|c - median(c)|)``: a robust estimate of the frame-to-frame standard
@@ -290,6 +291,11 @@ def capture_from_points(
     )
 
 
+def _run_key_of(p: FramePoint) -> tuple[Any, ...]:
+    """Frames of one run share note, mode, jumped state and settings."""
+    return (p.midi, p.mode, p.register_state == "jumped", p.settings)
+
+
 class CaptureDetector:
     """Find settled notes in a stream of frames, one frame at a time.
 
@@ -353,7 +359,8 @@ class CaptureDetector:
         self._recent: deque[FramePoint] = deque()
         self._held_levels = LevelHistory()
         # settle run
-        self._run_key: tuple[int | None, int | None, bool, SettingsKey] | None = None
+        self._run_key: tuple[Any, ...] | None = None
+        self._foreign: list[FramePoint] = []
         self._run_start_s = 0.0
         self._last_voiced_s = -math.inf
         self._prev_time_s = math.inf
@@ -407,17 +414,38 @@ class CaptureDetector:
             if p.time_s - self._last_voiced_s > th.dropout_s:
                 return self._end_run()
             return None
-        result: Capture | None = None
-        key = (p.midi, p.mode, p.register_state == "jumped", p.settings)
         # a gap is judged beyond the frame spacing itself (a log thinned to 10 rows/s has
         # 100 ms between rows and no gap)
         step = max(0.0, p.time_s - self._prev_time_s)
         self._prev_time_s = p.time_s
-        if key != self._run_key or p.time_s - self._last_voiced_s > th.dropout_s + step:
+        gap = p.time_s - self._last_voiced_s > th.dropout_s + step
+        self._last_voiced_s = p.time_s
+        key = _run_key_of(p)
+        if gap or self._run_key is None:
+            result = self._end_run()
+            return self._feed(p, key) or result
+        if key != self._run_key:
+            # another note: a stray frame (an octave slip, a cracked frame) is waited out; a
+            # change that lasts dropout_s ends the run, and the new note starts at its first frame
+            self._foreign.append(p)
+            if p.time_s - self._foreign[0].time_s < th.dropout_s - 1e-9:
+                return None
+            foreign = self._foreign
+            result = self._end_run()
+            for q in foreign:
+                result = self._feed(q, _run_key_of(q)) or result
+            return result
+        self._foreign = []
+        return self._feed(p, key)
+
+    def _feed(self, p: FramePoint, key: tuple[Any, ...]) -> Capture | None:
+        """Advance the run with a voiced frame of ``key`` (a new key starts a new run)."""
+        th = self.thresholds
+        result: Capture | None = None
+        if key != self._run_key:
             result = self._end_run()
             self._run_key = key
             self._run_start_s = p.time_s
-        self._last_voiced_s = p.time_s
         if p.time_s - self._run_start_s < th.attack_s - 1e-9:
             return result
         if self._post_attack_s is None:
@@ -461,9 +489,7 @@ class CaptureDetector:
         if not self._recent:
             return None
         newest = self._recent[-1]
-        def key_of(q: FramePoint) -> tuple[object, ...]:
-            return (q.midi, q.mode, q.register_state == "jumped", q.settings)
-
+        key_of = _run_key_of
         key = key_of(newest)
         picked: list[FramePoint] = []
         for q in reversed(self._recent):
@@ -506,6 +532,7 @@ class CaptureDetector:
 
     def _end_run(self) -> Capture | None:
         cap = self._emit_stretch() if self._ref_cents is not None else None
+        self._foreign = []
         self._run_key = None
         self._post_attack_s = None
         self._window, self._outliers = [], []

@@ -317,3 +317,19 @@ def test_thinned_log_still_gives_the_captures(scale_rows, every):
     assert [c.midi for c in caps] == list(OFFSETS)
     for cap in caps:
         assert cap.cents == pytest.approx(OFFSETS[cap.midi], abs=0.5)
+
+
+def test_a_stray_octave_frame_does_not_split_the_note():
+    # three frames read an octave high (a pitch tracker's octave slip) inside a steady A4
+    r = render_events([NoteEvent(440.0, 1.5)])
+    rows = truth_rows(r)
+    voiced = [i for i, row in enumerate(rows) if row["f0_hz"]]
+    mid = voiced[len(voiced) // 2]
+    settings = TuningSettings()
+    for i in range(mid, mid + 3):
+        m = map_frequency(880.0, settings)
+        rows[i] = {**rows[i], "f0_hz": "880.0000", "note": m.note, "target_hz": f"{m.target_hz:.4f}",
+                   "cents_raw": "0.000", "cents": "0.000"}
+    caps = captures_from_rows(rows)
+    assert [c.note for c in caps] == ["A4"]
+    assert caps[0].frames == len(voiced) - 30 - 3  # the attack (150 ms at 5 ms) and the slips
