@@ -93,6 +93,7 @@ class StreamingAnalyser:
         Frame step; default 5 ms. At most 10 ms.
     fmin_hz, fmax_hz : float, Hz
         Range of fundamentals reported (default 60 Hz - 4.5 kHz).
+
     **register_options
         Passed to :class:`dsp.register.RegisterMonitor` (thresholds in dB, times in s).
 
@@ -153,6 +154,7 @@ class StreamingAnalyser:
         self._fmax = float(fmax_hz)
         self._register_options = dict(register_options)
         self._monitor = RegisterMonitor(self._hop / sr, **register_options)
+
         df = sr / self._n
         n_bins = self._n // 2 + 1
         self._limit_hz = min(_PEAK_LIMIT_HZ, 0.45 * sr)

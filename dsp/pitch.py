@@ -238,7 +238,7 @@ def refine_f0(
     f_c = np.where(np.isfinite(coarse_hz), coarse_hz, 0.0)
     expect = f_c[:, None] * k[None, :]
     inside = (expect <= limit_hz) & (f_c[:, None] > 0.0)
-    centre = np.clip(np.rint(expect / df).astype(np.intp), 3, n_bins - 4)
+    centre = np.clip(np.rint(expect / df).astype(np.intp), 5, n_bins - 6)
     # peak bin within +-2 bins of the expected harmonic (the Hann main lobe)
     offs = np.arange(-2, 3)
     cand_bins = centre[:, :, None] + offs[None, None, :]
@@ -328,10 +328,22 @@ def _read5(spec: BatchSpectrum, peak_bin: _IntArray) -> tuple[_IntArray, NDArray
 
 
 def reassign_hann2(spec: BatchSpectrum, peak_bin: _IntArray) -> _FloatArray:
-    """Reassigned (fractional) bins under a Hann^2 window at integer ``peak_bin`` (>= 2)."""
-    _, v = _read5(spec, peak_bin)
-    off, _ = _hann2_offset(v)
-    return np.asarray(peak_bin + off, dtype=np.float64)
+    """Reassigned (fractional) bins under a Hann^2 window at integer ``peak_bin`` (>= 3).
+
+    The power-weighted mean over the peak bin and its two neighbours: for a stationary
+    partial all three reassign to the same frequency; for a gliding one (vibrato) each bin
+    reassigns to the frequency at a different instant, and the mean stays at the window
+    centre instead of jumping as the strongest bin changes.
+    """
+    rows = np.arange(peak_bin.shape[0])[:, None, None]
+    j = peak_bin[:, :, None] + np.arange(-3, 4)[None, None, :]
+    v = spec.rect[rows, j].astype(np.complex128)  # bins b-3 .. b+3
+    three = np.stack([v[..., 0:5], v[..., 1:6], v[..., 2:7]], axis=-2)  # (F, K, 3, 5)
+    off, xh = _hann2_offset(three)
+    w = xh.real * xh.real + xh.imag * xh.imag
+    pos = off + np.arange(-1, 2)[None, None, :]
+    mean = (w * pos).sum(axis=-1) / np.maximum(w.sum(axis=-1), 1e-300)
+    return np.asarray(peak_bin + mean, dtype=np.float64)
 
 
 def _clean_reassign(spec: BatchSpectrum, peak_bin: _IntArray, ok: _BoolArray, n_pass: int = 2) -> _FloatArray:

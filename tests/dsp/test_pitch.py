@@ -102,7 +102,7 @@ def test_vibrato_tone_tracks_the_instantaneous_frequency():
     truth = np.interp(tt, t, inst)
     err = np.abs(_cents(f0, truth))
     # an 85 ms window averages a 5 Hz, 15-cent vibrato: ~1 cent at its crests (measured
-    # median 0.69, 95th percentile 1.04 cents)
+    # median 0.48, 95th percentile 0.71 cents)
     assert np.median(err) < 1.0
     assert np.percentile(err, 95) < 2.0
 
