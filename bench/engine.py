@@ -204,6 +204,7 @@ class Engine:
         self._locked_midi: int | None = None
         self._locked_note: str | None = None
         self._lock_generation = 0
+        self._analyser_target_hz: float | None = None
 
         self._log: CsvFrameLog | None = None
         self._log_lock = threading.Lock()
@@ -441,13 +442,14 @@ class Engine:
 
     def _run(self) -> None:
         cpu0_s = time.thread_time()
-        applied_lock = (-1, None)
+        applied_generation, applied_settings = -1, None
         consecutive_errors = 0
         try:
             while not self._stop_event.is_set():
                 settings = self._settings
-                if applied_lock != (self._lock_generation, settings):
-                    applied_lock = (self._lock_generation, settings)
+                if self._lock_generation != applied_generation or settings is not applied_settings:
+                    # the analyser is told in this thread only (it is not thread-safe)
+                    applied_generation, applied_settings = self._lock_generation, settings
                     self._apply_lock(settings)
                 try:
                     block = self._source.read(READ_TIMEOUT_S)
@@ -498,13 +500,22 @@ class Engine:
 
     def _apply_lock(self, settings: TuningSettings) -> None:
         midi = self._locked_midi
-        if midi is None:
+        target_hz = None
+        if midi is not None:
+            target = map_frequency(settings.a4_hz, settings, locked_midi=midi)
+            self._locked_note, target_hz = target.note, target.target_hz
+        else:
             self._locked_note = None
-            self._analyser.lock(None)
+        if target_hz == self._analyser_target_hz:
+            return  # unchanged: leave the register monitor's state alone
+        try:
+            self._analyser.lock(target_hz)
+        except ValueError as exc:
+            self._locked_midi, self._locked_note = None, None
+            self._lock_generation += 1
+            self._emit("source_error", f"cannot lock to {target.note}: {exc}")
             return
-        target = map_frequency(settings.a4_hz, settings, locked_midi=midi)
-        self._locked_note = target.note
-        self._analyser.lock(target.target_hz)
+        self._analyser_target_hz = target_hz
 
     def _recover(self, message: str) -> bool:
         """Report a lost device and reopen it with back-off; False if stopped meanwhile."""

@@ -230,7 +230,7 @@ def test_lock_maps_onto_the_locked_note_and_locks_the_analyser(tmp_path):
     engine.lock(69)
     assert engine.locked_midi == 69
     _run_to_end(engine)
-    assert analysers[-1].locked_hz[-1] == pytest.approx(440.0)
+    assert analysers[-1].locked_hz == [pytest.approx(440.0)]  # told once, in the engine thread
     rows = read_frame_log(log)
     assert {r["note"] for r in rows} == {"A4"}
     assert {r["locked_note"] for r in rows} == {"A4"}
@@ -301,3 +301,21 @@ def test_stop_keeps_the_log_when_the_source_hangs(tmp_path):
         assert len(read_frame_log(log)) == engine.stats.frames == 20 * 512 // 256
     finally:
         release.set()
+
+
+def test_a_lock_the_analyser_refuses_is_released_with_an_event():
+    class PickyAnalyser(FakeAnalyser):
+        def lock(self, target_hz):
+            if target_hz is not None and target_hz < 50:
+                raise ValueError(f"target_hz {target_hz} Hz is outside 50-2000 Hz; lock a playable note")
+            super().lock(target_hz)
+
+    events: list[EngineEvent] = []
+    engine = Engine(ScriptedSource(frame_blocks(sine(440.0, 0.2, RATE), 512)), TuningSettings(),
+                    on_event=events.append, analyser_factory=PickyAnalyser)  # fmt: skip
+    engine.lock(12)  # C0, 16.35 Hz
+    _run_to_end(engine)
+    assert engine.locked_midi is None
+    assert [e.kind for e in events] == ["source_error", "source_ended"]
+    assert events[0].message.startswith("cannot lock to C0: target_hz")
+    assert engine.latest().mapping.note == "A4"
