@@ -14,6 +14,7 @@ import subprocess
 import threading
 from collections.abc import Callable
 from pathlib import Path
+from typing import Any
 
 from bench.errors import SettingsError
 from bench.tuning.air import TEMP_MAX_C, TEMP_MIN_C
@@ -118,7 +119,7 @@ class AirTemperatureFollower:
     def __init__(
         self,
         source: AirTemperatureSource,
-        engine,
+        engine: Any,
         *,
         interval_s: float = 5.0,
         on_error: Callable[[str], None] | None = None,

@@ -14,6 +14,7 @@ import os
 import sys
 import tomllib
 from pathlib import Path
+from typing import Any
 
 from bench.tuning import TuningSettings
 
@@ -75,7 +76,7 @@ def load_saved_settings(path: Path | None = None) -> TuningSettings | None:
         _warn(f"saved settings {path} have no [tuning] table; using defaults")
         return None
     defaults = TuningSettings()
-    changes: dict[str, object] = {}
+    changes: dict[str, Any] = {}
     for f in dataclasses.fields(TuningSettings):
         if f.name == "custom_temperament" or f.name not in table:
             continue

@@ -130,9 +130,14 @@ class EngineStats:
 class Analyser(Protocol):
     """What the engine needs of :class:`dsp.analyser.StreamingAnalyser`."""
 
-    sample_rate: int
-    frame_size: int
-    hop_size: int
+    @property
+    def sample_rate(self) -> int | float: ...
+
+    @property
+    def frame_size(self) -> int: ...
+
+    @property
+    def hop_size(self) -> int: ...
 
     def process(self, block: NDArray[np.float32]) -> list[Frame]: ...
 

@@ -3,6 +3,11 @@
 from __future__ import annotations
 
 import argparse
+from collections.abc import Sequence
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from bench.sources.mic import InputDevice
 
 
 def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
@@ -15,7 +20,7 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     p.set_defaults(func=run_devices)
 
 
-def format_devices(devices, default_index: int | None) -> list[str]:
+def format_devices(devices: Sequence[InputDevice], default_index: int | None) -> list[str]:
     """Table lines for :func:`bench.sources.mic.list_input_devices` output."""
     width = max([len(d.name) for d in devices] + [4])
     lines = [f"   {'index':>5}  {'name':<{width}}  {'ch':>3}  {'rate Hz':>8}  host API"]

@@ -14,10 +14,17 @@ import queue
 import sys
 import time
 from pathlib import Path
-from typing import Any
+from collections.abc import Callable
+from typing import TYPE_CHECKING, Any
 
 from bench.commands.options import add_tuning_options, settings_from_args
 from bench.errors import BenchError, DeviceError, LogError, SettingsError
+from bench.tuning import TuningSettings
+
+if TYPE_CHECKING:
+    from bench.engine import EngineEvent
+    from bench.heldnotes import HeldNoteTracker
+    from bench.reading import Reading
 
 INPUT_HELP = "mic (default for run), demo (the built-in instrument), or an audio FILE"
 TEMP_INTERVAL_S = 5.0
@@ -156,7 +163,7 @@ def run_command(args: argparse.Namespace) -> int:
     return _run_screen(args, source, settings, log_path, log_rate, notice)
 
 
-def _start_follower(args: argparse.Namespace, engine: Any, report) -> Any:
+def _start_follower(args: argparse.Namespace, engine: Any, report: Callable[[str], None]) -> Any:
     if args.temp_source is None:
         return None
     from bench.airtemp import AirTemperatureFollower, AirTemperatureSource
@@ -168,7 +175,9 @@ def _start_follower(args: argparse.Namespace, engine: Any, report) -> Any:
     return follower
 
 
-def _start_engine(make, source: Any, args: argparse.Namespace) -> tuple[Any, str | None]:
+def _start_engine(
+    make: Callable[[Any], Any], source: Any, args: argparse.Namespace
+) -> tuple[Any, str | None]:
     """Build and start the engine; an unusable default microphone falls back to the demo.
 
     Returns the engine and a one-line notice when it fell back (None otherwise).
@@ -187,7 +196,14 @@ def _start_engine(make, source: Any, args: argparse.Namespace) -> tuple[Any, str
     return engine, None
 
 
-def _run_screen(args, source, settings, log_path, log_rate, notice) -> int:
+def _run_screen(
+    args: argparse.Namespace,
+    source: Any,
+    settings: TuningSettings,
+    log_path: Path | None,
+    log_rate: float | None,
+    notice: str | None,
+) -> int:
     from bench.config import default_log_dir
     from bench.engine import Engine
 
@@ -219,19 +235,26 @@ def _run_screen(args, source, settings, log_path, log_rate, notice) -> int:
     return int(result) if isinstance(result, int) else 0
 
 
-def _run_unattended(args, source, settings, log_path, log_rate, duration_s) -> int:
+def _run_unattended(
+    args: argparse.Namespace,
+    source: Any,
+    settings: TuningSettings,
+    log_path: Path | None,
+    log_rate: float | None,
+    duration_s: float | None,
+) -> int:
     from bench.engine import Engine
     from bench.heldnotes import HeldNoteTracker
 
     lines: queue.SimpleQueue[tuple[str, str]] = queue.SimpleQueue()
     tracker = HeldNoteTracker()
 
-    def on_reading(reading) -> None:  # engine thread
+    def on_reading(reading: Reading) -> None:  # engine thread
         note = tracker.push(reading.frame, reading.mapping, reading.settings)
         if note is not None:
             lines.put(("out", note.describe()))
 
-    def on_event(event) -> None:  # engine thread
+    def on_event(event: EngineEvent) -> None:  # engine thread
         if event.kind in ("jump", "weakening", "log_started"):
             return  # shown in the held-note lines / the first line
         lines.put(("err", f"{event.kind.replace('_', ' ')}: {event.message}"))
@@ -294,7 +317,7 @@ def _is_live(engine: Any) -> bool:
     return bool(getattr(engine.source, "realtime", True))
 
 
-def _finish_notes(tracker, lines) -> None:
+def _finish_notes(tracker: HeldNoteTracker, lines: queue.SimpleQueue[tuple[str, str]]) -> None:
     note = tracker.finish()
     if note is not None:
         lines.put(("out", note.describe()))

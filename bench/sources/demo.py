@@ -10,6 +10,7 @@ C6, a slightly flat E5, one note overblown into the octave and one vented octave
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -64,14 +65,14 @@ DEMO_SCALE: tuple[DemoNote, ...] = (
 )
 
 
-def demo_events(a4_hz: float = 440.0):
+def demo_events(a4_hz: float = 440.0) -> list[Any]:
     """The demo loop as :class:`dsp.synth.NoteEvent` objects (pitch at ``a4_hz``)."""
     from dsp.synth import NoteEvent
 
     events = []
     for i, note in enumerate(DEMO_SCALE):
         f0_hz = a4_hz * 2 ** ((note.midi - 69) / 12) * 2 ** (note.cents / 1200)
-        kwargs = {}
+        kwargs: dict[str, Any] = {}
         if note.jump is not None:
             kwargs = {"jump_at_s": note.duration_s * 0.45, "jump_kind": note.jump}
         events.append(

@@ -4,6 +4,7 @@ time (against an injected clock) or handed out as fast as the engine takes it.""
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -98,7 +99,7 @@ class WavFileSource:
             f.close()
 
 
-def _file_info(path: Path):
+def _file_info(path: Path) -> Any:
     """soundfile.info with one-line errors."""
     import soundfile as sf
 
