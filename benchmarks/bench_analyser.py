@@ -45,7 +45,9 @@ TARGETS = (
 
 
 def _fmt(x: float, spec: str) -> str:
-    return "   -  " if x is None or not np.isfinite(x) else format(x, spec)
+    if x is None or not np.isfinite(x):
+        return "-".rjust(int(spec.split(".")[0]))
+    return format(x, spec)
 
 
 def accuracy(items: list, methods: dict) -> dict:
@@ -64,11 +66,11 @@ def accuracy(items: list, methods: dict) -> dict:
                 reg.add(it, track)
         run_times[name] = time.perf_counter() - t0
         print(f"\n== {name}  ({run_times[name]:.1f} s for the corpus)")
-        print(f"{'category':<13}{'frames':>7}{'med|e|c':>9}{'p95|e|c':>9}{'gross%':>8}{'octave%':>8}"
+        print(f"{'category':<13}{'frames':>7}{'med|e|c':>10}{'p95|e|c':>10}{'gross%':>8}{'octave%':>8}"
               f"{'RPA':>7}{'Vrec%':>8}{'Vfa%':>7}")
         for c in CATEGORIES:
             s = pools[c].summary()
-            print(f"{c:<13}{int(s['frames']):>7}{_fmt(s['median_c'], '9.4f')}{_fmt(s['p95_c'], '9.3f')}"
+            print(f"{c:<13}{int(s['frames']):>7}{_fmt(s['median_c'], '10.4f')}{_fmt(s['p95_c'], '10.3f')}"
                   f"{_fmt(s['gross_pct'], '8.2f')}{_fmt(s['octave_pct'], '8.2f')}{_fmt(s['rpa'], '7.3f')}"
                   f"{_fmt(s['v_recall_pct'], '8.2f')}{_fmt(s['v_false_pct'], '7.2f')}")
     return {"register": reg}
@@ -89,6 +91,11 @@ def print_register(reg: RegisterScore) -> None:
         dtxt = f"delay to ready_s median {np.median(dl):.1f} ms, max {dl.max():.1f} ms, <= 60 ms: {within:.2f}" if dl.size else "no delays"
         print(f"{k:<10} true {n_true:3d}  detected {n_det:3d}  matched {n_hit:3d}  recall {rec:.3f}  "
               f"precision {prec:.3f}  {dtxt}")
+    if reg.missed:
+        print("missed changes: " + ", ".join(f"{k}: {v}" for k, v in sorted(reg.missed.items())))
+    if reg.false_by_category:
+        print("detections matching no change (wrong kind, or none there), by category: "
+              + ", ".join(f"{k}: {v}" for k, v in reg.false_by_category.items()))
     if reg.weakening_true:
         print(f"weakening phase flagged before {reg.weakening_seen}/{reg.weakening_true} changes that had one")
 

@@ -9,7 +9,7 @@ steady        the same with breath noise (-35 dB) and attack chiff
 vibrato       vibrato 10-40 c at 4-7 Hz, pitch rising with a crescendo
 low           60-130 Hz
 high          2000-4500 Hz
-noisy         breath -20 dB, room T60 0.7 s, room noise -55 dBFS
+noisy         breath -20 dB, room T60 0.7 s, room noise -55 dBFS; 1 s gaps (0.3 s scored after the tail)
 phrases       scales on an alto in F, legato and detached, one overblow
 jumps         overblown octave changes (half with a weakening phase)
 vents         vented octave changes
@@ -126,7 +126,7 @@ def build_corpus(quick: bool, sample_rate: int = 48000, seed: int = 1) -> list[I
     add("low", [NoteEvent(float(f), 1.2, level_dbfs=-18.0, gap_s=0.15) for f in _log_uniform(rng, 60, 130, n)], 50, 400)
     add("high", [NoteEvent(float(f), 1.0, level_dbfs=-24.0, gap_s=0.15) for f in _log_uniform(rng, 2000, 4500, n)],
         1500, 6000)
-    add("noisy", [NoteEvent(float(f), 1.2, level_dbfs=-22.0, gap_s=0.5) for f in _log_uniform(rng, 300, 1500, n)],
+    add("noisy", [NoteEvent(float(f), 1.2, level_dbfs=-22.0, gap_s=1.0) for f in _log_uniform(rng, 300, 1500, n)],
         250, 2200, breath_noise_db=-20.0, reverb_s=0.7, room_noise_dbfs=-55.0, _tail_guard_s=0.7)
     for _ in range(1 if quick else 5):
         add("phrases", _phrase(rng, 8 if quick else 10), 300, 1500)

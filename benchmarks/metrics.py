@@ -122,6 +122,8 @@ class RegisterScore:
     detect_delays_s: dict[str, list[float]] = field(default_factory=lambda: {"overblown": [], "vented": []})
     weakening_true: int = 0
     weakening_seen: int = 0
+    false_by_category: dict[str, int] = field(default_factory=dict)  # unmatched detections
+    missed: dict[str, int] = field(default_factory=dict)  # "kind, weakening yes/no" -> count
 
     def add(self, item: Item, track: Track, match_window_s: float = 0.3) -> None:
         frames = track.frames
@@ -166,9 +168,15 @@ class RegisterScore:
                 used.add(best)
                 self.matched[kind] += 1
                 self.detect_delays_s[kind].append(onsets[best][0] - tj)
+            else:
+                key = f"{kind}, {'with' if ev.weaken_s > 0 else 'no'} weakening"
+                self.missed[key] = self.missed.get(key, 0) + 1
             if ev.weaken_s > 0:
                 self.weakening_true += 1
                 w0 = tj - ev.jump_transition_s / 2 - ev.weaken_s
                 span = (ready >= w0) & (ready <= tj + 0.1)
                 if any(regs[i] == "weakening" for i in np.flatnonzero(span)):
                     self.weakening_seen += 1
+        n_false = len(onsets) - len(used)
+        if n_false:
+            self.false_by_category[item.category] = self.false_by_category.get(item.category, 0) + n_false
