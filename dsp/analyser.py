@@ -61,6 +61,8 @@ _FLATNESS_MIN = 0.005  # centre segments within 23 dB of the loudest: level step
 _SEGMENTS = 8
 _PEAK_LIMIT_HZ = 10000.0
 _CHUNK_FRAMES = 32
+_N_PEAKS = 10  # spectral peaks for the coarse match
+_N_FIT_HARMONICS = 12  # harmonics in the refinement (H12 of a duct flute is ~50 dB down)
 
 
 @dataclass(frozen=True, slots=True)
@@ -162,24 +164,7 @@ class StreamingAnalyser:
         self._hi_bin = min(n_bins - 3, int(math.ceil(self._limit_hz / df)))
         self._n_bins = self._hi_bin + 4
         self._fast_bins = self._hi_bin // 2 + 4
-        self._edges = self._band_edges(df, self._n_bins)
         self.reset()
-
-    @staticmethod
-    def _band_edges(df: float, n_bins: int) -> NDArray[np.intp]:
-        """Half-octave band edges (bins) for the noise floor, from 50 Hz."""
-        hz = 50.0 * 2.0 ** (np.arange(0, 20) / 2.0)
-        edges = np.unique(np.clip(np.rint(hz / df).astype(np.intp), 1, n_bins))
-        edges = edges[np.diff(np.concatenate([edges, [n_bins + 100]])) >= 1]
-        out = [int(edges[0])]
-        for e in edges[1:]:
-            if e - out[-1] >= 8:  # at least 8 bins per band for a meaningful median
-                out.append(int(e))
-        if n_bins - out[-1] >= 8:
-            out.append(n_bins)
-        else:
-            out[-1] = n_bins
-        return np.asarray(out, dtype=np.intp)
 
     # -- contract -------------------------------------------------------------------------
 
@@ -263,8 +248,12 @@ class StreamingAnalyser:
             n_frames = (self._n_in - self._next_end) // self._hop + 1
             ends = self._next_end + self._hop * np.arange(n_frames)
             starts = ends - self._n - self._buf_start
-            view = np.lib.stride_tricks.sliding_window_view(self._buf, self._n)
-            batch = np.ascontiguousarray(view[starts])
+            if n_frames == 1:
+                s0 = int(starts[0])
+                batch = self._buf[s0 : s0 + self._n].reshape(1, -1).copy()
+            else:
+                view = np.lib.stride_tricks.sliding_window_view(self._buf, self._n)
+                batch = np.ascontiguousarray(view[starts])
             frames = self._analyse(batch, ends)
             self._next_end = int(ends[-1]) + self._hop
         keep_from = self._next_end - self._n  # absolute index of the next frame's first sample
@@ -342,7 +331,7 @@ class StreamingAnalyser:
         """Refine frame ``i`` of a batch around ``f_hz``."""
         sp = b.spec
         spec = BatchSpectrum(sp.rect[i : i + 1], sp.power[i : i + 1], sp.bin_hz, sp.frame_size)
-        r = refine_f0(spec, b.floor[i : i + 1], np.array([f_hz]), self._limit_hz)
+        r = refine_f0(spec, b.floor[i : i + 1], np.array([f_hz]), self._limit_hz, n_harmonics=_N_FIT_HARMONICS)
         f0 = float(r.f0_hz[0])
         if not math.isfinite(f0):
             return None, None, None
@@ -355,9 +344,9 @@ class StreamingAnalyser:
         floor = band_floor(spec.power)
         top = spec.power[:, self._lo_bin : self._hi_bin].max(axis=1, keepdims=True)
         floor = np.maximum(floor, top * 1e-12)  # digital-silence-clean tones: relative floor
-        peaks = find_peaks(spec, floor, self._lo_bin, self._hi_bin)
+        peaks = find_peaks(spec, floor, self._lo_bin, self._hi_bin, n_peaks=_N_PEAKS)
         coarse = estimate_coarse_f0(peaks, self._fmin * 0.97, self._fmax * 1.03)
-        refined = refine_f0(spec, floor, coarse.f0_hz, self._limit_hz)
+        refined = refine_f0(spec, floor, coarse.f0_hz, self._limit_hz, n_harmonics=_N_FIT_HARMONICS)
         f0 = refined.f0_hz
         f0_safe = np.where(np.isfinite(f0), f0, 1000.0)
 
@@ -385,7 +374,7 @@ class StreamingAnalyser:
             refined=refined,
             voiced=voiced,
             sustain=sustain,
-            clarity=np.clip(clarity, 0.0, 1.0),
+            clarity=np.minimum(np.maximum(clarity, 0.0), 1.0),
             level_dbfs=level,
             fast_level_dbfs=fast_level,
             clip=clipped(x),
@@ -423,7 +412,7 @@ class StreamingAnalyser:
         n_off = np.maximum(n_all - n_on, 1.0)
         dens_on = e_on / np.maximum(n_on, 1.0)
         ratio = (e_off / n_off) / np.maximum(dens_on, 1e-300)
-        return np.asarray(np.clip(1.0 - ratio, 0.0, 1.0) * (n_h > 0), dtype=np.float64)
+        return np.asarray(np.minimum(np.maximum(1.0 - ratio, 0.0), 1.0) * (n_h > 0), dtype=np.float64)
 
     def _evidence(self, fast: BatchSpectrum, f0: NDArray[np.float64]) -> NDArray[np.float64]:
         """Powers at k f0 / m (k = 1..8, m = 1..3), max over +-1 bin of the half window."""
@@ -432,7 +421,7 @@ class StreamingAnalyser:
         m = np.arange(1, EVIDENCE_MODES + 1, dtype=np.float64)
         k = np.arange(1, EVIDENCE_HARMONICS + 1, dtype=np.float64)
         pos = f0[:, None, None] * k[None, None, :] / m[None, :, None]
-        centre = np.clip(np.rint(pos / df).astype(np.intp), 1, n_bins - 2)
+        centre = np.minimum(np.maximum(np.rint(pos / df).astype(np.intp), 1), n_bins - 2)
         rows = np.arange(fast.power.shape[0])[:, None, None]
         p = np.maximum(
             np.maximum(fast.power[rows, centre - 1], fast.power[rows, centre]), fast.power[rows, centre + 1]

@@ -57,4 +57,4 @@ def odd_even_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = 10.0 * np.log10(odd / even)
     ratio = np.where(np.isnan(ratio), 0.0, ratio)
-    return np.asarray(np.clip(ratio, -120.0, 120.0), dtype=np.float64)
+    return np.asarray(np.minimum(np.maximum(ratio, -120.0), 120.0), dtype=np.float64)

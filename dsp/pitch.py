@@ -238,7 +238,7 @@ def refine_f0(
     f_c = np.where(np.isfinite(coarse_hz), coarse_hz, 0.0)
     expect = f_c[:, None] * k[None, :]
     inside = (expect <= limit_hz) & (f_c[:, None] > 0.0)
-    centre = np.clip(np.rint(expect / df).astype(np.intp), 5, n_bins - 6)
+    centre = np.minimum(np.maximum(np.rint(expect / df).astype(np.intp), 5), n_bins - 6)
     # peak bin within +-2 bins of the expected harmonic (the Hann main lobe)
     offs = np.arange(-2, 3)
     cand_bins = centre[:, :, None] + offs[None, None, :]
@@ -317,7 +317,7 @@ def _hann2_offset(v: NDArray[np.complex128]) -> tuple[_FloatArray, NDArray[np.co
     xh = v @ _H2
     num = (v[..., 1] - v[..., 3]) - 0.5 * (v[..., 0] - v[..., 4])
     safe = np.where(np.abs(xh) > 0.0, xh, 1.0)
-    return np.asarray(np.clip((num / (4.0 * safe)).real, -2.0, 2.0), dtype=np.float64), xh
+    return np.asarray(np.minimum(np.maximum((num / (4.0 * safe)).real, -2.0), 2.0), dtype=np.float64), xh
 
 
 def _read5(spec: BatchSpectrum, peak_bin: _IntArray) -> tuple[_IntArray, NDArray[np.complex128]]:
@@ -338,7 +338,7 @@ def reassign_hann2(spec: BatchSpectrum, peak_bin: _IntArray) -> _FloatArray:
     rows = np.arange(peak_bin.shape[0])[:, None, None]
     j = peak_bin[:, :, None] + np.arange(-3, 4)[None, None, :]
     v = spec.rect[rows, j].astype(np.complex128)  # bins b-3 .. b+3
-    three = np.stack([v[..., 0:5], v[..., 1:6], v[..., 2:7]], axis=-2)  # (F, K, 3, 5)
+    three = np.lib.stride_tricks.sliding_window_view(v, 5, axis=-1)  # (F, K, 3, 5)
     off, xh = _hann2_offset(three)
     w = xh.real * xh.real + xh.imag * xh.imag
     pos = off + np.arange(-1, 2)[None, None, :]
@@ -372,7 +372,7 @@ def _clean_reassign(spec: BatchSpectrum, peak_bin: _IntArray, ok: _BoolArray, n_
         for shift, image in shifts:
             src = np.arange(n_h) + shift
             valid = (src >= 0) & (src < n_h)
-            src = np.clip(src, 0, n_h - 1)
+            src = np.minimum(np.maximum(src, 0), n_h - 1)
             a = np.where(valid[None, :], amp[:, src], 0.0)[:, :, None]
             b = beta0[:, src][:, :, None]
             if image:

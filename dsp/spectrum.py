@@ -61,7 +61,7 @@ class BatchSpectrum:
         # to Re((R[k-1] - R[k+1]) / (4 X_h)).
         safe = np.where(np.abs(xh) > 0.0, xh, 1.0)
         offset = ((lo - hi) / (4.0 * safe)).real
-        return np.asarray(bins + np.clip(offset, -2.0, 2.0), dtype=np.float64)
+        return np.asarray(bins + np.minimum(np.maximum(offset, -2.0), 2.0), dtype=np.float64)
 
 
 def analyse_spectrum(frames: _FloatArray, sample_rate: float, n_bins: int | None = None) -> BatchSpectrum:
