@@ -156,6 +156,7 @@ class StreamingAnalyser:
         self._fmax = float(fmax_hz)
         self._register_options = dict(register_options)
         self._monitor = RegisterMonitor(self._hop / sr, **register_options)
+        self._override_frames = int(math.ceil(self._n / 4 / self._hop))
 
         df = sr / self._n
         n_bins = self._n // 2 + 1
@@ -190,6 +191,7 @@ class StreamingAnalyser:
         self._n_in = 0
         self._next_end = self._n
         self._prev_f0: float | None = None
+        self._jumped_run = 0
         self._monitor.lock(None)
         self._monitor.reset()
 
@@ -291,6 +293,7 @@ class StreamingAnalyser:
         clip = b.clip.tolist()
         ends_l = ends.tolist()
         prev = self._prev_f0
+        jumped_run = self._jumped_run
         for i in range(len(ends_l)):
             f0 = f0s[i] if voiced_l[i] else None
             if f0 is None and prev is not None and sustain_l[i] and abs(1200.0 * math.log2(f0s[i] / prev)) <= _HOLD_CENTS:
@@ -298,11 +301,21 @@ class StreamingAnalyser:
             reading = update(f0, evidence[i], fast_level[i])
             h_db: tuple[float, ...] | None = None
             oe_db: float | None = None
-            if f0 is not None:
+            if f0 is None:
+                jumped_run = 0
+            else:
                 held = reading.held_f0_hz
-                if reading.mode > 1 and held is not None and abs(1200.0 * math.log2(f0 / (reading.mode * held))) > 50.0:
+                jumped_run = jumped_run + 1 if reading.register == "jumped" else 0
+                if (
+                    reading.mode > 1
+                    and held is not None
+                    and jumped_run > self._override_frames
+                    and abs(1200.0 * math.log2(f0 / (reading.mode * held))) > 50.0
+                ):
                     # the held note's odd harmonics may linger (reverberation) while the
-                    # octave sounds: measure the sounding note at mode x held
+                    # octave sounds: measure the sounding note at mode x held. Only once the
+                    # change is past this frame's centre: the monitor judges the newest half
+                    # window, whose centre leads this frame's by a quarter window
                     f0, h_db, oe_db = self._refine_single(b, i, reading.mode * held)
                 else:
                     h_db = tuple(harm_db[i])
@@ -325,6 +338,7 @@ class StreamingAnalyser:
                 )
             )
         self._prev_f0 = prev
+        self._jumped_run = jumped_run
         return out
 
     def _refine_single(self, b: _Batch, i: int, f_hz: float) -> tuple[float | None, tuple[float, ...] | None, float | None]:

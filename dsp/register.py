@@ -283,6 +283,9 @@ class RegisterMonitor:
         if f0_hz is None:
             self._intact = False
             self._unvoiced_run += 1
+            if self._state == "jumped":
+                # a jump lasts while the tone does: after a dropout it must be found anew
+                self._state, self._jump, self._mode = "steady", None, 1
             self._push(level_dbfs, math.nan, math.nan)
             if self._unvoiced_run >= self._silence_frames and self._held_hz is not None:
                 self._held_hz = self._target_hz
@@ -322,7 +325,11 @@ class RegisterMonitor:
             if self._pending_run >= self._confirm_frames:
                 self._start_note(f0_hz)
                 return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db)
-            return RegisterReading(self._state, self._jump, self._held_hz, self._mode)
+            # a pitch that is no register of the held note: whatever the held note did is
+            # over (a jump included); the new note is confirmed on the next frames
+            if self._state == "jumped":
+                self._state, self._jump, self._mode = "steady", None, 1
+            return RegisterReading("steady", None, self._held_hz, 1)
         self._pending_hz, self._pending_run = None, 0
 
         if self._state == "jumped":
