@@ -19,6 +19,10 @@ from numpy.typing import NDArray
 DEFAULT_BLOCK_SIZE = 512
 """Samples per block handed to the engine (10.7 ms at 48000 Hz)."""
 
+MAX_LAG_S = 2.0
+"""Most a paced source lets its reader fall behind real time before it drops blocks,
+seconds (the same as the microphone's ring)."""
+
 
 @runtime_checkable
 class AudioSource(Protocol):
@@ -228,3 +232,16 @@ class PacedBlocks:
 
     def delivered(self, n_samples: int) -> None:
         self._samples_out += n_samples
+
+    def overdue_blocks(self, max_lag_s: float) -> int:
+        """Whole blocks to skip so the reader is no more than ``max_lag_s`` behind real time.
+
+        A paced source whose reader fell behind (a starved engine thread) then loses input
+        the way a microphone's full buffer does, counted, instead of growing a backlog.
+        """
+        if not self.realtime:
+            return 0
+        lag_s = self.clock.monotonic() - (self._t0_s + self._samples_out / self.sample_rate)
+        if lag_s <= max_lag_s:
+            return 0
+        return int((lag_s - max_lag_s) * self.sample_rate // self.block_size) + 1

@@ -16,7 +16,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from bench.errors import DeviceError
-from bench.sources.base import DEFAULT_BLOCK_SIZE, Clock, PacedBlocks, SystemClock
+from bench.sources.base import DEFAULT_BLOCK_SIZE, MAX_LAG_S, Clock, PacedBlocks, SystemClock
 
 INSTRUMENT = "Hollin Lane Flute Works 'Wren' alto in F"
 """What the demo plays (an invented instrument from the project's invented workshop)."""
@@ -162,6 +162,11 @@ class DemoSource:
         if not self._running or self.ended:
             return None
         audio = self._rendered()
+        skip = self._pacer.overdue_blocks(MAX_LAG_S)
+        if skip:
+            self.dropped_blocks += skip
+            self._pacer.delivered(skip * self.block_size)
+            self._pos = (self._pos + skip * self.block_size) % len(audio)
         n = min(self.block_size, len(audio) - self._pos)
         if not self._pacer.wait_due(n, timeout_s):
             return None

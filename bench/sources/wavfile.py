@@ -10,7 +10,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from bench.errors import AudioFileError
-from bench.sources.base import DEFAULT_BLOCK_SIZE, Clock, PacedBlocks, SystemClock, to_mono
+from bench.sources.base import DEFAULT_BLOCK_SIZE, MAX_LAG_S, Clock, PacedBlocks, SystemClock, to_mono
 
 
 class WavFileSource:
@@ -80,6 +80,12 @@ class WavFileSource:
     def read(self, timeout_s: float) -> NDArray[np.float32] | None:
         if self._file is None or self.ended:
             return None
+        skip = self._pacer.overdue_blocks(MAX_LAG_S)
+        if skip:  # the reader fell behind real time: lose input as a microphone would
+            self._pending = None
+            skipped = len(self._file.read(skip * self.block_size, dtype="float32", always_2d=True))
+            self.dropped_blocks += skip
+            self._pacer.delivered(skipped)
         if self._pending is None:
             data = self._file.read(self.block_size, dtype="float32", always_2d=True)
             if len(data) == 0:

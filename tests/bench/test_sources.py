@@ -335,3 +335,30 @@ def test_air_temperature_follower_updates_the_settings_and_reports_failure_once(
     f.write_text("?")
     assert follower.update_once() is None and follower.update_once() is None
     assert len(errors) == 1 and engine.settings.temp_c == 24.0
+
+
+def test_paced_sources_drop_counted_blocks_when_the_reader_falls_far_behind(tmp_path):
+    from bench.sources.base import MAX_LAG_S
+
+    clock = ManualClock()
+    src = DemoSource(RATE, block_size=480, clock=clock)
+    src.start()
+    assert src.read(1.0) is not None
+    clock.advance(MAX_LAG_S + 0.1)  # the engine thread was starved for 2.1 s
+    assert src.read(1.0) is not None
+    assert src.dropped_blocks == 11  # 0.1 s over the allowed lag, in 10 ms blocks, rounded up
+    assert src.read(1.0) is not None and src.dropped_blocks == 11
+
+    path = tmp_path / "long.wav"
+    sf.write(path, np.zeros(5 * RATE, dtype=np.float32), RATE)
+    clock = ManualClock()
+    wav = WavFileSource(path, block_size=480, clock=clock)
+    wav.start()
+    wav.read(1.0)
+    clock.advance(MAX_LAG_S + 0.1)
+    wav.read(1.0)
+    assert wav.dropped_blocks == 11
+    n = 2
+    while wav.read(1.0) is not None:
+        n += 1
+    assert n + wav.dropped_blocks == 5 * RATE // 480
