@@ -10,19 +10,23 @@ empty (downward error; decisive for high notes with only two or three partials),
 octave above cannot explain the odd harmonics of a note whose fundamental is weaker than
 its 2nd harmonic (upward error).
 
-Refinement: each harmonic ``k`` of the coarse candidate gives a reassigned frequency
-``f_k``; with independent errors of variance proportional to ``noise / A_k^2``, the
-maximum-likelihood fundamental of ``f_k = k f0 + e_k`` is the weighted least-squares
-solution ``f0 = sum(w_k k f_k) / sum(w_k k^2)``, ``w_k = A_k^2 / noise_k`` (the harmonic
-weighting of e.g. Christensen & Jakobsson, *Multi-Pitch Estimation*, Morgan & Claypool
-2009, ch. 2). Before the fit, the leakage of every other fitted partial (and of the
-negative-frequency images) into each harmonic's bins is subtracted with the exact Hann
-kernel, which removes the interference bias that limits low notes.
+Refinement: each harmonic ``k`` of the coarse candidate gives a frequency ``f_k``,
+reassigned under a Hann^2 window (Auger & Flandrin 1995; the Hann^2 derivative window is
+smooth at the frame edges, so far partials leak into it as 1/d^4 only) and averaged over
+the peak bin and its neighbours by power. With independent errors of variance
+proportional to ``noise / A_k^2``, the maximum-likelihood fundamental of
+``f_k = k f0 + e_k`` is the weighted least-squares solution
+``f0 = sum(w_k k f_k) / sum(w_k k^2)``, ``w_k = A_k^2 / noise_k`` (the harmonic weighting
+of e.g. Christensen & Jakobsson, *Multi-Pitch Estimation*, Morgan & Claypool 2009, ch. 2,
+from memory). For low notes (harmonics closer than 12 bins) the leakage of the two
+neighbours on each side and of the negative-frequency images is first subtracted with the
+exact Dirichlet kernel (two passes), which removes the interference bias that limits them.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -294,7 +298,7 @@ def _best_snr_db(w: _FloatArray) -> _FloatArray:
         return np.asarray(10.0 * np.log10(top), dtype=np.float64)
 
 
-def _dirichlet(delta: NDArray[np.float64], n: int) -> NDArray[np.complex128]:
+def _dirichlet(delta: NDArray[Any], n: int) -> NDArray[np.complex128]:
     """DFT of an n-sample complex exponential ``delta`` bins from a bin (rectangular window)."""
     d = np.asarray(delta)
     den = np.sin(np.pi * d / n)

@@ -12,9 +12,10 @@ All functions work on batches: arrays of shape (n_frames, ...).
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
-import scipy.fft
+import scipy.fft  # type: ignore[import-untyped]
 from numpy.typing import NDArray
 
 __all__ = ["BatchSpectrum", "analyse_spectrum", "hann_kernel_gain", "band_floor"]
@@ -101,7 +102,7 @@ def analyse_spectrum(frames: _FloatArray, sample_rate: float, n_bins: int | None
     return BatchSpectrum(rect=rect, power=power, bin_hz=sample_rate / n, frame_size=n)
 
 
-def _rows(padded: NDArray[np.complex128], bins: _IntArray) -> _IntArray:
+def _rows(padded: NDArray[Any], bins: _IntArray) -> _IntArray:
     """Row index array broadcastable against ``bins``."""
     shape = (padded.shape[0],) + (1,) * (bins.ndim - 1)
     return np.arange(padded.shape[0]).reshape(shape)
