@@ -219,7 +219,7 @@ def _run_screen(
         lambda src: Engine(src, settings, log_path=log_path, log_rows_per_s=log_rate), source, args
     )
     notice = fallback or notice
-    follower = _start_follower(args, engine, lambda message: None)
+    follower = _start_follower(args, engine, lambda message: _tell_screen(engine, f"air temperature: {message}"))
     try:
         accepted = inspect.signature(run_app).parameters
         extras = {
@@ -310,6 +310,16 @@ def _run_unattended(
         f"log: {log_path} ({stats.log_rows} rows)"
     )
     return 0 if stats.state != "error" else 1
+
+
+def _tell_screen(engine: Any, message: str) -> None:
+    """Pass a problem to the screen through the engine's event handler (set by the app)."""
+    from bench.engine import EngineEvent
+
+    handler = engine.on_event
+    if handler is not None:
+        latest = engine.latest()
+        handler(EngineEvent("source_error", message, latest.stream_time_s if latest else 0.0))
 
 
 def _is_live(engine: Any) -> bool:
