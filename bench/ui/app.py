@@ -5,6 +5,11 @@ Ctrl-C. Textual's loop polls :meth:`Engine.latest` with ``set_interval`` (30 Hz 
 never waits on audio. Rare engine events arrive on the engine thread and are posted to the app as
 :class:`BenchApp.EngineReported` messages (``post_message`` is thread-safe and does not wait).
 
+The session workflow runs beside the needle: a :class:`bench.workflow.live.LiveWorkflow` is fed
+the new readings of ``engine.history`` in the same poll. It takes captures (automatically, or
+with the capture key), writes them beside the session log as ``<log stem>.captures.csv``, and
+feeds the tuning chart view and the blowing-curve view (:mod:`bench.ui.workflow_screens`).
+
 Every settings change replaces the engine's immutable settings with ``dataclasses.replace`` and is
 remembered with :func:`bench.config.save_settings` for the next run.
 """
@@ -22,6 +27,7 @@ from typing import Any, ClassVar
 
 from textual.app import App, ComposeResult
 from textual.binding import Binding
+from textual.css.query import NoMatches
 from textual.containers import Horizontal, Vertical
 from textual.message import Message
 from textual.reactive import reactive
@@ -35,15 +41,22 @@ from bench.tuning.mapping import air_correction_cents
 from bench.tuning.notes import note_name, parse_note, parse_pitch_class, pitch_class_name
 from bench.tuning.standards import A4_MAX_HZ, A4_MIN_HZ, PITCH_STANDARDS, check_a4, parse_a4, standard_name
 from bench.tuning.temperaments import TEMPERAMENT_IDS, get_temperament
+from bench.ui.blowing_plot import BlowingPlot, shown_slope
+from bench.ui.capture_line import CaptureLine
 from bench.ui.commands import BenchCommands
 from bench.ui.deviation import DeviationScale
 from bench.ui.dialogs import ValueDialog
 from bench.ui.harmonics import HarmonicBars
 from bench.ui.help_screen import KeyGuide, binding_rows
 from bench.ui.panels import DetailLine, SessionBar, SettingsPanel
-from bench.ui.readout import CentsFace, NoteFace
+from bench.ui.readout import CentsFace, NoteFace, offset_side
 from bench.ui.register import RegisterBanner
 from bench.ui.trail import PitchTrail
+from bench.ui.tuning_map import TuningMap
+from bench.ui.workflow_screens import BlowingScreen, ChartScreen, WorkflowView
+from bench.workflow.chart import TuningChart
+from bench.workflow.live import LiveWorkflow
+from bench.workflow.profiles import InstrumentProfile, get_profile
 
 POLL_HZ = 30.0
 """Default screen update rate, polls of ``engine.latest()`` per second."""
@@ -54,6 +67,14 @@ TRAIL_WINDOW_S = 10.0
 _STATS_EVERY = 6  # polls between reads of engine.stats (5 Hz at 30 Hz)
 _TRAIL_EVERY = 3  # polls between reads of engine.history (10 Hz at 30 Hz)
 _EARLY_EVENTS = 64  # events kept while the app is not yet listening
+_BLOWING_EVERY = 3  # polls between blowing-curve updates on its view (10 Hz at 30 Hz)
+FEED_WINDOW_S = 2.0
+"""Seconds of ``engine.history`` offered to the workflow each poll (readings already fed are
+skipped): a poll late by less than this loses no frame."""
+LABEL_MAX_CHARS = 80
+"""Longest session label, characters."""
+DEFAULT_PROFILE = "alto"
+"""Instrument profile when none is given."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -106,6 +127,12 @@ CONTROLS: tuple[Control, ...] = (
     Control("s", "log", "log", "Start / stop the session log (a new file each start)", True),
     Control("space", "hold", "hold", "Hold the view still / let it run again", True),
     Control("x", "raw", "raw", "Big figure: raw cents / air-corrected cents"),
+    Control("g,enter", "capture", "capture", "Capture the note sounding now (its last half second)", True),
+    Control("G", "auto_capture", "auto capture", "Automatic capture of settled notes on / off"),
+    Control("e", "type_label", "label", "Type the session label put on the next captures"),
+    Control("v", "chart_view", "chart", "Tuning chart view: the whole compass against its targets", True),
+    Control("w", "blowing_view", "blowing", "Blowing-curve view: cents against level, slope, break level", True),
+    Control("escape", "live_view", "live", "Back to the live view"),
     Control("question_mark,f1,h", "guide", "keys", "Key guide (this list)", True),
     Control("q", "quit", "quit", "Quit (stops the engine and closes the log)", True),
 )
@@ -165,6 +192,16 @@ class BenchApp(App[int]):
     temp_follower : object, optional
         Something that keeps the engine's air temperature up to date from a sensor
         (``bench.airtemp.AirTemperatureFollower``); the screen says the air is followed.
+    profile : InstrumentProfile or str, optional
+        Instrument of the session: a built-in name (``alto``, ``soprano``...), a ``.toml``
+        profile file, or a profile; the alto if None.
+    label : str
+        Session label put on the first captures (changed with the label key).
+
+    Raises
+    ------
+    SettingsError
+        An unknown profile, a bad profile file, or a label too long.
     """
 
     CSS_PATH = Path(__file__).with_name("bench.tcss")  # absolute, so subclasses find it too
@@ -206,6 +243,8 @@ class BenchApp(App[int]):
         remember: bool = True,
         poll_hz: float = POLL_HZ,
         temp_follower: Any = None,
+        profile: InstrumentProfile | str | None = None,
+        label: str = "",
     ) -> None:
         super().__init__()
         if not poll_hz > 0:
@@ -229,6 +268,20 @@ class BenchApp(App[int]):
         self._polls = 0
         self._save_warned = False
         self._views: dict[Any, Any] = {}
+        if profile is None:
+            profile = DEFAULT_PROFILE
+        self.profile: InstrumentProfile = get_profile(profile) if isinstance(profile, str) else profile
+        """Instrument of the session."""
+        self.session_label = check_label(label)
+        """Label put on new captures."""
+        self.workflow: LiveWorkflow | None = None
+        """Captures, chart and blowing curve of the session (built on mount)."""
+        self.chart: TuningChart | None = None
+        """Tuning chart of the captures so far."""
+        self._workflow_log: Path | None = None
+        self._seen_captures: set[int] = set()
+        self._last_capture: Any = None
+        self._blowing_line = ""
 
     # -- building -------------------------------------------------------------------
 
@@ -244,6 +297,7 @@ class BenchApp(App[int]):
         yield DeviationScale(id="scale")
         yield DetailLine(id="detail")
         yield RegisterBanner(id="register")
+        yield CaptureLine(id="captures", classes="capture-line")
         with Horizontal(id="lower"):
             yield HarmonicBars(id="harmonics")
             yield PitchTrail(id="trail")
@@ -276,6 +330,7 @@ class BenchApp(App[int]):
             return
         self.settings = self.engine.settings
         self._show_lock()
+        self._start_workflow()
         self._refresh_session()
         self.on_resize()
         if self.notice:
@@ -292,6 +347,7 @@ class BenchApp(App[int]):
 
     def on_unmount(self) -> None:
         self._stop_engine()
+        self._close_workflow()
 
     def _connect_events(self, handler: Callable[[Any], None] | None) -> None:
         """Point the engine's events at ``handler`` (None: disconnect)."""
@@ -317,8 +373,19 @@ class BenchApp(App[int]):
 
     def _poll(self) -> None:
         self._polls += 1
+        self._feed_workflow()  # also while held: measuring and capturing go on
         if self._polls % _STATS_EVERY == 0:
             self._refresh_session()
+        top = self._top_screen()
+        if isinstance(top, WorkflowView):  # the live widgets are hidden: leave them be
+            if isinstance(top, BlowingScreen) and self._polls % _BLOWING_EVERY == 0 and not self.held:
+                self._refresh_blowing(top)
+            elif isinstance(top, ChartScreen):
+                if self._polls % _BLOWING_EVERY == 0 and not self.held:
+                    self._refresh_blowing(top)
+                if self._polls % _STATS_EVERY == 0:
+                    self._refresh_chart_blowing_line(top)
+            return
         if self.held:
             return
         if self._polls % _TRAIL_EVERY == 0:
@@ -347,6 +414,8 @@ class BenchApp(App[int]):
         bar.dropped_blocks = stats.dropped_blocks
         log_path = self.engine.log_path
         bar.log_path = None if log_path is None else str(log_path)
+        if self.workflow is not None and log_path != self._workflow_log:
+            self._follow_log(log_path)
 
     def on_bench_app_engine_reported(self, message: EngineReported) -> None:
         event = message.event
@@ -651,6 +720,227 @@ class BenchApp(App[int]):
     def action_raw(self) -> None:
         self.show_raw = not self.show_raw
 
+    # -- session workflow: captures, label, chart and blowing views ----------------------------
+
+    def _start_workflow(self) -> None:
+        log_path = self.engine.log_path
+        try:
+            self.workflow = LiveWorkflow(
+                profile=self.profile,
+                log_path=log_path,
+                label=self.session_label,
+                auto=True,
+                on_capture=self._on_capture,
+            )
+        except BenchError as exc:  # the captures file cannot be written: capture in memory
+            self.workflow = LiveWorkflow(
+                profile=self.profile, log_path=None, label=self.session_label, auto=True, on_capture=self._on_capture
+            )
+            self.workflow.file_error = str(exc)
+            self.notify(f"captures kept in memory only: {exc}", severity="error", timeout=8)
+        self._workflow_log = log_path
+        self._seen_captures = {c.index for c in self.workflow.captures()}
+        self.chart = self.workflow.chart()
+        self._show_workflow()
+
+    def _close_workflow(self) -> None:
+        workflow, self.workflow = self.workflow, None
+        if workflow is None:
+            return
+        workflow.on_capture = None  # the screen is going: no notes to show
+        try:
+            workflow.close()
+        except BenchError:
+            pass
+
+    def _top_screen(self) -> Any:
+        """The screen on top, or None while the app is closing."""
+        stack = self.screen_stack
+        return stack[-1] if stack else None
+
+    def _feed_workflow(self) -> None:
+        if self.workflow is not None:
+            self.workflow.push_new(self.engine.history(FEED_WINDOW_S))
+
+    def _follow_log(self, log_path: Path | None) -> None:
+        """The session log started, moved or stopped: captures follow it."""
+        self._workflow_log = log_path
+        workflow = self.workflow
+        if workflow is None:
+            return
+        workflow.set_log_path(log_path)
+        if workflow.file_error is not None:
+            self.notify(f"captures kept in memory only: {workflow.file_error}", severity="error", timeout=8)
+        elif workflow.captures_path is not None:
+            self.notify(f"captures go to {workflow.captures_path.name}", timeout=4)
+        self._show_workflow()
+
+    def _on_capture(self, cap: Any) -> None:
+        """A capture was taken or updated (called in the UI thread, from the poll or a key)."""
+        new = cap.index not in self._seen_captures
+        self._seen_captures.add(cap.index)
+        self._last_capture = cap
+        self.chart = self.workflow.chart() if self.workflow is not None else None
+        self._show_workflow()
+        if new:
+            how = "by key" if cap.source == "manual" else "auto"
+            self.notify(
+                f"captured {cap.note} R{cap.register}  {_cents_words(cap.cents)}"
+                f"  (\u00b1{cap.cents_spread:.1f} c, {how})",
+                timeout=3,
+            )
+        elif cap.register_margin_db is not None:
+            self.notify(
+                f"{cap.note} R{cap.register}: {cap.register_margin_db:.1f} dB of breath to spare before it broke",
+                timeout=4,
+            )
+
+    def _show_workflow(self) -> None:
+        """Put the capture state on the live screen and on the workflow view shown."""
+        self._fill_capture_line(self._view(CaptureLine))
+        top = self._top_screen()
+        if isinstance(top, WorkflowView):
+            self.fill_workflow_view(top)
+
+    def _fill_capture_line(self, line: CaptureLine) -> None:
+        workflow, chart = self.workflow, self.chart
+        if workflow is None:
+            return
+        line.auto = workflow.auto
+        line.taken = len(self._seen_captures)
+        cap = self._last_capture
+        line.last = "" if cap is None else f"{cap.note} R{cap.register} {_cents_words(cap.cents, short=True)}"
+        line.label = workflow.label
+        line.instrument = self.profile.name
+        if chart is not None:
+            line.unchecked = len(chart.unchecked())
+            line.compass = sum(1 for e in chart.entries if e.expected)
+        line.problem = workflow.file_error or ""
+
+    def fill_workflow_view(self, view: Any) -> None:
+        """Show the state of the moment on a workflow view (called when it is shown)."""
+        line = _find(view, CaptureLine)
+        if line is None:  # not composed yet: it fills itself when shown
+            return
+        self._fill_capture_line(line)
+        if isinstance(view, ChartScreen):
+            chart = self.chart
+            p = self.profile
+            checked = 0 if chart is None else sum(1 for e in chart.entries if e.expected and e.capture is not None)
+            total = 0 if chart is None else sum(1 for e in chart.entries if e.expected)
+            written = "" if not p.written_offset_semitones else "  \u00b7  names at written pitch"
+            view.query_one("#chart-title", Label).update(
+                f"Tuning chart \u00b7 {p.title} ({p.name}) \u00b7 {checked} of {total} notes checked{written}"
+            )
+            view.query_one(TuningMap).chart = chart
+            cap = self._last_capture
+            if cap is None:
+                last = "no capture yet: hold a note steady, or press g while it sounds"
+            else:
+                margin = "" if cap.register_margin_db is None else f", {cap.register_margin_db:.1f} dB to the break"
+                last = (
+                    f"last capture #{cap.index}: {cap.note} R{cap.register} {_cents_words(cap.cents)} "
+                    f"\u00b1{cap.cents_spread:.1f} c at {cap.level_dbfs:.1f} dBFS{margin}"
+                    f"  [{cap.temperament} on {cap.tonic}, A4 {cap.a4_hz:g} Hz]"
+                )
+            view.query_one("#chart-last", Label).update(last)
+            self._refresh_chart_blowing_line(view)
+        self._refresh_blowing(view)
+
+    def _refresh_blowing(self, view: WorkflowView) -> None:
+        if self.workflow is None:
+            return
+        plot = _find(view, BlowingPlot)
+        if plot is None or not plot.display:
+            return
+        plot.curve = self.workflow.blowing_curve()
+        plot.last_break = self.workflow.last_break()
+
+    def _refresh_chart_blowing_line(self, view: ChartScreen) -> None:
+        if self.workflow is None:
+            return
+        curve = self.workflow.blowing_curve()
+        if curve is None:
+            text = "blowing curve: none yet (w shows it as you play a crescendo)"
+        elif shown_slope(curve) is None:
+            text = (
+                f"blowing curve {curve.note}: level steady ({max(curve.level_range_db, 0.0):.1f} dB span),"
+                f" no slope yet; w shows the curve"
+            )
+        else:
+            text = curve.describe()
+        label = _find(view, "#chart-blowing")
+        if label is not None and text != self._blowing_line:
+            self._blowing_line = text
+            label.update(text)
+
+    def action_capture(self) -> None:
+        if self.workflow is None:
+            return
+        self._feed_workflow()  # the newest frames count too
+        if self.workflow.capture_now() is None:
+            self.notify("nothing is sounding to capture; play the note and press g while it sounds", severity="warning")
+
+    def action_auto_capture(self) -> None:
+        if self.workflow is None:
+            return
+        self.workflow.auto = not self.workflow.auto
+        self._show_workflow()
+        if self.workflow.auto:
+            self.notify("automatic capture ON: each settled note is kept", timeout=3)
+        else:
+            self.notify("automatic capture OFF: press g to capture a note", timeout=3)
+
+    def action_type_label(self) -> None:
+        current = self.workflow.label if self.workflow is not None else self.session_label
+        self.push_screen(
+            ValueDialog(
+                "Label for the next captures (what was done to the instrument)",
+                current,
+                f"e.g. after undercutting hole 3; up to {LABEL_MAX_CHARS} characters; empty for none",
+            ),
+            self.apply_typed_label,
+        )
+
+    def apply_typed_label(self, text: str | None) -> None:
+        """Put a typed label on the next captures; a label too long is refused in one line."""
+        if text is None:
+            return
+        try:
+            label = check_label(text)
+        except SettingsError as exc:
+            self.notify(str(exc), severity="error")
+            return
+        self.session_label = label
+        if self.workflow is not None:
+            self.workflow.label = label
+        self._show_workflow()
+        self.notify(f"next captures labelled {label!r}" if label else "next captures carry no label", timeout=3)
+
+    def _switch_view(self, kind: type[WorkflowView] | None) -> None:
+        """Show the live screen (None) or a workflow view, from the live screen or another view."""
+        top = self._top_screen()
+        if top is not self._main_screen and not isinstance(top, WorkflowView):
+            return  # a dialog or the key guide is open: it keeps the keys
+        if isinstance(top, WorkflowView):
+            self.pop_screen()
+            if isinstance(top, kind or ()):  # the same key again: back to live
+                return
+        if kind is not None:
+            name = "chart" if kind is ChartScreen else "blowing"
+            if not self.is_screen_installed(name):
+                self.install_screen(kind(), name=name)
+            self.push_screen(name)
+
+    def action_chart_view(self) -> None:
+        self._switch_view(ChartScreen)
+
+    def action_blowing_view(self) -> None:
+        self._switch_view(BlowingScreen)
+
+    def action_live_view(self) -> None:
+        self._switch_view(None)
+
     def key_rows(self) -> list[tuple[str, str]]:
         """(keys, description) of every binding of the screen, as the key guide lists them."""
         bindings = list(Binding.make_bindings(self.BINDINGS))
@@ -698,6 +988,44 @@ class BenchApp(App[int]):
         self.change_settings(a4_hz=check_a4(a4_hz))
 
 
+def check_label(text: str) -> str:
+    """A session label as typed, trimmed; control characters are refused.
+
+    >>> check_label("  after undercutting hole 3 ")
+    'after undercutting hole 3'
+
+    Raises
+    ------
+    SettingsError
+        Longer than :data:`LABEL_MAX_CHARS`, or holding a control character.
+    """
+    label = str(text).strip()
+    if len(label) > LABEL_MAX_CHARS:
+        raise SettingsError(
+            f"label of {len(label)} characters is too long; keep it to {LABEL_MAX_CHARS}, e.g. 'after undercutting hole 3'"
+        )
+    if any(ord(ch) < 32 or ord(ch) == 127 for ch in label):
+        raise SettingsError(f"label {label!r} holds a control character; type plain words")
+    return label
+
+
+def _cents_words(cents: float, *, short: bool = False) -> str:
+    """``+3.2 c sharp`` / ``-7.0 c flat`` / ``+0.4 c on target`` (``short``: ``+3 c``)."""
+    side = offset_side(cents)
+    if short:
+        return f"{round(cents):+d} c"
+    words = {"flat": "flat", "sharp": "sharp", "centred": "on target"}.get(side, "")
+    return f"{cents:+.1f} c {words}".rstrip()
+
+
+def _find(view: Any, selector: Any) -> Any:
+    """``view.query_one(selector)``, or None while the view is not composed yet."""
+    try:
+        return view.query_one(selector)
+    except NoMatches:
+        return None
+
+
 def _keys_hint(keys: str) -> str:
     """Key names for the command list, e.g. "key: t"."""
     return "key: " + " / ".join(k.replace("_", " ") for k in keys.split(","))
@@ -713,6 +1041,8 @@ def run_app(
     remember: bool = True,
     poll_hz: float = POLL_HZ,
     temp_follower: Any = None,
+    profile: InstrumentProfile | str | None = None,
+    label: str = "",
 ) -> int:
     """Show the bench screen until the user quits; start and stop the engine.
 
@@ -746,6 +1076,10 @@ def run_app(
         Screen updates per second.
     temp_follower : object, optional
         See :class:`BenchApp`.
+    profile : InstrumentProfile or str, optional
+        Instrument of the session (built-in name or ``.toml`` file); the alto if None.
+    label : str
+        Label of the first captures.
 
     Returns
     -------
@@ -770,6 +1104,8 @@ def run_app(
         remember=remember,
         poll_hz=poll_hz,
         temp_follower=temp_follower,
+        profile=profile,
+        label=label,
     )
     try:
         code = app.run()

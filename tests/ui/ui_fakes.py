@@ -94,6 +94,7 @@ class FakeEngine:
         odd_even_db: float | None = 9.5,
         level_dbfs: float = -18.0,
         clipped: bool = False,
+        held_f0_hz: float | None = None,
     ) -> Reading:
         """Publish a reading of ``f0_hz`` mapped with the real tuning model."""
         time_s = 0.01 * (len(self.readings) + 1)
@@ -109,7 +110,7 @@ class FakeEngine:
             odd_even_db=odd_even_db if voiced else None,
             register=register if voiced else None,
             jump=jump if voiced else None,
-            held_f0_hz=f0_hz,
+            held_f0_hz=f0_hz if held_f0_hz is None else held_f0_hz,
         )
         mapping: NoteMapping | None = (
             map_frequency(f0_hz, self._settings, self.locked_midi) if voiced else None
