@@ -63,6 +63,12 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
             metavar="FILE|cmd:COMMAND",
             help=f"re-read the air temperature (degC) from FILE or a command every {TEMP_INTERVAL_S:g} s",
         )
+        work = p.add_argument_group("session workflow (the screen)")
+        work.add_argument(
+            "--profile", default=None, metavar="NAME|FILE",
+            help="instrument: sopranino, soprano, alto (default), tenor, bass, ... or a .toml profile",
+        )
+        work.add_argument("--label", default="", metavar="TEXT", help="label of the first captures, e.g. 'as made'")
         add_tuning_options(p)
         p.set_defaults(func=run_command)
 
@@ -147,6 +153,12 @@ def run_command(args: argparse.Namespace) -> int:
     if duration_s is not None and not args.no_ui:
         raise SettingsError("--duration applies to --no-ui runs; add --no-ui or leave it out")
     log_rate = _positive("--log-rate", args.log_rate, "rows a second, e.g. 20")
+    if args.no_ui and (args.profile is not None or args.label):
+        raise SettingsError("--profile and --label apply to the screen; leave them out with --no-ui")
+    if args.profile is not None:
+        from bench.workflow.profiles import get_profile
+
+        args.profile = get_profile(args.profile)  # a bad name or file: one line, before any input opens
     base = load_saved_settings()
     settings = settings_from_args(args, base)
     if args.temp_source is not None:
@@ -226,6 +238,8 @@ def _run_screen(
             "log_dir": args.log_dir or default_log_dir(),
             "temp_follower": follower,
             "notice": notice,
+            "profile": args.profile,
+            "label": args.label,
         }
         result = run_app(engine, **{k: v for k, v in extras.items() if k in accepted})
     finally:
