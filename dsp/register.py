@@ -13,7 +13,7 @@ window), not on a smoothed pitch track:
   multiples of 3. Each has a baseline: a slow average (``baseline_s``) learnt while the
   note is steady.
 * **jumped** (mode m = 2 or 3) when, in continuous tone, ``r_m`` falls at least
-  ``collapse_db`` below its baseline and below ``collapsed_ratio_db``, *and* either the energy on the multiples of m rose by
+  ``collapse_db`` below its baseline *and* either the energy on the multiples of m rose by
   ``even_rise_db`` against ~100 ms earlier (the new mode's fundamental takes over; this
   holds in a reverberant room, where the held note's odd harmonics decay only slowly) or
   the collapse is total (``deep_collapse_db``). It is reported at the first such frame.
@@ -390,19 +390,27 @@ class RegisterMonitor:
             # own harmonics directly, with no baseline
             ratio = r2 if m == 2 else r3
             return m if ratio <= self.collapsed_ratio_db - self.collapse_db else 0
-        if m in (1, 2):
-            drop = self._base_r2 - r2
-            if drop >= self.collapse_db and r2 <= self.collapsed_ratio_db:
-                rise = even_db - self._reference(self._hist_even)
-                if drop >= self.deep_collapse_db or rise >= self.even_rise_db:
-                    return 2
-        if m in (1, 3):
-            drop = self._base_r3 - r3
-            if drop >= self.collapse_db and r3 <= self.collapsed_ratio_db:
-                rise = mult3_db - self._reference(self._hist_mult3)
-                if drop >= self.deep_collapse_db or rise >= self.even_rise_db:
-                    return 3
+        if m in (1, 2) and self._collapsed(self._base_r2 - r2, r2, even_db, self._hist_even):
+            return 2
+        if m in (1, 3) and self._collapsed(self._base_r3 - r3, r3, mult3_db, self._hist_mult3):
+            return 3
         return 0
+
+    def _collapsed(self, drop: float, ratio: float, kept_db: float, ring: NDArray[np.float64]) -> bool:
+        """Collapse of the held note's vanishing harmonics (odd ones, or those off the 3s).
+
+        Either they fell ``collapse_db`` under their baseline, no longer dominate
+        (``ratio`` <= +3 dB) and the kept ones (the new mode's) rose ``even_rise_db`` --
+        what a jump does in a reverberant room, where the vanishing ones only decay -- or
+        they fell ``deep_collapse_db`` and sit ``collapsed_ratio_db`` under the kept ones.
+        """
+        if drop < self.collapse_db:
+            return False
+        if drop >= self.deep_collapse_db and ratio <= self.collapsed_ratio_db:
+            return True
+        if ratio > 3.0:
+            return False
+        return kept_db - self._reference(ring) >= self.even_rise_db
 
     def _steady_update(
         self,

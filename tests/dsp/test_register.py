@@ -146,3 +146,24 @@ def test_monitor_alone_on_hand_made_evidence():
     assert mon.update(880.0, ev_first, -20.0).register == "steady"  # a new note
     with pytest.raises(ValueError, match="target_hz -1"):
         mon.lock(-1.0)
+
+
+def test_jumps_in_a_reverberant_room():
+    # level alone misleads in a room (the tail carries the old level); the spectral collapse
+    # of the held note's odd harmonics is judged against their baseline instead.
+    rng = np.random.default_rng(8)
+    notes = [
+        NoteEvent(
+            float(rng.choice([349.23, 440.0, 523.25, 587.33])), 0.8,
+            jump_at_s=float(rng.uniform(0.35, 0.55)), jump_kind=["overblown", "vented"][i % 2], gap_s=0.15,
+        )
+        for i in range(8)
+    ]
+    r = render(notes, SR, seed=6, reverb_s=0.5)
+    frames = StreamingAnalyser(SR).process(r.audio)
+    hits, kinds, false = _score(r.jumps, _onsets(frames))
+    # measured here: 8/8 found, kinds right, no false onset; over a larger mixed set with
+    # vibrato and weakening (T60 0.5 s) recall 0.94 and precision 0.88 (target 0.95 not met)
+    assert hits >= 7
+    assert kinds >= 7
+    assert false <= 1
