@@ -63,6 +63,7 @@ def run_analyze(args: argparse.Namespace) -> int:
                 "analyse them in separate runs"
             )
     failed: list[str] = []
+    warned: list[str] = []
     for i, path in enumerate(paths):
         csv_path = args.csv if args.csv else (args.csv_dir / f"{path.stem}.csv" if args.csv_dir else None)
         bar = ProgressBar(path.name)
@@ -77,6 +78,12 @@ def run_analyze(args: argparse.Namespace) -> int:
         if i:
             print()
         print(format_summary(result, settings))
+        if len(paths) > 1:
+            warned += [f"{path}: {w}" for w in result.warnings if not w.startswith("resampled")]
+    if warned:
+        print(f"\n{len(warned)} warning(s) in the files analysed:", file=sys.stderr)
+        for line in warned:
+            print(f"  {line}", file=sys.stderr)
     if failed:
         print(f"\n{len(failed)} of {len(paths)} files could not be analysed:", file=sys.stderr)
         for line in failed:

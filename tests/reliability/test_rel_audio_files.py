@@ -248,3 +248,15 @@ def test_all_good_folder_exits_0(tmp_path, capsys):
         GOOD[n][0](tmp_path, n)
     assert main(["analyze", str(tmp_path)]) == 0
     assert capsys.readouterr().out.count(" frames voiced") == 2
+
+
+def test_folder_run_repeats_the_warnings_of_damaged_but_analysed_files_at_the_end(tmp_path, capsys):
+    folder = tmp_path / "takes"
+    folder.mkdir()
+    GOOD["pcm_16"][0](folder, "pcm_16")
+    cut = _cut_flac(folder, "half_copied")
+    assert main(["analyze", str(folder)]) == 0  # everything could be analysed
+    err = capsys.readouterr().err
+    tail = err[err.index("warning(s) in the files analysed:"):]
+    assert f"{cut}: stopped reading at" in tail
+    assert "pcm_16" not in tail
