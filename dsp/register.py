@@ -159,7 +159,7 @@ class RegisterMonitor:
         rise_db: float = 3.0,
         silence_s: float = 0.05,
         confirm_s: float = 0.015,
-        warmup_s: float = 0.04,
+        warmup_s: float = 0.1,
         baseline_s: float = 0.15,
         weaken_hold_s: float = 0.02,
     ) -> None:
@@ -442,7 +442,9 @@ class RegisterMonitor:
             self._state = "weakening"
         else:
             self._state = "steady"
-            if not math.isfinite(self._base_r2):
+            if not math.isfinite(self._base_r2) or self._frames_in_note <= self._warmup_frames:
+                # the attack is no reference (a real flute's upper harmonics grow for tens
+                # of ms): follow it directly until the note has settled
                 self._base_r2, self._base_r3 = r2, r3
             else:
                 # a slow average, not a peak hold: in a reverberant room the harmonics of a
