@@ -105,7 +105,12 @@ class HeldNoteTracker:
         assert mapping is not None
         held_hz = frame.held_f0_hz or frame.f0_hz
         assert held_hz is not None
-        held_note = map_frequency(held_hz, settings).note if held_hz != frame.f0_hz else mapping.note
+        held_note = mapping.note
+        if held_hz != frame.f0_hz:
+            try:
+                held_note = map_frequency(held_hz, settings).note
+            except (ValueError, ArithmeticError):  # a held pitch that names no note: keep the sounding one
+                pass
         if self._open is not None and (
             held_note != self._open.note or frame.time_s - self._open.last_voiced_s > GAP_S
         ):
