@@ -31,7 +31,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from dsp.spectrum import BatchSpectrum
+from dsp.spectrum import BatchSpectrum, hann_kernel_gain
 
 __all__ = ["PeakSet", "CoarsePitch", "RefinedPitch", "find_peaks", "estimate_coarse_f0", "refine_f0"]
 
@@ -277,8 +277,6 @@ def refine_f0(
     num = (w * k[None, :] * np.where(used, f_k, 0.0)).sum(axis=1)
     den = (w * k[None, :] ** 2).sum(axis=1)
     f0 = np.where(den > 0.0, num / np.where(den > 0.0, den, 1.0), np.nan)
-    from dsp.spectrum import hann_kernel_gain
-
     amp = np.sqrt(peak_pow) / np.maximum(hann_kernel_gain(bins_frac - peak_bin), 0.5)
     amp = np.where(inside, amp, 0.0)
     return RefinedPitch(

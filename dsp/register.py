@@ -98,11 +98,6 @@ def summarise_evidence(powers: NDArray[np.float64]) -> NDArray[np.float64]:
     return np.asarray(10.0 * np.log10(np.stack([odd, even, off3, on3], axis=-1) + _TINY), dtype=np.float64)
 
 
-def _db(x: float) -> float:
-    """Power to dB with a floor."""
-    return 10.0 * math.log10(x + _TINY)
-
-
 class RegisterMonitor:
     """Frame-by-frame register state of the held note.
 

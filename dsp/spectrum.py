@@ -46,12 +46,6 @@ class BatchSpectrum:
     bin_hz: float
     frame_size: int
 
-    def hann(self, bins: _IntArray) -> NDArray[np.complex128]:
-        """Hann-window spectrum at integer ``bins`` >= 1 (shape (n_frames, ...)), amplitude-normalised."""
-        rows = _rows(self.rect, bins)
-        lo, mid, hi = (self.rect[rows, bins + j].astype(np.complex128) for j in (-1, 0, 1))
-        return (2.0 * mid - (lo + hi)) / self.frame_size
-
     def reassigned_bins(self, bins: _IntArray) -> _FloatArray:
         """Reassigned (fractional) bin position of the energy seen at integer ``bins`` >= 1."""
         rows = _rows(self.rect, bins)
