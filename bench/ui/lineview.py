@@ -2,6 +2,15 @@
 
 The bench screen redraws several views up to 30 times a second; building their lines as
 segments directly costs a fraction of converting a renderable each time.
+
+Two savings per screen update (measured with ``benchmarks/bench_ui.py``):
+
+- a view's component styles are looked up once per style change, not once per repaint
+  (Textual clears its own cache on every repaint);
+- a plain repaint request (a reactive changed) is checked first: when the view would draw
+  the very same text, in the same style and size, nothing is redrawn. A figure that changes
+  below what the view can show (a harmonic moving within one bar cell, the deviation marker
+  within one column) costs one comparison instead of a repaint.
 """
 
 from __future__ import annotations
@@ -17,20 +26,62 @@ class LineView(Widget):
     ``Text`` (lines separated by newlines); lines are turned into strips once per refresh.
     """
 
+    skip_unchanged = True
+    """Check a plain repaint against what is shown and skip it when nothing would change
+    (class switch, so a benchmark can compare both ways)."""
+
     def __init__(self, *args, **kwargs) -> None:
         super().__init__(*args, **kwargs)
         self._strips: list[Strip] | None = None
         self._strips_width = -1
         self._base_style = None  # the widget's own Rich style, found once per style change
+        self._component_styles: dict = {}
+        self._shown: tuple | None = None  # (text, its own style, base style, size) last drawn
+        self._fresh: tuple | None = None  # the same, rendered by the check, not yet drawn
+        self._check_pending = False
 
-    def refresh(self, *regions, **kwargs):  # type: ignore[override]
+    def refresh(self, *regions, repaint: bool = True, layout: bool = False, recompose: bool = False):  # type: ignore[override]
+        if (
+            self.skip_unchanged
+            and repaint
+            and not (regions or layout or recompose)
+            and self.is_mounted
+            and self._shown is not None
+        ):
+            if not self._check_pending:
+                self._check_pending = True
+                self.call_next(self._repaint_if_changed)
+            return self
         self._strips = None
-        return super().refresh(*regions, **kwargs)
+        self._shown = self._fresh = None
+        return super().refresh(*regions, repaint=repaint, layout=layout, recompose=recompose)
+
+    def _repaint_if_changed(self) -> None:
+        """Repaint only when the text, style or size to draw differ from what is shown."""
+        self._check_pending = False
+        text = self._render_text()
+        fresh = (text, text.style, self._base(), self.content_size)
+        if fresh == self._shown:  # Text equality: same characters and spans
+            return
+        self._strips = None
+        self._fresh = fresh
+        super().refresh()
 
     def notify_style_update(self) -> None:
         self._strips = None
         self._base_style = None
+        self._component_styles.clear()
+        self._shown = self._fresh = None
         super().notify_style_update()
+
+    def get_component_rich_style(self, *names: str, partial: bool = False, default=None):  # type: ignore[override]
+        key = (names, partial)
+        style = self._component_styles.get(key)
+        if style is None:
+            style = super().get_component_rich_style(*names, partial=partial, default=default)
+            if default is None or style is not default:
+                self._component_styles[key] = style
+        return style
 
     def _base(self):
         """The widget's Rich style (colour and background from CSS), cached."""
@@ -38,13 +89,21 @@ class LineView(Widget):
             self._base_style = self.rich_style
         return self._base_style
 
+    def _render_text(self) -> Text:
+        text = self.render()
+        return text if isinstance(text, Text) else Text(str(text))
+
     def _build_strips(self, width: int) -> list[Strip]:
         """Strips of ``render()``, each cropped or padded to ``width`` cells."""
         base = self._base()
         console = self.app.console
-        text = self.render()
-        if not isinstance(text, Text):
-            text = Text(str(text))
+        fresh = self._fresh
+        if fresh is not None and fresh[2] == base and fresh[3] == self.content_size:
+            text = fresh[0]
+        else:
+            text = self._render_text()
+        self._fresh = None
+        self._shown = (text.copy(), text.style, base, self.content_size)
         strips = []
         for line in text.split("\n", allow_blank=True):
             line.no_wrap = True

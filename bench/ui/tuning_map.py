@@ -25,7 +25,13 @@ line; up to 12 c, 25 c and beyond, its column reaches one, two or three rows up 
 
 _LABEL_W = 5
 _REGISTER_GAP = 2
-_AXIS = ("\u25b2>25", " +25", " +12", "  \u00b15", " -12", " -25", "\u25bc<25")  # ▲ ±5 ▼
+_AXIS = {
+    3: ("\u25b2>25", " +25", " +12", "  \u00b15", " -12", " -25", "\u25bc<25"),  # ▲ ±5 ▼
+    2: ("\u25b2>12", " +12", "  \u00b15", " -12", "\u25bc<12"),
+}
+ROOMY_ROWS = 34
+"""Terminal rows from which the map draws three rows each side of the line even when the
+registers need two lines (below, two rows: beyond 12 c share the outer row)."""
 _LEGEND = (
     ("\u25b2 sharp", "sharp"),
     ("\u25bc flat", "flat"),
@@ -81,13 +87,22 @@ def _bands(groups: list[_Group], width: int, cell_w: int) -> list[list[_Group]]:
     return bands
 
 
-def map_height(entries: Sequence, width: int) -> int:
-    """Lines the map needs at ``width`` cells: a legend, then per line of registers a title,
-    seven gauge rows, the note names and the cents."""
+def _layout(entries: Sequence, width: int, screen_rows: int):
+    """(registers, cells a note, lines of registers, gauge rows each side of the line)."""
     groups = _groups(entries)
+    cell_w = _cell_width(groups, width)
+    bands = _bands(groups, width, cell_w)
+    half = 3 if len(bands) <= 1 or screen_rows >= ROOMY_ROWS else 2
+    return groups, cell_w, bands, half
+
+
+def map_height(entries: Sequence, width: int, screen_rows: int = ROOMY_ROWS) -> int:
+    """Lines the map needs at ``width`` cells on a terminal ``screen_rows`` high: a legend,
+    then per line of registers a title, the gauge rows, the note names and the cents."""
+    groups, _, bands, half = _layout(entries, width, screen_rows)
     if not groups:
         return 2
-    return 1 + 10 * len(_bands(groups, width, _cell_width(groups, width)))
+    return 1 + (2 * half + 4) * len(bands)
 
 
 class TuningMap(LineView):
@@ -115,7 +130,7 @@ class TuningMap(LineView):
 
     def get_content_height(self, container, viewport, width: int) -> int:
         entries = self.chart.entries if self.chart is not None else ()
-        return map_height(entries, width)
+        return map_height(entries, width, viewport.height)
 
     def _styles(self) -> dict[str, object]:
         return {
@@ -133,28 +148,28 @@ class TuningMap(LineView):
             legend.append("   ")
         if self.chart is None:
             return Text("\n").join([legend, Text("no chart yet", style=st["axis"])])
-        groups = _groups(self.chart.entries)
-        cell_w = _cell_width(groups, width)
+        _, cell_w, bands, half = _layout(self.chart.entries, width, self.app.size.height)
         transposed = self.chart.profile.written_offset_semitones != 0
         lines = [legend]
-        for band in _bands(groups, width, cell_w):
-            lines.extend(self._band(band, cell_w, transposed, st))
+        for band in bands:
+            lines.extend(self._band(band, cell_w, half, transposed, st))
         return Text("\n").join(lines)
 
-    def _band(self, band: list[_Group], cell_w: int, transposed: bool, st: dict) -> list[Text]:
-        """The ten lines of one line of registers."""
-        rows: list[tuple[list[str], list[object]]] = [([], []) for _ in range(10)]
+    def _band(self, band: list[_Group], cell_w: int, half: int, transposed: bool, st: dict) -> list[Text]:
+        """The lines of one line of registers: title, 2 * half + 1 gauge rows, names, cents."""
+        n_rows = 2 * half + 4
+        rows: list[tuple[list[str], list[object]]] = [([], []) for _ in range(n_rows)]
 
         def put(row: int, text: str, style: object) -> None:
             rows[row][0].append(text)
             rows[row][1].append(style)
 
-        for r in range(10):
-            label = _AXIS[r - 1] if 1 <= r <= 7 else ""
+        for r in range(n_rows):
+            label = _AXIS[half][r - 1] if 1 <= r <= 2 * half + 1 else ""
             put(r, f"{label:<{_LABEL_W}}", st["axis"])
         for gi, group in enumerate(band):
             if gi:
-                for r in range(10):
+                for r in range(n_rows):
                     put(r, " " * _REGISTER_GAP, st["axis"])
             span = len(group.entries) * cell_w
             first, last = group.entries[0], group.entries[-1]
@@ -162,26 +177,27 @@ class TuningMap(LineView):
             title = f"R{group.register} {names[0]}\u2013{names[1]}"
             put(0, f"{title[:span]:<{span}}", st["title"])
             for e in group.entries:
-                self._column(e, cell_w, transposed, st, put)
+                self._column(e, cell_w, half, transposed, st, put)
         return [text_from_cells(chars, styles) for chars, styles in rows]
 
     @staticmethod
-    def _column(e, cell_w: int, transposed: bool, st: dict, put) -> None:
-        """One note: gauge rows 1..7 (4 is the target line), name row 8, cents row 9."""
+    def _column(e, cell_w: int, half: int, transposed: bool, st: dict, put) -> None:
+        """One note: gauge rows 1..2*half+1 (half+1 is the target line), then name and cents."""
         ink_w = cell_w - 1
         pad = " "
         cap = e.capture
+        gauge = range(1, 2 * half + 2)
         if cap is None:
-            for r in range(1, 8):
+            for r in gauge:
                 put(r, "\u2591" * ink_w + pad, st["unchecked"])
             figure = "?"
             figure_style = st["unchecked"]
         else:
-            zone = zone_of(cap.cents)
+            zone = max(-half, min(half, zone_of(cap.cents)))
             side = offset_side(cap.cents)
             style = st[side] if side in st else st["axis"]
-            for r in range(1, 8):
-                offset = 4 - r  # +3 at the top row, -3 at the bottom
+            for r in gauge:
+                offset = half + 1 - r  # +half at the top row, -half at the bottom
                 if zone == 0:
                     cell = "\u2588" * ink_w if offset == 0 else " " * ink_w
                     put(r, cell + pad, style if offset == 0 else st["line"])
@@ -199,8 +215,8 @@ class TuningMap(LineView):
         name = e.written if transposed else e.note
         if not e.expected:
             name = name + "*"
-        put(8, f"{name[:cell_w]:<{cell_w}}", st["note"] if cap is not None else st["unchecked"])
-        put(9, f"{figure[:cell_w]:<{cell_w}}", figure_style)
+        put(2 * half + 2, f"{name[:cell_w]:<{cell_w}}", st["note"] if cap is not None else st["unchecked"])
+        put(2 * half + 3, f"{figure[:cell_w]:<{cell_w}}", figure_style)
 
 
-__all__ = ["TuningMap", "ZONE_EDGES_CENTS", "map_height", "zone_of"]
+__all__ = ["ROOMY_ROWS", "TuningMap", "ZONE_EDGES_CENTS", "map_height", "zone_of"]

@@ -291,3 +291,30 @@ def test_key_guide_and_command_list_hold_the_workflow_keys(make_app, engine):
         assert words in by_words, words
         assert key in by_words[words].split(" / ")[0].lower() or key in by_words[words], by_words[words]
         assert words in names
+
+
+def test_chart_view_fits_a_small_terminal(make_app):
+    engine = fresh_engine()
+
+    async def scenario():
+        app = make_app(engine)
+        async with app.run_test(size=(80, 24)) as pilot:
+            hold(engine, hz_at(-400.0 + 30.0), 1.0)  # F4, 30 cents sharp
+            hold(engine, None, 0.2)
+            await until(pilot, lambda: len(app.workflow.captures()) == 1)
+            await pilot.press("v")
+            await until(pilot, lambda: isinstance(app.screen, ChartScreen))
+            await pilot.pause(0.2)
+            chart_map = app.screen.query_one(TuningMap)
+            last = app.screen.query_one("#chart-last")
+            return chart_map.render().plain, chart_map.region, last.region
+
+    text, map_region, last_region = run(scenario())
+    lines = text.splitlines()
+    names = " ".join(lines).split()
+    for note in ("F4", "G5", "G#5", "E6", "F6", "G6"):  # both lines of registers are drawn
+        assert note in names
+    assert map_region.bottom <= 23 and last_region.bottom <= 23  # above the footer
+    # two rows either side of the line: F4's 30 c sharp column tops out with its tip
+    f4 = [row[5:8] for row in lines[2:7]]
+    assert f4 == ["▲▲▲", "███", "███", "   ", "   "]
