@@ -131,8 +131,8 @@ CONTROLS: tuple[Control, ...] = (
     Control("g,enter", "capture", "capture", "Capture the note sounding now (its last half second)", True),
     Control("G", "auto_capture", "auto capture", "Automatic capture of settled notes on / off"),
     Control("e", "type_label", "label", "Type the session label put on the next captures"),
-    Control("v", "chart_view", "chart", "Tuning chart view: the whole compass against its targets", True),
-    Control("w", "blowing_view", "blowing", "Blowing-curve view: cents against level, slope, break level", True),
+    Control("v", "chart_view", "chart", "Tuning chart view: the compass against its targets", True),
+    Control("w", "blowing_view", "blowing", "Blowing-curve view: slope in c/dB, break level", True),
     Control("escape", "live_view", "live", "Back to the live view"),
     Control("question_mark,f1,h", "guide", "keys", "Key guide (this list)", True),
     Control("q", "quit", "quit", "Quit (stops the engine and closes the log)", True),
@@ -792,7 +792,9 @@ class BenchApp(App[int]):
         """A capture was taken or updated (called in the UI thread, from the poll or a key)."""
         new = cap.index not in self._seen_captures
         self._seen_captures.add(cap.index)
-        self._last_capture = cap
+        last = self._last_capture
+        if new or (last is not None and last.index == cap.index):  # a margin learnt later: not newer
+            self._last_capture = cap
         self.chart = self.workflow.chart() if self.workflow is not None else None
         self._show_workflow()
         if new:
@@ -908,9 +910,9 @@ class BenchApp(App[int]):
         current = self.workflow.label if self.workflow is not None else self.session_label
         self.push_screen(
             ValueDialog(
-                "Label for the next captures (what was done to the instrument)",
+                "Label for the next captures",
                 current,
-                f"e.g. after undercutting hole 3; up to {LABEL_MAX_CHARS} characters; empty for none",
+                f"what was done, e.g. after undercutting hole 3 ({LABEL_MAX_CHARS} characters at most)",
             ),
             self.apply_typed_label,
         )

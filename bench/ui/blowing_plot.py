@@ -110,15 +110,15 @@ class BlowingPlot(LineView):
                 f" ({curve.n} frames)",
                 st["words"],
             )
-        big_text = figure.replace("--", "-")
-        if self.content_size.height >= GLYPH_ROWS + 10 and glyph_width(big_text) + 12 <= width:
-            big = render_big(big_text, 1)
+        if self.content_size.height >= GLYPH_ROWS + 10 and glyph_width("+0.00") + 16 <= width:
+            # No slope yet: blank rows, so the plot does not jump when one appears.
+            big = render_big(figure, 1) if slope is not None else [" " * glyph_width(figure)] * GLYPH_ROWS
             out = []
             for i, row in enumerate(big):
                 line = Text(no_wrap=True, overflow="crop")
                 line.append(row, st["figure"])
                 if i == GLYPH_ROWS // 2:
-                    line.append("  cents per dB", st["words"])
+                    line.append("  cents per dB" if slope is not None else "cents per dB: not yet", st["words"])
                 out.append(line)
             return [*out, words]
         return [words]
@@ -200,10 +200,10 @@ class BlowingPlot(LineView):
         line.append("no break on this note yet", st["words"])
         brk = self.last_break
         if brk is not None and brk.break_level_dbfs is not None:
-            slope = slope_text(shown_slope(brk))
+            slope = shown_slope(brk)
             line.append(
-                f"   last break: {brk.note} ({brk.jump_kind or 'jump'}) at {brk.break_level_dbfs:.1f} dBFS,"
-                f" {slope} c/dB",
+                f"   last break: {brk.note} ({brk.jump_kind or 'jump'}) at {brk.break_level_dbfs:.1f} dBFS"
+                + ("" if slope is None else f", {slope_text(slope)} c/dB"),
                 st["words"],
             )
         return line

@@ -172,7 +172,8 @@ class TuningMap(LineView):
                 for r in range(n_rows):
                     put(r, " " * _REGISTER_GAP, st["axis"])
             span = len(group.entries) * cell_w
-            first, last = group.entries[0], group.entries[-1]
+            planned = [e for e in group.entries if e.expected] or list(group.entries)
+            first, last = planned[0], planned[-1]  # the register's own notes, not extras
             names = (first.written, last.written) if transposed else (first.note, last.note)
             title = f"R{group.register} {names[0]}\u2013{names[1]}"
             put(0, f"{title[:span]:<{span}}", st["title"])

@@ -283,8 +283,8 @@ def test_key_guide_and_command_list_hold_the_workflow_keys(make_app, engine):
         "Capture the note sounding now (its last half second)": "g",
         "Automatic capture of settled notes on / off": "G",
         "Type the session label put on the next captures": "e",
-        "Tuning chart view: the whole compass against its targets": "v",
-        "Blowing-curve view: cents against level, slope, break level": "w",
+        "Tuning chart view: the compass against its targets": "v",
+        "Blowing-curve view: slope in c/dB, break level": "w",
         "Back to the live view": "esc",
     }
     for words, key in wanted.items():
