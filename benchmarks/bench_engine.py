@@ -14,7 +14,8 @@ Figures, each a ratio against a reference measured in the same run:
   processed offline (the engine's overhead: mapping, log rows, publishing, pacing).
 * Sound-to-reading latency (demo source): for every reading, the wall time it was published
   minus the wall time the instant it describes was "played" (the paced source's start plus
-  the reading's input time) -- frame-centre delay, block buffering and processing together.
+  the reading's input time plus the blocks dropped before it) -- frame-centre delay, block
+  buffering, waiting for the CPU and processing together.
   With ``--source jack``: the JACK cycle carrying the first sample to the first voiced
   reading, plus the engine's own per-frame figure.
 * Dropped blocks over blocks read.
@@ -64,10 +65,12 @@ def run_demo(duration_s: float, block_size: int, sample_rate: int) -> dict:
     source = DemoSource(sample_rate, block_size=block_size)
     published: list[tuple[float, float]] = []
     lock = threading.Lock()
+    block_s = block_size / sample_rate
 
     def on_reading(r) -> None:
+        # input time leaves out blocks the source dropped; they were "played" all the same
         with lock:
-            published.append((time.monotonic(), r.stream_time_s))
+            published.append((time.monotonic(), r.stream_time_s + r.dropped_blocks * block_s))
 
     with tempfile.TemporaryDirectory() as tmp:
         log = Path(tmp) / "bench.csv"
