@@ -103,9 +103,23 @@ def _decode(text: str, source: str) -> dict[str, Any]:
         raise SettingsError(
             f"{source}, line {number}, column {at.group(2)}: not valid TOML ({reason}); {fix}"
         ) from None
+    except ValueError:  # an integer past Python's digit limit
+        raise SettingsError(
+            f"{source}: not valid TOML (a number of thousands of digits); give cents such as 90.2"
+        ) from None
+    except RecursionError:
+        raise SettingsError(
+            f"{source}: not valid TOML (brackets nested thousands deep); check the brackets"
+        ) from None
+
+
+_EXPONENT_RE = re.compile(r"[eE]\s*([+-]?\d+)")
 
 
 def _ratio(value: str) -> Fraction | None:
+    exponent = _EXPONENT_RE.search(value)
+    if len(value) > 64 or (exponent and abs(int(exponent.group(1))) > 30):
+        return None  # Fraction would build a huge integer: no sensible ratio looks like this
     try:
         return Fraction(value.strip())
     except (ValueError, ZeroDivisionError):

@@ -324,6 +324,10 @@ def parse_profile_text(text: str, where: str = "<profile>") -> InstrumentProfile
         line = int(m.group(1)) if m else 1
         reason = _TOML_LINE_RE.sub("", msg).strip()
         raise fail(line, f"not valid TOML ({reason}); write key = \"value\" lines") from None
+    except ValueError:  # an integer past Python's digit limit
+        raise fail(1, "not valid TOML (a number of thousands of digits); give a small whole number") from None
+    except RecursionError:
+        raise fail(1, "not valid TOML (brackets nested thousands deep); check the brackets") from None
     extra = [k for k in data if k != "instrument"]
     if extra:
         raise fail(
@@ -422,6 +426,8 @@ def load_profile_file(path: str | Path) -> InstrumentProfile:
         text = path.read_text(encoding="utf-8")
     except FileNotFoundError:
         raise SettingsError(f"{path}: no such profile file; give a .toml file or one of {', '.join(FAMILY)}") from None
+    except IsADirectoryError:
+        raise SettingsError(f"{path}: is a folder, not a profile file; give a .toml file") from None
     except UnicodeDecodeError:
         raise SettingsError(f"{path}:1: not UTF-8 text; save the profile as UTF-8") from None
     except OSError as exc:
