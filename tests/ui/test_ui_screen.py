@@ -19,6 +19,7 @@ from bench.ui.panels import DetailLine, SessionBar
 from bench.ui.readout import CentsFace, NoteFace
 from bench.ui.register import RegisterBanner
 from bench.ui.trail import PitchTrail
+from conftest import until
 from ui_fakes import FakeEngine
 
 SIZE = (100, 30)
@@ -226,8 +227,8 @@ def test_trail_plots_recent_cents(engine, make_app):
         async with app.run_test(size=SIZE) as pilot:
             for _ in range(100):
                 engine.show(at_cents(A4_HZ, 20))  # steady +20 c: dots in the upper half
-            await pilot.pause(0.3)
             trail = app.query_one(PitchTrail)
+            await until(pilot, lambda: len(trail.points) == 100)  # the trail refreshes at 10 Hz
             lines = trail.render().plain.splitlines()[:-1]
             dotted = [i for i, line in enumerate(lines) if any(0x2800 < ord(ch) <= 0x28FF for ch in line)]
             assert dotted and max(dotted) < len(lines) // 2
