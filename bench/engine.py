@@ -24,7 +24,7 @@ from typing import Any, Literal, Protocol
 import numpy as np
 from numpy.typing import NDArray
 
-from bench.errors import BenchError, DeviceError, LogError
+from bench.errors import BenchError, DeviceError, LogError, SettingsError
 from bench.framelog import CsvFrameLog, new_log_path
 from bench.reading import Reading
 from bench.sources.base import AudioSource, Clock
@@ -370,11 +370,15 @@ class Engine:
             if self._state == "stopped":
                 raise RuntimeError("this engine was stopped; make a new Engine to start again")
             return
-        self._analyser = self._analyser_factory(int(self._source.sample_rate))
+        self._analyser = self._build_analyser()
         self._source.start()
         if int(self._source.sample_rate) != int(self._analyser.sample_rate):
             # A microphone may only learn its rate on opening.
-            self._analyser = self._analyser_factory(int(self._source.sample_rate))
+            try:
+                self._analyser = self._build_analyser()
+            except SettingsError:
+                self._source.stop()
+                raise
         if self._initial_log_path is not None:
             try:
                 self._swap_log(CsvFrameLog(self._initial_log_path))
@@ -385,6 +389,14 @@ class Engine:
         self._started_wall_s = time.monotonic()
         self._thread = threading.Thread(target=self._run, name="bench-engine", daemon=True)
         self._thread.start()
+
+    def _build_analyser(self) -> Any:
+        """The analyser for the source's rate; a rate it refuses is one SettingsError line."""
+        rate = int(self._source.sample_rate)
+        try:
+            return self._analyser_factory(rate)
+        except ValueError as exc:
+            raise SettingsError(f"cannot analyse {self._source.description}: {exc}") from None
 
     def stop(self, timeout_s: float = 1.0) -> None:
         """Stop the thread and the source, close the log; safe to call twice."""

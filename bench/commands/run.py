@@ -98,8 +98,8 @@ def build_source(args: argparse.Namespace, *, realtime_file: bool) -> tuple[Any,
     if not 16 <= block <= 16384:
         raise SettingsError(f"--block {block} is out of range; use 16-16384 samples")
     rate = _positive("--rate", args.rate, "a sample rate in Hz, e.g. 48000", integer=True)
-    if rate is not None and not 8000 <= rate <= 192000:
-        raise SettingsError(f"--rate {int(rate)} Hz is out of range; use 8000-192000")
+    if rate is not None and not 16000 <= rate <= 96000:  # what dsp.analyser takes
+        raise SettingsError(f"--rate {int(rate)} Hz is out of range; use 16000-96000 (e.g. 48000)")
     rate_i = int(rate) if rate is not None else None
     kind = str(args.input)
     if kind == "demo":

@@ -305,6 +305,8 @@ class MicSource:
                 raise DeviceError(f"PortAudio cannot restart: {exc}") from None
         dev = resolve_input_device(self.device_spec)
         rate = int(self._requested_rate or round(dev.default_rate_hz))
+        if self._requested_rate is None and not 16000 <= rate <= 96000:
+            rate = 48000  # the analyser takes 16-96 kHz; most devices offer 48 kHz
         channels = min(self.mix_channels, dev.channels)
         try:
             sd.check_input_settings(device=dev.index, channels=channels, dtype="float32", samplerate=rate)

@@ -1,5 +1,9 @@
 """An audio file as an input: any format soundfile reads, mixed to mono, paced at real
-time (against an injected clock) or handed out as fast as the engine takes it."""
+time (against an injected clock) or handed out as fast as the engine takes it.
+
+A file recorded at a rate the analyser does not take (below 16 kHz or above 96 kHz) is
+resampled to 48 kHz on the way (soxr, streaming), so it goes through like any other.
+"""
 
 from __future__ import annotations
 
@@ -11,6 +15,11 @@ from numpy.typing import NDArray
 
 from bench.errors import AudioFileError
 from bench.sources.base import DEFAULT_BLOCK_SIZE, MAX_LAG_S, Clock, PacedBlocks, SystemClock, to_mono
+
+ANALYSIS_RATES_HZ = (16000, 96000)
+"""Sample rates the analyser takes (``dsp.analyser.MIN_SAMPLE_RATE``..``MAX_SAMPLE_RATE``)."""
+RESAMPLE_RATE_HZ = 48000
+"""Rate a file outside :data:`ANALYSIS_RATES_HZ` is resampled to, Hz."""
 
 
 class WavFileSource:
@@ -50,20 +59,27 @@ class WavFileSource:
         self.block_size = int(block_size)
         self.realtime = bool(realtime)
         info = _file_info(self.path)
-        self.sample_rate = int(info.samplerate)
+        self.file_rate = int(info.samplerate)
+        lo, hi = ANALYSIS_RATES_HZ
+        self.resampled = not lo <= self.file_rate <= hi
+        self.sample_rate = RESAMPLE_RATE_HZ if self.resampled else self.file_rate
         self._channels = int(info.channels)
         self._frames = int(info.frames)
         self.dropped_blocks = 0
         self.ended = False
         self.description = (
-            f"file {self.path.name} ({self._frames / self.sample_rate:.1f} s, "
-            f"{self._channels} ch, {self.sample_rate} Hz{'' if realtime else ', fast'})"
+            f"file {self.path.name} ({self._frames / self.file_rate:.1f} s, {self._channels} ch, "
+            f"{self.file_rate} Hz{f' resampled to {self.sample_rate} Hz' if self.resampled else ''}"
+            f"{'' if realtime else ', fast'})"
         )
         self._pacer = PacedBlocks(
             self.sample_rate, self.block_size, realtime=realtime, clock=clock or SystemClock()
         )
-        self._file = None
+        self._file: Any = None
         self._pending: NDArray[np.float32] | None = None
+        self._resampler: Any = None
+        self._out = np.zeros(0, dtype=np.float32)
+        self._eof = False
 
     def start(self) -> None:
         import soundfile as sf
@@ -75,6 +91,12 @@ class WavFileSource:
             raise AudioFileError(f"cannot read audio file {self.path}: {exc}") from None
         self.ended = False
         self._pending = None
+        self._out = np.zeros(0, dtype=np.float32)
+        self._eof = False
+        if self.resampled:
+            import soxr
+
+            self._resampler = soxr.ResampleStream(self.file_rate, self.sample_rate, 1, dtype="float32")
         self._pacer.start()
 
     def read(self, timeout_s: float) -> NDArray[np.float32] | None:
@@ -83,20 +105,40 @@ class WavFileSource:
         skip = self._pacer.overdue_blocks(MAX_LAG_S)
         if skip:  # the reader fell behind real time: lose input as a microphone would
             self._pending = None
-            skipped = len(self._file.read(skip * self.block_size, dtype="float32", always_2d=True))
-            self.dropped_blocks += skip
-            self._pacer.delivered(skipped)
+            for _ in range(skip):
+                lost = self._next_block()
+                if lost is None:
+                    break
+                self.dropped_blocks += 1
+                self._pacer.delivered(len(lost))
         if self._pending is None:
-            data = self._file.read(self.block_size, dtype="float32", always_2d=True)
-            if len(data) == 0:
+            self._pending = self._next_block()
+            if self._pending is None:
                 self.ended = True
                 return None
-            self._pending = to_mono(data)
         block = self._pending
         if not self._pacer.wait_due(len(block), timeout_s):
             return None
         self._pending = None
         self._pacer.delivered(len(block))
+        return block
+
+    def _next_block(self) -> NDArray[np.float32] | None:
+        """The next block at the output rate, or None at the end of the file."""
+        if self._resampler is None:
+            data = self._file.read(self.block_size, dtype="float32", always_2d=True)
+            return to_mono(data) if len(data) else None
+        while len(self._out) < self.block_size and not self._eof:
+            data = self._file.read(self.block_size, dtype="float32", always_2d=True)
+            if len(data) == 0:
+                self._eof = True
+                more = self._resampler.resample_chunk(np.zeros(0, dtype=np.float32), last=True)
+            else:
+                more = self._resampler.resample_chunk(to_mono(data))
+            self._out = np.concatenate([self._out, np.asarray(more, dtype=np.float32)])
+        if len(self._out) == 0:
+            return None
+        block, self._out = self._out[: self.block_size], self._out[self.block_size :]
         return block
 
     def stop(self) -> None:

@@ -319,3 +319,16 @@ def test_a_lock_the_analyser_refuses_is_released_with_an_event():
     assert [e.kind for e in events] == ["source_error", "source_ended"]
     assert events[0].message.startswith("cannot lock to C0: target_hz")
     assert engine.latest().mapping.note == "A4"
+
+
+def test_a_rate_the_analyser_refuses_is_one_line():
+    from bench.errors import SettingsError
+
+    def refusing(rate):
+        raise ValueError(f"sample_rate {rate} Hz is below 16000 Hz; resample to 16-96 kHz")
+
+    source = ScriptedSource([], sample_rate=8000)
+    engine = Engine(source, TuningSettings(), analyser_factory=refusing)
+    with pytest.raises(SettingsError, match=r"^cannot analyse scripted test source: sample_rate 8000 Hz is below"):
+        engine.start()
+    assert not engine.running

@@ -362,3 +362,27 @@ def test_paced_sources_drop_counted_blocks_when_the_reader_falls_far_behind(tmp_
     while wav.read(1.0) is not None:
         n += 1
     assert n + wav.dropped_blocks == 5 * RATE // 480
+
+
+@pytest.mark.parametrize("file_rate", [8000, 192000])
+def test_file_at_a_rate_the_analyser_refuses_is_resampled_to_48k(tmp_path, file_rate):
+    import aubio
+
+    t = np.arange(file_rate) / file_rate
+    path = tmp_path / f"tone_{file_rate}.wav"
+    sf.write(path, (0.5 * np.sin(2 * np.pi * 440.0 * t)).astype(np.float32), file_rate, subtype="FLOAT")
+    src = WavFileSource(path, realtime=False)
+    assert src.sample_rate == 48000 and src.resampled
+    assert f"{file_rate} Hz resampled to 48000 Hz" in src.description
+    src.start()
+    blocks = []
+    while (b := src.read(0.1)) is not None:
+        blocks.append(b)
+    audio = np.concatenate(blocks)
+    assert abs(len(audio) - 48000) <= 512
+    assert all(len(b) == 512 for b in blocks[:-1])
+    # the pitch survives: aubio 0.4.9 YIN on the resampled stream reads 440 Hz (ISO 16 A4)
+    pitch = aubio.pitch("yinfast", 2048, 512, 48000)
+    pitch.set_unit("Hz")
+    f0 = [float(pitch(np.ascontiguousarray(audio[i : i + 512]))[0]) for i in range(0, 40000, 512)]
+    assert 1200 * np.log2(np.median(f0[10:]) / 440.0) == pytest.approx(0.0, abs=1.0)
