@@ -642,9 +642,9 @@ def capture_row(cap: Capture) -> list[str]:
     """The CSV cells of one capture (every text cell spreadsheet-safe)."""
     return [
         str(cap.index),
-        safe_cell(cap.label),
+        _quote(cap.label),
         cap.source,
-        safe_cell(cap.note),
+        _quote(cap.note),
         str(cap.midi),
         str(cap.register),
         "" if cap.mode is None else str(cap.mode),
@@ -664,8 +664,8 @@ def capture_row(cap: Capture) -> list[str]:
         *(_fmt(h, 2) for h in cap.harmonics_db),
         _fmt(cap.register_margin_db, 2),
         _fmt(cap.break_level_dbfs, 2),
-        safe_cell(cap.temperament),
-        safe_cell(cap.tonic),
+        _quote(cap.temperament),
+        _quote(cap.tonic),
         _fmt(cap.a4_hz, 3),
         _fmt(cap.temp_c, 2),
         _fmt(cap.ref_temp_c, 2),
@@ -749,10 +749,14 @@ def write_captures(path: str | Path, captures: Iterable[Capture]) -> Path:
     return path
 
 
+def _quote(text: str) -> str:
+    """Spreadsheet-safe text cell that reads back exactly: a text that starts with ``'``
+    gets one more, so :func:`_unquote` can always take the first one off."""
+    return "'" + text if text.startswith("'") else safe_cell(text)
+
+
 def _unquote(text: str) -> str:
-    if len(text) > 1 and text[0] == "'" and text[1] in "=+-@\t\r":
-        return text[1:]
-    return text
+    return text[1:] if text.startswith("'") else text
 
 
 def _opt(text: str) -> float | None:
@@ -776,7 +780,8 @@ def read_captures(path: str | Path) -> list[Capture]:
     """
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        with path.open(encoding="utf-8", newline="") as f:  # keep CRs inside quoted cells
+            text = f.read()
     except FileNotFoundError:
         raise LogError(f"no such captures file: {path}") from None
     except UnicodeDecodeError:

@@ -89,28 +89,21 @@ def test_hostile_capture_labels_on_disk_and_back(tmp_path, label):
     assert len(rows) == 2  # header + one capture, whatever the label held (quoted newlines)
     assert not any(_unsafe(cell) for cell in rows[1] if not _is_number(cell)), rows[1]
     assert rows[1][1] in (label, "'" + label)  # exactly what was typed, quoted when needed
-    if "\r" not in label:  # (a CR inside a label: see the xfail below)
-        assert read_captures(path)[0].label == label  # the quote is taken off again
+    assert read_captures(path)[0].label == label  # the quote is taken off again
 
 
-@given(text_cells.filter(lambda s: not s.startswith("'") and "\r" not in s))
+@given(text_cells)
 @settings(max_examples=200, deadline=None)
 def test_any_capture_label_round_trips(tmp_path_factory, label):
     path = write_captures(tmp_path_factory.mktemp("cap") / "t.captures.csv", [_capture(label)])
     assert read_captures(path)[0].label == label
 
 
-@pytest.mark.xfail(strict=True, reason="defect: a capture label typed as \"'=x\" (leading quote "
-                   "before a formula character) reads back as \"=x\": read_captures strips a quote "
-                   "that safe_cell never added")
 def test_a_label_that_starts_with_a_quote_round_trips(tmp_path):
     path = write_captures(tmp_path / "t.captures.csv", [_capture("'=x")])
     assert read_captures(path)[0].label == "'=x"
 
 
-@pytest.mark.xfail(strict=True, reason="defect: read_captures reads with newline translation "
-                   "(Path.read_text), so a CR inside a quoted label comes back as LF and a label "
-                   "starting with CR loses its safety quote's meaning (\"'\\n...\")")
 @pytest.mark.parametrize("label", ["\r", "\r=1+1", "line one\r\nline two"])
 def test_a_label_with_a_carriage_return_round_trips(tmp_path, label):
     path = write_captures(tmp_path / "t.captures.csv", [_capture(label)])
