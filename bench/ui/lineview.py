@@ -83,6 +83,14 @@ class LineView(Widget):
                 self._component_styles[key] = style
         return style
 
+    def show_one_class(self, chosen: str, choices) -> None:
+        """Put class ``chosen`` on the widget in place of the others of ``choices``, in one
+        restyle (one ``set_class`` per name restyled the widget up to twice a change)."""
+        want = {c for c in self.classes if c not in choices}
+        want.add(chosen)
+        if want != set(self.classes):
+            self.set_classes(want)
+
     def _base(self):
         """The widget's Rich style (colour and background from CSS), cached."""
         if self._base_style is None:

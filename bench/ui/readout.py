@@ -76,9 +76,7 @@ class CentsFace(LineView):
     sounding: reactive[bool] = reactive(False)
 
     def watch_cents(self, cents: float | None) -> None:
-        side = offset_side(cents)
-        for name in ("flat", "sharp", "centred", "none"):
-            self.set_class(side == name, f"-{name}")
+        self.show_one_class(f"-{offset_side(cents)}", ("-flat", "-sharp", "-centred", "-none"))
 
     def watch_sounding(self, sounding: bool) -> None:
         self.set_class(not sounding, "-stale")

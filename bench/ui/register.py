@@ -71,8 +71,7 @@ class RegisterBanner(LineView):
 
     def _refresh_look(self) -> None:
         look = register_look(self.register, self.jump)
-        for name in ("silent", "steady", "weakening", "overblown", "vented"):
-            self.set_class(look == name, f"-{name}")
+        self.show_one_class(f"-{look}", ("-silent", "-steady", "-weakening", "-overblown", "-vented"))
 
     def watch_register(self) -> None:
         self._refresh_look()
