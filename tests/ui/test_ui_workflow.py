@@ -318,3 +318,24 @@ def test_chart_view_fits_a_small_terminal(make_app):
     # two rows either side of the line: F4's 30 c sharp column tops out with its tip
     f4 = [row[5:8] for row in lines[2:7]]
     assert f4 == ["▲▲▲", "███", "███", "   ", "   "]
+
+
+def test_captures_file_that_cannot_be_written_is_shown_and_capturing_goes_on(make_app, tmp_path):
+    engine = fresh_engine()
+    logs = tmp_path / "logs"
+    (logs / "session-fake.captures.csv").mkdir(parents=True)  # a folder where the file should go
+
+    async def scenario():
+        app = make_app(engine, log_dir=logs)
+        async with app.run_test(size=SIZE) as pilot:
+            await pilot.press("s")
+            await until(pilot, lambda: app.workflow.file_error is not None)
+            hold(engine, hz_at(0.0), 0.8)
+            await pilot.pause(0.2)
+            await pilot.press("g")
+            await until(pilot, lambda: any(c.source == "manual" for c in app.workflow.captures()))
+            return app, app.query_one(CaptureLine).render().plain
+
+    app, line = run(scenario())
+    assert "captures not saved" in line
+    assert any("captures kept in memory only" in m for m in app.errors())
