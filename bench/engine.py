@@ -57,7 +57,10 @@ EVENT_GAP_S = 0.1
 """Unvoiced time after which a register state counts as new (fewer repeated events), seconds."""
 
 MAX_SOURCE_ERRORS = 20
-"""Consecutive non-device errors from a source before the engine gives up on it."""
+"""Consecutive non-device errors from a source before the engine may give up on it..."""
+
+GIVE_UP_S = 30.0
+"""...and only once they have gone on for this many seconds of back-off waiting."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -229,6 +232,7 @@ class Engine:
         self._last_register: str | None = None
         self._last_voiced_s = -1e9
         self._samples_fed = 0
+        self._nonfinite_blocks = 0
 
     # -- read side (any thread) -------------------------------------------------------
 
@@ -407,8 +411,14 @@ class Engine:
         if thread is None or not thread.is_alive():
             self._finish()
         else:
-            # The thread is stuck in the source (a driver that hangs): keep the rows anyway.
+            # The thread is stuck in the source (a driver that hangs): keep the rows anyway,
+            # and stop the source, which ends many a blocked read.
             self._close_log_from_outside()
+            try:
+                self._source.stop()
+            except Exception:  # noqa: BLE001 - a stuck driver may fail to stop as well
+                pass
+            thread.join(min(timeout_s, 1.0))
         self._state = "stopped" if self._state not in ("ended", "error") else self._state
         if thread is None:
             self._thread = threading.Thread()  # marks the engine as used
@@ -460,7 +470,7 @@ class Engine:
     def _run(self) -> None:
         cpu0_s = time.thread_time()
         applied_generation, applied_settings = -1, None
-        consecutive_errors = 0
+        consecutive_errors, error_wait_s = 0, 0.0
         try:
             while not self._stop_event.is_set():
                 settings = self._settings
@@ -478,13 +488,22 @@ class Engine:
                 except Exception as exc:  # noqa: BLE001 - reported, then the engine goes on
                     self._source_errors += 1
                     consecutive_errors += 1
-                    self._emit("source_error", f"input failed: {exc}")
-                    if consecutive_errors >= MAX_SOURCE_ERRORS:
+                    self._emit("source_error", f"input failed: {exc}")  # the back-off caps the rate
+                    # back off (10 ms doubling to 1 s), so a burst of a few microseconds is
+                    # ridden out; give up only when errors persist for GIVE_UP_S of waiting
+                    delay_s = min(0.01 * 2 ** min(consecutive_errors - 1, 7), 1.0)
+                    error_wait_s += delay_s
+                    if consecutive_errors >= MAX_SOURCE_ERRORS and error_wait_s >= GIVE_UP_S:
                         self._state = "error"
-                        self._emit("source_error", f"input failed {consecutive_errors} times in a row; stopped")
+                        self._emit(
+                            "source_error",
+                            f"input failed {consecutive_errors} times in {error_wait_s:.0f} s; stopped: {exc}",
+                        )
+                        break
+                    if self._wait(delay_s):
                         break
                     continue
-                consecutive_errors = 0
+                consecutive_errors, error_wait_s = 0, 0.0
                 if block is None:
                     self._flush_log_if_idle()
                     if self._source.ended:
@@ -574,7 +593,18 @@ class Engine:
         self._emit("log_error", f"{exc}; logging is off, measuring goes on")
 
     def _process_block(self, block: NDArray[np.float32], arrival_s: float) -> None:
-        frames = self._analyser.process(block)
+        if not np.isfinite(block).all():
+            # a driver glitch or a damaged file: silence the bad samples (dsp refuses them)
+            block = np.where(np.isfinite(block), block, np.float32(0.0)).astype(np.float32)
+            self._nonfinite_blocks += 1
+            if self._nonfinite_blocks == 1:
+                self._emit("source_error", "input held NaN/Inf samples; they were read as silence")
+        try:
+            frames = self._analyser.process(block)
+        except ValueError as exc:  # the analyser refused this block: skip it, keep measuring
+            self._samples_fed += len(block)
+            self._emit("source_error", f"a block could not be analysed: {exc}")
+            return
         self._samples_fed += len(block)
         if not frames:
             return

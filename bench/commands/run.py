@@ -268,10 +268,23 @@ def _run_unattended(
         if note is not None:
             lines.put(("out", note.describe()))
 
+    log_failed: list[str] = []
+
     def on_event(event: EngineEvent) -> None:  # engine thread
         if event.kind in ("jump", "weakening", "log_started"):
             return  # shown in the held-note lines / the first line
+        if event.kind == "log_error":
+            log_failed.append(event.message)
         lines.put(("err", f"{event.kind.replace('_', ' ')}: {event.message}"))
+
+    def log_line(closing: bool = False) -> str:
+        """How the log ended, for the last line; never names a file that was not written."""
+        rows = engine.stats.log_rows
+        if log_failed and rows == 0:
+            return "no log written"
+        if log_failed:
+            return f"log: {log_path} ({rows} rows; stopped by a write error)"
+        return f"the log is complete: {log_path} ({rows} rows)" if closing else f"log: {log_path} ({rows} rows)"
 
     def drain() -> None:
         while True:
@@ -294,8 +307,9 @@ def _run_unattended(
     if fallback:
         _say(fallback)
     follower = _start_follower(args, engine, lambda message: lines.put(("err", f"temperature: {message}")))
-    _say(f"listening to {engine.source.description}; log {log_path}; Ctrl-C stops")
+    _say(f"listening to {engine.source.description}; log {engine.log_path or 'off'}; Ctrl-C stops")
     wall0_s = time.monotonic()
+    previous_term = _raise_on_sigterm()
     try:
         while engine.running:
             drain()
@@ -305,25 +319,49 @@ def _run_unattended(
                 if max(heard_s, time.monotonic() - wall0_s if _is_live(engine) else 0.0) >= duration_s:
                     break
             time.sleep(0.02)
-    except KeyboardInterrupt:
+    except (KeyboardInterrupt, _Terminated) as exc:
         engine.stop()
         if follower is not None:
             follower.stop()
         _finish_notes(tracker, lines)
         drain()
-        _say(f"interrupted; the log is complete: {log_path} ({engine.stats.log_rows} rows)")
-        return 130
+        word = "terminated" if isinstance(exc, _Terminated) else "interrupted"
+        _say(f"{word}; {log_line(closing=True)}")
+        return 143 if isinstance(exc, _Terminated) else 130
+    finally:
+        _restore_sigterm(previous_term)
     engine.stop()
     if follower is not None:
         follower.stop()
     _finish_notes(tracker, lines)
     drain()
     stats = engine.stats
-    _say(
-        f"{stats.frames} frames, {stats.dropped_blocks} dropped blocks; "
-        f"log: {log_path} ({stats.log_rows} rows)"
-    )
+    _say(f"{stats.frames} frames, {stats.dropped_blocks} dropped blocks; {log_line()}")
     return 0 if stats.state != "error" else 1
+
+
+class _Terminated(Exception):
+    """SIGTERM arrived: end like Ctrl-C (log complete and closed), exit status 143."""
+
+
+def _raise_on_sigterm() -> Any:
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        return None
+
+    def handler(signum: int, frame: Any) -> None:
+        raise _Terminated()
+
+    return signal.signal(signal.SIGTERM, handler)
+
+
+def _restore_sigterm(previous: Any) -> None:
+    import signal
+
+    if previous is not None:
+        signal.signal(signal.SIGTERM, previous)
 
 
 def _tell_screen(engine: Any, message: str) -> None:

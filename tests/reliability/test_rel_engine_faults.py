@@ -94,11 +94,6 @@ def test_overflow_flags_are_counted_and_reach_readings_and_stats(tmp_path):
     _assert_rows_are_the_frames(log, analysers.frames)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="defect: engine gives up for good after 20 back-to-back non-device read errors, "
-    "retrying with no wait, so a stream-error burst of a few microseconds ends measuring",
-)
 def test_a_burst_of_stream_errors_does_not_end_measuring(tmp_path):
     burst = MAX_SOURCE_ERRORS + 5
     source = BurstErrorSource(FastSineSource(n_blocks=400), after_blocks=100, burst=burst)
@@ -190,11 +185,6 @@ def test_real_analyser_reads_the_pitch_again_after_the_device_returns(tmp_path):
 
 
 @pytest.mark.parametrize("bad", ["nan", "inf"])
-@pytest.mark.xfail(
-    strict=True,
-    reason="defect: one NaN/Inf sample from the source stops the engine for good "
-    "(dsp raises ValueError by contract; the engine's outer handler ends the run)",
-)
 def test_non_finite_samples_do_not_stop_measuring(bad):
     from dsp.analyser import StreamingAnalyser
 
@@ -310,11 +300,6 @@ def _start_until_hanging(source, log, analysers):  # type: ignore[no-untyped-def
     return engine
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="defect: Engine.stop() does not stop the source when the thread is stuck in "
-    "read(), so a read that would end on abort never ends; the thread stays alive",
-)
 def test_stop_ends_a_read_that_returns_when_the_source_is_stopped(tmp_path):
     source = HangingSource(FastSineSource(), after_blocks=100, wakes_on_stop=True)
     analysers = AnalyserRecorder()
@@ -384,8 +369,6 @@ def test_cli_run_with_a_full_disk_says_so_once_and_measures_to_the_end(tiny_fs, 
     assert frames > len(rows) > 0  # measuring went on after logging stopped
 
 
-@pytest.mark.xfail(strict=True, reason="defect: when the log cannot be opened, bench run --no-ui "
-                   "still ends with 'log: <path> (0 rows)', naming a file that was never written")
 def test_cli_run_with_a_read_only_log_folder_does_not_claim_a_log(read_only_fs, capsys):
     from bench.cli import main
 

@@ -163,11 +163,6 @@ def test_ctrl_c_leaves_a_complete_log_and_says_so(children):
     _assert_complete_log(child)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="defect: bench run/demo --no-ui installs no SIGTERM handler: the process dies "
-    "with status -15, no closing line, and the log's buffered rows are not written",
-)
 def test_sigterm_leaves_a_complete_log_and_says_so(children):
     child = children[signal.SIGTERM]
     assert child.signalled_at is not None, _diagnosis(child)
