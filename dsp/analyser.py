@@ -71,6 +71,10 @@ _PEAK_LIMIT_HZ = 10000.0
 _CHUNK_FRAMES = 32
 _N_PEAKS = 10  # spectral peaks for the coarse match
 _N_FIT_HARMONICS = 12  # harmonics in the refinement (H12 of a duct flute is ~50 dB down)
+_CLARITY_K = np.arange(1, 41, dtype=np.float64)  # harmonics counted by the clarity
+_EVIDENCE_K = np.arange(1, EVIDENCE_HARMONICS + 1, dtype=np.float64)[None, None, :]
+_EVIDENCE_M = np.arange(1, EVIDENCE_MODES + 1, dtype=np.float64)[None, :, None]
+_OFFS3 = np.arange(-1, 2)
 
 
 @dataclass(frozen=True, slots=True)
@@ -173,6 +177,9 @@ class StreamingAnalyser:
         self._hi_bin = min(n_bins - 3, int(math.ceil(self._limit_hz / df)))
         self._n_bins = self._hi_bin + 4
         self._fast_bins = self._hi_bin // 2 + 4
+        self._store_size = self._n + 8 * self._hop + 8192
+        self._hum_lo_hz = _MAINS_HZ * (1.0 - _MAINS_TOLERANCE)
+        self._hum_hi_hz = _MAINS_HZ * (1.0 + _MAINS_TOLERANCE)
         self.reset()
 
     # -- contract -------------------------------------------------------------------------
@@ -192,10 +199,16 @@ class StreamingAnalyser:
         """Frame step, samples."""
         return self._hop
 
+    @property
+    def _buf(self) -> NDArray[np.float64]:
+        """Samples held for the next frames (a view)."""
+        return self._store[: self._fill]
+
     def reset(self) -> None:
         """Back to the state after construction (input clock restarts at 0; lock kept off)."""
-        self._buf = np.zeros(0, dtype=np.float64)
-        self._buf_start = 0  # absolute index of self._buf[0]
+        self._store = np.zeros(self._store_size, dtype=np.float64)
+        self._fill = 0  # samples held in self._store
+        self._store_start = 0  # absolute index of self._store[0]
         self._n_in = 0
         self._next_end = self._n
         self._prev_f0: float | None = None
@@ -243,46 +256,61 @@ class StreamingAnalyser:
         x = np.asarray(block)
         if x.ndim != 1:
             raise ValueError(f"block has shape {x.shape}; pass one channel as a 1-D array")
-        if x.size == 0:
+        n_new = x.size
+        if n_new == 0:
             return []
-        if not np.issubdtype(x.dtype, np.floating):
+        if x.dtype.kind != "f":
             raise TypeError(f"block dtype {x.dtype} is not floating point; scale to float32/float64 with full scale 1.0")
-        x = x.astype(np.float64, copy=False)
-        if not np.all(np.isfinite(x)):
+        # a finite sum proves every sample finite; an infinite one may be an overflow only
+        if not math.isfinite(float(np.add.reduce(x, dtype=np.float64))) and not np.all(np.isfinite(x)):
             bad = int(np.flatnonzero(~np.isfinite(x))[0])
             raise ValueError(f"block holds {x[bad]} at sample {bad}; pass finite samples")
-        self._buf = np.concatenate([self._buf, x]) if self._buf.size else x.copy()
-        self._n_in += x.size
+        fill = self._fill
+        if fill + n_new > self._store.size:
+            grown = np.empty(max(2 * self._store.size, fill + n_new), dtype=np.float64)
+            grown[:fill] = self._store[:fill]
+            self._store = grown
+        self._store[fill : fill + n_new] = x
+        fill += n_new
+        self._n_in += n_new
         frames: list[Frame] = []
+        hop = self._hop
         if self._next_end <= self._n_in:
-            n_frames = (self._n_in - self._next_end) // self._hop + 1
-            ends = self._next_end + self._hop * np.arange(n_frames)
-            starts = ends - self._n - self._buf_start
-            if n_frames == 1:
-                s0 = int(starts[0])
-                batch = self._buf[s0 : s0 + self._n].reshape(1, -1).copy()
-            else:
-                view = np.lib.stride_tricks.sliding_window_view(self._buf, self._n)
-                batch = np.ascontiguousarray(view[starts])
-            frames = self._analyse(batch, ends)
-            self._next_end = int(ends[-1]) + self._hop
-        keep_from = self._next_end - self._n  # absolute index of the next frame's first sample
-        drop = keep_from - self._buf_start
+            n_frames = (self._n_in - self._next_end) // hop + 1
+            first = self._next_end - self._n - self._store_start  # buffer index of frame 0
+            item = self._store.itemsize
+            view = np.lib.stride_tricks.as_strided(
+                self._store[first:], shape=(n_frames, self._n), strides=(hop * item, item), writeable=False
+            )
+            frames = self._analyse(view, self._next_end, n_frames)
+            self._next_end += hop * n_frames
+        # keep from the next frame's first sample on
+        drop = self._next_end - self._n - self._store_start
         if drop > 0:
-            self._buf = self._buf[drop:].copy()
-            self._buf_start = keep_from
+            if drop < fill:
+                self._store[: fill - drop] = self._store[drop:fill]
+            fill = max(fill - drop, 0)
+            self._store_start += drop
+            if self._store.size > 4 * self._store_size and fill <= self._store_size:
+                # one long block made the store large: give the memory back
+                small = np.zeros(self._store_size, dtype=np.float64)
+                small[:fill] = self._store[:fill]
+                self._store = small
+        self._fill = fill
         return frames
 
     # -- analysis -------------------------------------------------------------------------
 
-    def _analyse(self, x: NDArray[np.float64], ends: NDArray[np.int64]) -> list[Frame]:
-        """Frames for a batch of windows ``x`` ending at absolute samples ``ends``."""
+    def _analyse(self, x: NDArray[np.float64], first_end: int, n_frames: int) -> list[Frame]:
+        """Frames for ``n_frames`` windows ``x`` (a strided view), the first ending at ``first_end``."""
         out: list[Frame] = []
-        for s in range(0, x.shape[0], _CHUNK_FRAMES):  # chunks that stay in cache
-            out.extend(self._analyse_chunk(x[s : s + _CHUNK_FRAMES], ends[s : s + _CHUNK_FRAMES]))
+        for s in range(0, n_frames, _CHUNK_FRAMES):  # chunks that stay in cache
+            c = min(_CHUNK_FRAMES, n_frames - s)
+            ends = [first_end + self._hop * (s + i) for i in range(c)]
+            out.extend(self._analyse_chunk(np.ascontiguousarray(x[s : s + c]), ends))
         return out
 
-    def _analyse_chunk(self, x: NDArray[np.float64], ends: NDArray[np.int64]) -> list[Frame]:
+    def _analyse_chunk(self, x: NDArray[np.float64], ends_l: list[int]) -> list[Frame]:
         """Frames for up to _CHUNK_FRAMES windows."""
         b = self._analyse_batch(x)
         sr = self._sr
@@ -299,7 +327,6 @@ class StreamingAnalyser:
         clarity = b.clarity.tolist()
         level = b.level_dbfs.tolist()
         clip = b.clip.tolist()
-        ends_l = ends.tolist()
         prev = self._prev_f0
         jumped_run = self._jumped_run
         for i in range(len(ends_l)):
@@ -362,33 +389,39 @@ class StreamingAnalyser:
     def _analyse_batch(self, x: NDArray[np.float64]) -> _Batch:
         """Vectorised per-frame measurements."""
         sr = self._sr
-        spec = analyse_spectrum(x, sr, self._n_bins)
+        n = self._n
+        lo, hi = self._lo_bin, self._hi_bin
+        x32 = x.astype(np.float32)
+        spec = analyse_spectrum(x32, sr, self._n_bins)
         floor = band_floor(spec.power)
-        top = spec.power[:, self._lo_bin : self._hi_bin].max(axis=1, keepdims=True)
+        top = spec.power[:, lo:hi].max(axis=1, keepdims=True)
         floor = np.maximum(floor, top * 1e-12)  # digital-silence-clean tones: relative floor
-        peaks = find_peaks(spec, floor, self._lo_bin, self._hi_bin, n_peaks=_N_PEAKS)
+        peaks = find_peaks(spec, floor, lo, hi, n_peaks=_N_PEAKS)
         coarse = estimate_coarse_f0(peaks, self._fmin * 0.97, self._fmax * 1.03)
         refined = refine_f0(spec, floor, coarse.f0_hz, self._limit_hz, n_harmonics=_N_FIT_HARMONICS)
         f0 = refined.f0_hz
-        f0_safe = np.where(np.isfinite(f0), f0, 1000.0)
+        finite = np.isfinite(f0)
+        f0_safe = np.where(finite, f0, 1000.0)
 
-        clarity = self._clarity(spec, f0_safe) * np.isfinite(f0)
+        clarity = self._clarity(spec, f0_safe) * finite
         seg = (x * x).reshape(x.shape[0], _SEGMENTS, -1).sum(axis=2)
+        ms = np.empty((x.shape[0], 2))
+        ms[:, 0] = seg.sum(axis=1) / n
+        # newest quarter of the window (~21 ms at 48 kHz): a level step shows quickly
+        ms[:, 1] = (seg[:, -2] + seg[:, -1]) / (n // 4)
         with np.errstate(divide="ignore"):
-            level = 10.0 * np.log10(seg.sum(axis=1) / self._n)
-            # newest quarter of the window (~21 ms at 48 kHz): a level step shows quickly
-            fast_level = 10.0 * np.log10(seg[:, -2:].sum(axis=1) / (self._n // 4))
-        centre = seg[:, 2:6]
-        flat = centre.min(axis=1) >= _FLATNESS_MIN * np.maximum(seg.max(axis=1), 1e-300)
-        rel = np.abs(f0_safe[:, None] / _MAINS_HZ[None, :] - 1.0)
-        hum = (rel <= _MAINS_TOLERANCE).any(axis=1)
-        usable = np.isfinite(f0) & (f0_safe >= self._fmin) & (f0_safe <= self._fmax) & flat & ~hum & (level > -100.0)
-        voiced = usable & (clarity >= _CLARITY_MIN) & (refined.best_snr_db >= _PEAK_SNR_MIN_DB)
+            levels = 10.0 * np.log10(ms)
+        level = levels[:, 0]
+        fast_level = levels[:, 1]
+        flat = seg[:, 2:6].min(axis=1) >= _FLATNESS_MIN * np.maximum(seg.max(axis=1), 1e-300)
+        hum = ((f0_safe[:, None] >= self._hum_lo_hz) & (f0_safe[:, None] <= self._hum_hi_hz)).any(axis=1)
+        usable = finite & (f0_safe >= self._fmin) & (f0_safe <= self._fmax) & flat & ~hum & (level > -100.0)
+        snr = refined.best_snr_db
+        voiced = usable & (clarity >= _CLARITY_MIN) & (snr >= _PEAK_SNR_MIN_DB)
         # hysteresis: a note already sounding stays voiced on weaker evidence (reverberant
         # tails, breath noise); see _analyse_chunk
-        sustain = usable & (clarity >= _CLARITY_HOLD) & (refined.best_snr_db >= _PEAK_SNR_HOLD_DB)
-        half = x[:, self._n // 2 :]
-        fast = analyse_spectrum(half, sr, self._fast_bins)
+        sustain = usable & (clarity >= _CLARITY_HOLD) & (snr >= _PEAK_SNR_HOLD_DB)
+        fast = analyse_spectrum(x32[:, n // 2 :], sr, self._fast_bins)
         evidence = self._evidence(fast, f0_safe)
         return _Batch(
             spec=spec,
@@ -396,7 +429,7 @@ class StreamingAnalyser:
             refined=refined,
             voiced=voiced,
             sustain=sustain,
-            clarity=np.minimum(np.maximum(clarity, 0.0), 1.0),
+            clarity=clarity,
             level_dbfs=level,
             fast_level_dbfs=fast_level,
             clip=clipped(x),
@@ -414,38 +447,32 @@ class StreamingAnalyser:
         candidate whose harmonics cover half the bins.
         """
         df = spec.bin_hz
-        n_frames, n_bins = spec.power.shape
-        k = np.arange(1, 41, dtype=np.float64)
-        pos = f0[:, None] * k[None, :]
+        p = spec.power
+        n_frames, n_bins = p.shape
+        pos = f0[:, None] * _CLARITY_K
         inside = pos <= self._limit_hz
         centre = np.minimum(np.rint(pos / df).astype(np.intp), n_bins - 2)
-        rows = np.arange(n_frames)[:, None]
-        p = spec.power
-        on = (p[rows, centre - 1] + p[rows, centre] + p[rows, centre + 1]).astype(np.float64)
+        on = p[np.arange(n_frames)[:, None, None], centre[:, :, None] + _OFFS3].sum(axis=2).astype(np.float64)
         e_on = (on * inside).sum(axis=1)
-        n_on = 3.0 * inside.sum(axis=1)
         n_h = inside.sum(axis=1)
+        n_on = 3.0 * n_h
         top = np.minimum(np.rint((n_h + 0.5) * f0 / df).astype(np.intp), self._hi_bin)
         top = np.maximum(top, self._lo_bin + 1)
         cum = np.cumsum(p[:, self._lo_bin : self._hi_bin + 1], axis=1, dtype=np.float64)
-        e_all = cum[np.arange(n_frames), top - self._lo_bin]
+        e_all = np.take_along_axis(cum, (top - self._lo_bin)[:, None], axis=1)[:, 0]
         n_all = (top - self._lo_bin + 1).astype(np.float64)
         e_off = np.maximum(e_all - e_on, 0.0)
         n_off = np.maximum(n_all - n_on, 1.0)
         dens_on = e_on / np.maximum(n_on, 1.0)
         ratio = (e_off / n_off) / np.maximum(dens_on, 1e-300)
-        return np.asarray(np.minimum(np.maximum(1.0 - ratio, 0.0), 1.0) * (n_h > 0), dtype=np.float64)
+        return np.minimum(np.maximum(1.0 - ratio, 0.0), 1.0) * (n_h > 0)
 
     def _evidence(self, fast: BatchSpectrum, f0: NDArray[np.float64]) -> NDArray[np.float64]:
         """Powers at k f0 / m (k = 1..8, m = 1..3), max over +-1 bin of the half window."""
         df = fast.bin_hz
-        n_bins = fast.power.shape[1]
-        m = np.arange(1, EVIDENCE_MODES + 1, dtype=np.float64)
-        k = np.arange(1, EVIDENCE_HARMONICS + 1, dtype=np.float64)
-        pos = f0[:, None, None] * k[None, None, :] / m[None, :, None]
+        p = fast.power
+        n_bins = p.shape[1]
+        pos = f0[:, None, None] * _EVIDENCE_K / _EVIDENCE_M
         centre = np.minimum(np.maximum(np.rint(pos / df).astype(np.intp), 1), n_bins - 2)
-        rows = np.arange(fast.power.shape[0])[:, None, None]
-        p = np.maximum(
-            np.maximum(fast.power[rows, centre - 1], fast.power[rows, centre]), fast.power[rows, centre + 1]
-        )
-        return np.asarray(np.where(pos < self._limit_hz, p, 0.0), dtype=np.float64)
+        near = p[np.arange(p.shape[0])[:, None, None, None], centre[..., None] + _OFFS3].max(axis=-1)
+        return np.where(pos < self._limit_hz, near, 0.0)

@@ -13,6 +13,8 @@ N_REPORTED = 8
 FLOOR_DB = -120.0
 """Lowest level reported, dB re the strongest harmonic (absent harmonics read this)."""
 
+_FLOOR_RATIO = 10.0 ** (FLOOR_DB / 20.0)
+
 
 def harmonic_levels_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
     """Levels of H1..H8 in dB relative to the strongest of them.
@@ -34,10 +36,11 @@ def harmonic_levels_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
     """
     a = amp[:, :N_REPORTED]
     top = a.max(axis=1, keepdims=True)
-    rel = a / np.where(top > 0.0, top, 1.0)
-    with np.errstate(divide="ignore"):
-        db = 20.0 * np.log10(rel)
-    return np.asarray(np.maximum(db, FLOOR_DB), dtype=np.float64)
+    # the floor applied before the logarithm (10^-6 = -120 dB): no log of zero to silence
+    rel = np.maximum(a / np.where(top > 0.0, top, 1.0), _FLOOR_RATIO)
+    db = np.log10(rel)
+    db *= 20.0
+    return np.maximum(db, FLOOR_DB, out=db)
 
 
 def odd_even_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
@@ -51,10 +54,11 @@ def odd_even_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
     >>> round(float(odd_even_db(np.array([[1.0, 1.0, 1.0, 1.0, 0, 0, 0, 0]]))[0]), 2)
     0.0
     """
-    a2 = amp[:, :N_REPORTED] ** 2
+    a = amp[:, :N_REPORTED]
+    a2 = a * a
     odd = a2[:, 0::2].sum(axis=1)
     even = a2[:, 1::2].sum(axis=1)
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = 10.0 * np.log10(odd / even)
-    ratio = np.where(np.isnan(ratio), 0.0, ratio)
-    return np.asarray(np.minimum(np.maximum(ratio, -120.0), 120.0), dtype=np.float64)
+    ratio[np.isnan(ratio)] = 0.0
+    return np.minimum(np.maximum(ratio, -120.0), 120.0)

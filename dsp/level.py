@@ -42,4 +42,5 @@ def clipped(frames: NDArray[np.float64], threshold: float = CLIP_THRESHOLD) -> N
     >>> bool(clipped(np.array([[0.2, -0.9995]]))[0])
     True
     """
-    return np.asarray(np.abs(frames).max(axis=1) >= threshold)
+    # max |x| as max(max x, -min x): no temporary array of magnitudes
+    return np.maximum(frames.max(axis=1), -frames.min(axis=1)) >= threshold

@@ -31,7 +31,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from dsp.spectrum import BatchSpectrum, hann_kernel_gain
+from dsp.spectrum import BatchSpectrum
 
 __all__ = ["PeakSet", "CoarsePitch", "RefinedPitch", "find_peaks", "estimate_coarse_f0", "refine_f0"]
 
@@ -146,17 +146,15 @@ def find_peaks(
     ok = (mid > left) & (mid >= right)
     ok &= mid > floor[:, lo_bin:hi_bin] * 10.0 ** (snr_db / 10.0)
     ok &= mid >= top * 10.0 ** (-range_db / 10.0)
-    score = np.where(ok, mid, 0.0)
+    score = np.where(ok, mid, np.float32(0.0))
     k = min(n_peaks, score.shape[1])
     idx = np.argpartition(-score, k - 1, axis=1)[:, :k]
-    rows = np.arange(p.shape[0])[:, None]
-    pk_pow = score[rows, idx]
+    pk_pow = np.take_along_axis(score, idx, axis=1)
     valid = pk_pow > 0.0
-    bins = idx + lo_bin
-    freq = spec.reassigned_bins(bins) * spec.bin_hz
+    freq = spec.reassigned_bins(idx + lo_bin) * spec.bin_hz
     return PeakSet(
         freq_hz=np.where(valid, freq, 0.0),
-        power=np.where(valid, pk_pow, 0.0),
+        power=pk_pow,
         valid=valid,
     )
 
@@ -236,48 +234,44 @@ def refine_f0(
     -------
     RefinedPitch
     """
-    n_frames, n_bins = spec.power.shape
+    power = spec.power
+    n_frames, n_bins = power.shape
     df = spec.bin_hz
-    k = np.arange(1, n_harmonics + 1, dtype=np.float64)
+    k, k2 = _harmonic_numbers(n_harmonics)
     f_c = np.where(np.isfinite(coarse_hz), coarse_hz, 0.0)
-    expect = f_c[:, None] * k[None, :]
+    expect = f_c[:, None] * k
     inside = (expect <= limit_hz) & (f_c[:, None] > 0.0)
     centre = np.minimum(np.maximum(np.rint(expect / df).astype(np.intp), 5), n_bins - 6)
-    # peak bin within +-2 bins of the expected harmonic (the Hann main lobe)
-    offs = np.arange(-2, 3)
-    cand_bins = centre[:, :, None] + offs[None, None, :]
-    rows3 = np.arange(n_frames)[:, None, None]
-    pw = spec.power[rows3, cand_bins]
-    pick = np.argmax(pw, axis=2)
-    peak_bin = np.take_along_axis(cand_bins, pick[:, :, None], axis=2)[:, :, 0]
-    rows2 = np.arange(n_frames)[:, None]
-    peak_pow = spec.power[rows2, peak_bin]
-    noise = np.maximum(floor[rows2, peak_bin], 1e-30)
+    rows3 = _row_index(n_frames, 3)
+    # peak bin within +-2 bins of the expected harmonic (the Hann main lobe); argmax takes
+    # the first of equal maxima
+    pick = np.argmax(power[rows3, centre[:, :, None] + _OFFS5], axis=2)
+    peak_bin = centre + (pick - 2)
+    p3 = power[rows3, peak_bin[:, :, None] + _OFFS3]
+    peak_pow = p3[:, :, 1]
+    noise = np.maximum(floor[_row_index(n_frames, 2), peak_bin], 1e-30)
     snr_ok = peak_pow >= noise * 10.0 ** (snr_db / 10.0)
     # a real local maximum, not the slope of a neighbour
-    is_max = (peak_pow >= spec.power[rows2, peak_bin - 1]) & (peak_pow >= spec.power[rows2, peak_bin + 1])
+    is_max = (peak_pow >= p3[:, :, 0]) & (peak_pow >= p3[:, :, 2])
     tol_hz = np.maximum(0.5 * df, 0.02 * f_c[:, None])
     # a genuine partial reassigns near its harmonic; a neighbour's side lobe reassigns away
-    first_hz = reassign_hann2(spec, peak_bin) * df
-    ok = inside & snr_ok & is_max & (np.abs(first_hz - expect) <= tol_hz)
+    bins_frac = reassign_hann2(spec, peak_bin)
+    ok = inside & snr_ok & is_max & (np.abs(bins_frac * df - expect) <= tol_hz)
     # neighbours closer than _CLEAN_BELOW_BINS leak measurably even through Hann^2: only
     # those frames pay for the leakage model
     low = np.flatnonzero((f_c > 0.0) & (f_c < _CLEAN_BELOW_BINS * df))
     if low.size == 0:
-        bins_frac = first_hz / df
-    elif low.size == n_frames:
-        bins_frac = _clean_reassign(spec, peak_bin, ok)
+        used = ok  # the check in ``ok`` was made on these very frequencies
     else:
-        bins_frac = first_hz / df
-        sub = BatchSpectrum(spec.rect[low], spec.power[low], spec.bin_hz, spec.frame_size)
+        sub = BatchSpectrum(spec.rect[low], power[low], spec.bin_hz, spec.frame_size)
         bins_frac[low] = _clean_reassign(sub, peak_bin[low], ok[low])
+        used = ok & (np.abs(bins_frac * df - expect) <= tol_hz)
     f_k = bins_frac * df
-    used = ok & (np.abs(f_k - expect) <= tol_hz)
-    w = np.where(used, peak_pow / noise, 0.0)
-    num = (w * k[None, :] * np.where(used, f_k, 0.0)).sum(axis=1)
-    den = (w * k[None, :] ** 2).sum(axis=1)
+    w = np.where(used, peak_pow / noise, np.float32(0.0))
+    num = (w * k * np.where(used, f_k, 0.0)).sum(axis=1)
+    den = (w * k2).sum(axis=1)
     f0 = np.where(den > 0.0, num / np.where(den > 0.0, den, 1.0), np.nan)
-    amp = np.sqrt(peak_pow) / np.maximum(hann_kernel_gain(bins_frac - peak_bin), 0.5)
+    amp = np.sqrt(peak_pow) / np.maximum(_hann_gain(bins_frac - peak_bin), 0.5)
     amp = np.where(inside, amp, 0.0)
     return RefinedPitch(
         f0_hz=f0,
@@ -287,6 +281,47 @@ def refine_f0(
         used=used,
         best_snr_db=_best_snr_db(w),
     )
+
+
+_OFFS3 = np.arange(-1, 2)
+_OFFS5 = np.arange(-2, 3)
+_OFFS7 = np.arange(-3, 4)
+_POS3 = np.arange(-1.0, 2.0)
+_ROWS: dict[tuple[int, int], _IntArray] = {}
+_HARMONICS: dict[int, tuple[_FloatArray, _FloatArray]] = {}
+
+
+def _row_index(n_rows: int, ndim: int) -> _IntArray:
+    """Cached row index ``arange(n_rows)`` shaped to broadcast over ``ndim`` dimensions."""
+    key = (n_rows, ndim)
+    r = _ROWS.get(key)
+    if r is None:
+        r = np.arange(n_rows).reshape((n_rows,) + (1,) * (ndim - 1))
+        r.setflags(write=False)
+        if len(_ROWS) < 256:
+            _ROWS[key] = r
+    return r
+
+
+def _harmonic_numbers(n: int) -> tuple[_FloatArray, _FloatArray]:
+    """Cached harmonic numbers 1..n and their squares."""
+    h = _HARMONICS.get(n)
+    if h is None:
+        k = np.arange(1, n + 1, dtype=np.float64)
+        k2 = k**2
+        k.setflags(write=False)
+        k2.setflags(write=False)
+        h = _HARMONICS[n] = (k, k2)
+    return h
+
+
+def _hann_gain(d: _FloatArray) -> _FloatArray:
+    """Hann amplitude response ``|sinc(d) / (1 - d^2)|`` (1 at d = 0, 0.5 at d = +-1)."""
+    pd = np.pi * d
+    den = pd * (1.0 - d * d)
+    near = np.abs(den) < 1e-9
+    gain = np.abs(np.sin(pd) / np.where(near, 1.0, den))
+    return np.where(near, np.where(np.abs(d) < 0.5, 1.0, 0.5), gain)
 
 
 def _best_snr_db(w: _FloatArray) -> _FloatArray:
@@ -308,25 +343,37 @@ def _dirichlet(delta: NDArray[Any], n: int) -> NDArray[np.complex128]:
 _H2 = np.array([1.0 / 16.0, -0.25, 3.0 / 8.0, -0.25, 1.0 / 16.0])  # Hann^2 as bin taps
 
 
-def _hann2_offset(v: NDArray[np.complex128]) -> tuple[_FloatArray, NDArray[np.complex128]]:
-    """Reassigned offset (bins) and Hann^2 value from rectangular bins b-2..b+2 (last axis).
+def _hann2_taps(
+    a: NDArray[np.complex128],
+    b: NDArray[np.complex128],
+    c: NDArray[np.complex128],
+    d: NDArray[np.complex128],
+    e: NDArray[np.complex128],
+) -> tuple[_FloatArray, NDArray[np.complex128]]:
+    """Reassigned offset (bins) and Hann^2 value from rectangular bins b-2..b+2 (``a``..``e``).
 
     Hann^2 = 3/8 - 1/2 cos + 1/8 cos 2: its derivative (pi/N)(sin - sin 2 / 2) is smooth at
     the frame edges, so the derivative spectrum's side lobes fall as 1/d^4 (the plain Hann
     derivative, a sine window, falls only as 1/d^2 and lets far partials bias the estimate).
     The offset -Im(X_dh / X_h) N / 2 pi reduces to Re(((R-1 - R+1) - (R-2 - R+2)/2) / (4 X_h)).
+    Element-wise sums, not a matrix product: the result of a frame must not depend on how
+    many frames share the call (BLAS kernels may differ with the batch shape).
     """
-    xh = v @ _H2
-    num = (v[..., 1] - v[..., 3]) - 0.5 * (v[..., 0] - v[..., 4])
-    safe = np.where(np.abs(xh) > 0.0, xh, 1.0)
-    return np.asarray(np.minimum(np.maximum((num / (4.0 * safe)).real, -2.0), 2.0), dtype=np.float64), xh
+    xh = (a + e) * (1.0 / 16.0) - (b + d) * 0.25 + c * 0.375
+    num = (b - d) - 0.5 * (a - e)
+    safe = np.where(xh != 0.0, xh, 1.0)
+    return np.minimum(np.maximum((num / (4.0 * safe)).real, -2.0), 2.0), xh
+
+
+def _hann2_offset(v: NDArray[np.complex128]) -> tuple[_FloatArray, NDArray[np.complex128]]:
+    """:func:`_hann2_taps` of rectangular bins b-2..b+2 along the last axis."""
+    return _hann2_taps(v[..., 0], v[..., 1], v[..., 2], v[..., 3], v[..., 4])
 
 
 def _read5(spec: BatchSpectrum, peak_bin: _IntArray) -> tuple[_IntArray, NDArray[np.complex128]]:
     """Rectangular bins b-2..b+2 around each peak bin, as complex128."""
-    rows = np.arange(peak_bin.shape[0])[:, None, None]
-    j = peak_bin[:, :, None] + np.arange(-2, 3)[None, None, :]
-    return j, spec.rect[rows, j].astype(np.complex128)
+    j = peak_bin[:, :, None] + _OFFS5
+    return j, spec.rect[_row_index(peak_bin.shape[0], 3), j].astype(np.complex128)
 
 
 def reassign_hann2(spec: BatchSpectrum, peak_bin: _IntArray) -> _FloatArray:
@@ -337,15 +384,12 @@ def reassign_hann2(spec: BatchSpectrum, peak_bin: _IntArray) -> _FloatArray:
     reassigns to the frequency at a different instant, and the mean stays at the window
     centre instead of jumping as the strongest bin changes.
     """
-    rows = np.arange(peak_bin.shape[0])[:, None, None]
-    j = peak_bin[:, :, None] + np.arange(-3, 4)[None, None, :]
-    v = spec.rect[rows, j].astype(np.complex128)  # bins b-3 .. b+3
-    three = np.lib.stride_tricks.sliding_window_view(v, 5, axis=-1)  # (F, K, 3, 5)
-    off, xh = _hann2_offset(three)
+    v = spec.rect[_row_index(peak_bin.shape[0], 3), peak_bin[:, :, None] + _OFFS7].astype(np.complex128)
+    # bins b-3 .. b+3; the three centres b-1, b, b+1 each read five of them
+    off, xh = _hann2_taps(v[..., 0:3], v[..., 1:4], v[..., 2:5], v[..., 3:6], v[..., 4:7])
     w = xh.real * xh.real + xh.imag * xh.imag
-    pos = off + np.arange(-1, 2)[None, None, :]
-    mean = (w * pos).sum(axis=-1) / np.maximum(w.sum(axis=-1), 1e-300)
-    return np.asarray(peak_bin + mean, dtype=np.float64)
+    mean = (w * (off + _POS3)).sum(axis=-1) / np.maximum(w.sum(axis=-1), 1e-300)
+    return peak_bin + mean
 
 
 def _clean_reassign(spec: BatchSpectrum, peak_bin: _IntArray, ok: _BoolArray, n_pass: int = 2) -> _FloatArray:
@@ -368,7 +412,8 @@ def _clean_reassign(spec: BatchSpectrum, peak_bin: _IntArray, ok: _BoolArray, n_
     for _ in range(n_pass):
         beta0 = np.where(ok, beta, peak_bin)
         d = (peak_bin - beta0)[:, :, None] + taps[None, None, :]
-        kernel = _dirichlet(d, n) @ _H2
+        dk = _dirichlet(d, n)
+        kernel = (dk[..., 0] + dk[..., 4]) * (1.0 / 16.0) - (dk[..., 1] + dk[..., 3]) * 0.25 + dk[..., 2] * 0.375
         amp = np.where(ok, xh / kernel, 0.0)
         vals = raw.copy()
         for shift, image in shifts:

@@ -47,6 +47,7 @@ EVIDENCE_MODES = 3
 
 _ODD = np.array([1, 0, 1, 0, 1, 0, 1, 0], dtype=bool)
 _MULT3 = np.array([0, 0, 1, 0, 0, 1, 0, 0], dtype=bool)
+_OFF3 = np.flatnonzero(~_MULT3)
 _TINY = 1e-30
 
 
@@ -91,11 +92,17 @@ def summarise_evidence(powers: NDArray[np.float64]) -> NDArray[np.float64]:
     >>> summarise_evidence(np.tile(p, (3, 1)))[0].round(2).tolist()
     [0.04, -6.99, 0.79, -20.0]
     """
-    odd = powers[..., _ODD].sum(axis=-1)
-    even = powers[..., ~_ODD].sum(axis=-1)
-    off3 = powers[..., ~_MULT3].sum(axis=-1)
-    on3 = powers[..., _MULT3].sum(axis=-1)
-    return np.asarray(10.0 * np.log10(np.stack([odd, even, off3, on3], axis=-1) + _TINY), dtype=np.float64)
+    p = np.asarray(powers, dtype=np.float64)
+    out = np.empty(p.shape[:-1] + (4,))
+    # strided slices, not boolean masks (a mask gathers a copy): same sums, fewer operations
+    p[..., 0::2].sum(axis=-1, out=out[..., 0])  # odd harmonics 1, 3, 5, 7
+    p[..., 1::2].sum(axis=-1, out=out[..., 1])  # even 2, 4, 6, 8
+    p[..., _OFF3].sum(axis=-1, out=out[..., 2])  # 1, 2, 4, 5, 7, 8
+    np.add(p[..., 2], p[..., 5], out=out[..., 3])  # 3, 6
+    out += _TINY
+    np.log10(out, out=out)
+    out *= 10.0
+    return out
 
 
 class RegisterMonitor:

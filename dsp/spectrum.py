@@ -22,6 +22,7 @@ __all__ = ["BatchSpectrum", "analyse_spectrum", "hann_kernel_gain", "band_floor"
 
 _FloatArray = NDArray[np.float64]
 _IntArray = NDArray[np.intp]
+_OFFS3 = np.arange(-1, 2)
 
 
 @dataclass(frozen=True, slots=True)
@@ -49,14 +50,15 @@ class BatchSpectrum:
     def reassigned_bins(self, bins: _IntArray) -> _FloatArray:
         """Reassigned (fractional) bin position of the energy seen at integer ``bins`` >= 1."""
         rows = _rows(self.rect, bins)
-        lo, mid, hi = (self.rect[rows, bins + j].astype(np.complex128) for j in (-1, 0, 1))
+        v = self.rect[rows[..., None], bins[..., None] + _OFFS3].astype(np.complex128)
+        lo, mid, hi = v[..., 0], v[..., 1], v[..., 2]
         xh = 0.5 * mid - 0.25 * (lo + hi)
         # Hann h(n) = 0.5 - 0.5 cos(2 pi n / N): h'(n) = (pi/N) sin(2 pi n / N), whose DFT is
         # (pi/N)(R[k-1] - R[k+1]) / 2i; the reassigned offset -Im(X_dh / X_h) in bins reduces
         # to Re((R[k-1] - R[k+1]) / (4 X_h)).
-        safe = np.where(np.abs(xh) > 0.0, xh, 1.0)
+        safe = np.where(xh != 0.0, xh, 1.0)
         offset = ((lo - hi) / (4.0 * safe)).real
-        return np.asarray(bins + np.minimum(np.maximum(offset, -2.0), 2.0), dtype=np.float64)
+        return bins + np.minimum(np.maximum(offset, -2.0), 2.0)
 
 
 def analyse_spectrum(frames: _FloatArray, sample_rate: float, n_bins: int | None = None) -> BatchSpectrum:
@@ -87,12 +89,13 @@ def analyse_spectrum(frames: _FloatArray, sample_rate: float, n_bins: int | None
     n = frames.shape[1]
     keep = n // 2 if n_bins is None else min(int(n_bins), n // 2)
     # single precision: rounding noise ~1e-7 of the peak, far under any microphone's floor
-    rect = scipy.fft.rfft(frames.astype(np.float32), axis=1)[:, : keep + 1]
+    rect = scipy.fft.rfft(frames.astype(np.float32, copy=False), axis=1, workers=1)[:, : keep + 1]
     # Hann combination 0.5 R[k] - 0.25 (R[k-1] + R[k+1]), normalised by 4/n
     xh = (2.0 / n) * rect[:, 1:keep] - (1.0 / n) * (rect[:, : keep - 1] + rect[:, 2 : keep + 1])
     power = np.empty((rect.shape[0], keep), dtype=np.float32)
     power[:, 0] = 0.0
-    power[:, 1:] = xh.real * xh.real + xh.imag * xh.imag
+    re, im = xh.real, xh.imag
+    np.add(re * re, im * im, out=power[:, 1:])
     return BatchSpectrum(rect=rect, power=power, bin_hz=sample_rate / n, frame_size=n)
 
 
@@ -147,7 +150,19 @@ def band_floor(power: NDArray[np.float32], band_bins: int = 32) -> NDArray[np.fl
     bands = power[:, :used].reshape(n_frames, n_bands, band_bins)
     q = int(0.2 * band_bins)
     level = np.partition(bands, q, axis=2)[:, :, q] * np.float32(1.0 / -np.log(0.8))
-    out = np.repeat(level, band_bins, axis=1)
-    if used < n_bins:
-        out = np.concatenate([out, np.repeat(level[:, -1:], n_bins - used, axis=1)], axis=1)
-    return np.asarray(out, dtype=np.float32)
+    return level[:, _band_index(n_bins, band_bins, n_bands)]
+
+
+_BAND_INDEX: dict[tuple[int, int, int], _IntArray] = {}
+
+
+def _band_index(n_bins: int, band_bins: int, n_bands: int) -> _IntArray:
+    """Cached band of each bin; bins past the last full band belong to it."""
+    key = (n_bins, band_bins, n_bands)
+    idx = _BAND_INDEX.get(key)
+    if idx is None:
+        idx = np.minimum(np.arange(n_bins) // band_bins, n_bands - 1)
+        idx.setflags(write=False)
+        if len(_BAND_INDEX) < 64:
+            _BAND_INDEX[key] = idx
+    return idx
