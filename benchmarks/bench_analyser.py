@@ -161,7 +161,7 @@ def memory(minutes: float) -> None:
           f"(rendered chunk by chunk, never held; frames dropped after counting)")
     n = 0
     frames = 0
-    checkpoints = sorted({min(1.0, minutes / 6), *np.linspace(minutes / 6, minutes, 6).round(2)})
+    checkpoints = sorted({round(float(m), 2) for m in (min(1.0, minutes / 6), *np.linspace(minutes / 6, minutes, 6))})
     marks = []
     t0 = time.perf_counter()
     next_mark = 0
@@ -183,7 +183,7 @@ def memory(minutes: float) -> None:
 
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--quick", action="store_true", help="short corpus, pyin on 3 s per item, 1-minute memory run")
+    ap.add_argument("--quick", action="store_true", help="short corpus, pyin on the first 1.5 s of each item, 1-minute memory run")
     ap.add_argument("--no-pyin", action="store_true", help="leave librosa pyin out (slow)")
     ap.add_argument("--memory-minutes", type=float, default=None, help="length of the streaming run (default 60)")
     ap.add_argument("--skip", nargs="*", default=[], choices=["accuracy", "speed", "memory"])
@@ -198,7 +198,7 @@ def main() -> int:
     if not analyser_available():
         print("dsp.analyser.StreamingAnalyser not available yet: reference methods only")
     if "accuracy" not in args.skip:
-        res = accuracy(items, runners(include_pyin=not args.no_pyin, pyin_max_s=3.0 if args.quick else None))
+        res = accuracy(items, runners(include_pyin=not args.no_pyin, pyin_max_s=1.5 if args.quick else None))
         if analyser_available():
             print_register(res["register"])
     if "speed" not in args.skip:
