@@ -404,16 +404,16 @@ class StreamingAnalyser:
         f0_safe = np.where(finite, f0, 1000.0)
 
         clarity = self._clarity(spec, f0_safe) * finite
-        seg = (x * x).reshape(x.shape[0], _SEGMENTS, -1).sum(axis=2)
+        seg = np.add.reduce((x * x).reshape(x.shape[0], _SEGMENTS, -1), 2)
         ms = np.empty((x.shape[0], 2))
-        ms[:, 0] = seg.sum(axis=1) / n
+        ms[:, 0] = np.add.reduce(seg, 1) / n
         # newest quarter of the window (~21 ms at 48 kHz): a level step shows quickly
         ms[:, 1] = (seg[:, -2] + seg[:, -1]) / (n // 4)
         with np.errstate(divide="ignore"):
             levels = 10.0 * np.log10(ms)
         level = levels[:, 0]
         fast_level = levels[:, 1]
-        flat = seg[:, 2:6].min(axis=1) >= _FLATNESS_MIN * np.maximum(seg.max(axis=1), 1e-300)
+        flat = np.minimum.reduce(seg[:, 2:6], 1) >= _FLATNESS_MIN * np.maximum(np.maximum.reduce(seg, 1), 1e-300)
         hum = ((f0_safe[:, None] >= self._hum_lo_hz) & (f0_safe[:, None] <= self._hum_hi_hz)).any(axis=1)
         usable = finite & (f0_safe >= self._fmin) & (f0_safe <= self._fmax) & flat & ~hum & (level > -100.0)
         snr = refined.best_snr_db
@@ -452,14 +452,14 @@ class StreamingAnalyser:
         pos = f0[:, None] * _CLARITY_K
         inside = pos <= self._limit_hz
         centre = np.minimum(np.rint(pos / df).astype(np.intp), n_bins - 2)
-        on = p[np.arange(n_frames)[:, None, None], centre[:, :, None] + _OFFS3].sum(axis=2).astype(np.float64)
-        e_on = (on * inside).sum(axis=1)
-        n_h = inside.sum(axis=1)
+        on = np.add.reduce(p[np.arange(n_frames)[:, None, None], centre[:, :, None] + _OFFS3], 2).astype(np.float64)
+        e_on = np.add.reduce((on * inside), 1)
+        n_h = np.add.reduce(inside, 1)
         n_on = 3.0 * n_h
         top = np.minimum(np.rint((n_h + 0.5) * f0 / df).astype(np.intp), self._hi_bin)
         top = np.maximum(top, self._lo_bin + 1)
-        cum = np.cumsum(p[:, self._lo_bin : self._hi_bin + 1], axis=1, dtype=np.float64)
-        e_all = np.take_along_axis(cum, (top - self._lo_bin)[:, None], axis=1)[:, 0]
+        cum = p[:, self._lo_bin : self._hi_bin + 1].cumsum(1, dtype=np.float64)
+        e_all = cum[np.arange(n_frames), top - self._lo_bin]
         n_all = (top - self._lo_bin + 1).astype(np.float64)
         e_off = np.maximum(e_all - e_on, 0.0)
         n_off = np.maximum(n_all - n_on, 1.0)
@@ -474,5 +474,5 @@ class StreamingAnalyser:
         n_bins = p.shape[1]
         pos = f0[:, None, None] * _EVIDENCE_K / _EVIDENCE_M
         centre = np.minimum(np.maximum(np.rint(pos / df).astype(np.intp), 1), n_bins - 2)
-        near = p[np.arange(p.shape[0])[:, None, None, None], centre[..., None] + _OFFS3].max(axis=-1)
+        near = np.maximum.reduce(p[np.arange(p.shape[0])[:, None, None, None], centre[..., None] + _OFFS3], -1)
         return np.where(pos < self._limit_hz, near, 0.0)

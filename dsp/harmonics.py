@@ -56,8 +56,8 @@ def odd_even_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
     """
     a = amp[:, :N_REPORTED]
     a2 = a * a
-    odd = a2[:, 0::2].sum(axis=1)
-    even = a2[:, 1::2].sum(axis=1)
+    odd = np.add.reduce(a2[:, 0::2], 1)
+    even = np.add.reduce(a2[:, 1::2], 1)
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = 10.0 * np.log10(odd / even)
     ratio[np.isnan(ratio)] = 0.0

@@ -148,8 +148,8 @@ def find_peaks(
     ok &= mid >= top * 10.0 ** (-range_db / 10.0)
     score = np.where(ok, mid, np.float32(0.0))
     k = min(n_peaks, score.shape[1])
-    idx = np.argpartition(-score, k - 1, axis=1)[:, :k]
-    pk_pow = np.take_along_axis(score, idx, axis=1)
+    idx = (-score).argpartition(k - 1, axis=1)[:, :k]
+    pk_pow = score[_row_index(score.shape[0], 2), idx]
     valid = pk_pow > 0.0
     freq = spec.reassigned_bins(idx + lo_bin) * spec.bin_hz
     return PeakSet(
@@ -194,13 +194,13 @@ def estimate_coarse_f0(peaks: PeakSet, fmin_hz: float, fmax_hz: float) -> Coarse
         & (harm <= _MAX_MATCH_HARMONIC)
         & (np.abs(ratio - harm) <= _MATCH_TOLERANCE)
     )
-    total = p_pk.sum(axis=1)[:, None]
-    explained = (p_pk[:, None, :] * match).sum(axis=2) / np.where(total > 0, total, 1.0)
-    n_match = match.sum(axis=2)
-    top_h = np.where(match, harm, 0.0).max(axis=2)
+    total = np.add.reduce(p_pk, 1)[:, None]
+    explained = np.add.reduce((p_pk[:, None, :] * match), 2) / np.where(total > 0, total, 1.0)
+    n_match = np.add.reduce(match, 2)
+    top_h = np.maximum.reduce(np.where(match, harm, 0.0), 2)
     empty = 1.0 - n_match / np.maximum(top_h, 1.0)
     score = np.where(cand_ok, explained - _EMPTY_PENALTY * empty, -np.inf)
-    best = np.argmax(score, axis=1)
+    best = score.argmax(1)
     rows = np.arange(n_frames)
     found = np.isfinite(score[rows, best])
     f0 = np.where(found, cand[rows, best], np.nan)
@@ -245,7 +245,7 @@ def refine_f0(
     rows3 = _row_index(n_frames, 3)
     # peak bin within +-2 bins of the expected harmonic (the Hann main lobe); argmax takes
     # the first of equal maxima
-    pick = np.argmax(power[rows3, centre[:, :, None] + _OFFS5], axis=2)
+    pick = power[rows3, centre[:, :, None] + _OFFS5].argmax(2)
     peak_bin = centre + (pick - 2)
     p3 = power[rows3, peak_bin[:, :, None] + _OFFS3]
     peak_pow = p3[:, :, 1]
@@ -268,8 +268,8 @@ def refine_f0(
         used = ok & (np.abs(bins_frac * df - expect) <= tol_hz)
     f_k = bins_frac * df
     w = np.where(used, peak_pow / noise, np.float32(0.0))
-    num = (w * k * np.where(used, f_k, 0.0)).sum(axis=1)
-    den = (w * k2).sum(axis=1)
+    num = np.add.reduce((w * k * np.where(used, f_k, 0.0)), 1)
+    den = np.add.reduce((w * k2), 1)
     f0 = np.where(den > 0.0, num / np.where(den > 0.0, den, 1.0), np.nan)
     amp = np.sqrt(peak_pow) / np.maximum(_hann_gain(bins_frac - peak_bin), 0.5)
     amp = np.where(inside, amp, 0.0)
@@ -326,7 +326,7 @@ def _hann_gain(d: _FloatArray) -> _FloatArray:
 
 def _best_snr_db(w: _FloatArray) -> _FloatArray:
     """Largest SNR weight per frame in dB."""
-    top = w.max(axis=1) if w.shape[1] else np.zeros(w.shape[0])
+    top = np.maximum.reduce(w, 1) if w.shape[1] else np.zeros(w.shape[0])
     with np.errstate(divide="ignore"):
         return np.asarray(10.0 * np.log10(top), dtype=np.float64)
 
@@ -388,7 +388,7 @@ def reassign_hann2(spec: BatchSpectrum, peak_bin: _IntArray) -> _FloatArray:
     # bins b-3 .. b+3; the three centres b-1, b, b+1 each read five of them
     off, xh = _hann2_taps(v[..., 0:3], v[..., 1:4], v[..., 2:5], v[..., 3:6], v[..., 4:7])
     w = xh.real * xh.real + xh.imag * xh.imag
-    mean = (w * (off + _POS3)).sum(axis=-1) / np.maximum(w.sum(axis=-1), 1e-300)
+    mean = np.add.reduce((w * (off + _POS3)), -1) / np.maximum(np.add.reduce(w, -1), 1e-300)
     return peak_bin + mean
 
 
