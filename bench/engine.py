@@ -24,7 +24,7 @@ from typing import Any, Literal, Protocol
 import numpy as np
 from numpy.typing import NDArray
 
-from bench.errors import BenchError, DeviceError, LogError, SettingsError
+from bench.errors import DeviceError, LogError, SettingsError
 from bench.framelog import CsvFrameLog, new_log_path
 from bench.reading import Reading
 from bench.sources.base import AudioSource, Clock
