@@ -465,7 +465,8 @@ class StreamingAnalyser:
         n_off = np.maximum(n_all - n_on, 1.0)
         dens_on = e_on / np.maximum(n_on, 1.0)
         ratio = (e_off / n_off) / np.maximum(dens_on, 1e-300)
-        return np.minimum(np.maximum(1.0 - ratio, 0.0), 1.0) * (n_h > 0)
+        out: NDArray[np.float64] = np.minimum(np.maximum(1.0 - ratio, 0.0), 1.0) * (n_h > 0)
+        return out
 
     def _evidence(self, fast: BatchSpectrum, f0: NDArray[np.float64]) -> NDArray[np.float64]:
         """Powers at k f0 / m (k = 1..8, m = 1..3), max over +-1 bin of the half window."""

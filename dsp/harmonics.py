@@ -38,7 +38,7 @@ def harmonic_levels_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
     top = a.max(axis=1, keepdims=True)
     # the floor applied before the logarithm (10^-6 = -120 dB): no log of zero to silence
     rel = np.maximum(a / np.where(top > 0.0, top, 1.0), _FLOOR_RATIO)
-    db = np.log10(rel)
+    db: NDArray[np.float64] = np.log10(rel)
     db *= 20.0
     return np.maximum(db, FLOOR_DB, out=db)
 
@@ -61,4 +61,5 @@ def odd_even_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = 10.0 * np.log10(odd / even)
     ratio[np.isnan(ratio)] = 0.0
-    return np.minimum(np.maximum(ratio, -120.0), 120.0)
+    out: NDArray[np.float64] = np.minimum(np.maximum(ratio, -120.0), 120.0)
+    return out

@@ -43,4 +43,5 @@ def clipped(frames: NDArray[np.float64], threshold: float = CLIP_THRESHOLD) -> N
     True
     """
     # max |x| as max(max x, -min x): no temporary array of magnitudes
-    return np.maximum(frames.max(axis=1), -frames.min(axis=1)) >= threshold
+    out: NDArray[np.bool_] = np.maximum(np.maximum.reduce(frames, 1), -np.minimum.reduce(frames, 1)) >= threshold
+    return out

@@ -389,7 +389,8 @@ def reassign_hann2(spec: BatchSpectrum, peak_bin: _IntArray) -> _FloatArray:
     off, xh = _hann2_taps(v[..., 0:3], v[..., 1:4], v[..., 2:5], v[..., 3:6], v[..., 4:7])
     w = xh.real * xh.real + xh.imag * xh.imag
     mean = np.add.reduce((w * (off + _POS3)), -1) / np.maximum(np.add.reduce(w, -1), 1e-300)
-    return peak_bin + mean
+    out: _FloatArray = peak_bin + mean
+    return out
 
 
 def _clean_reassign(spec: BatchSpectrum, peak_bin: _IntArray, ok: _BoolArray, n_pass: int = 2) -> _FloatArray:

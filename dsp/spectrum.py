@@ -58,15 +58,16 @@ class BatchSpectrum:
         # to Re((R[k-1] - R[k+1]) / (4 X_h)).
         safe = np.where(xh != 0.0, xh, 1.0)
         offset = ((lo - hi) / (4.0 * safe)).real
-        return bins + np.minimum(np.maximum(offset, -2.0), 2.0)
+        out: _FloatArray = bins + np.minimum(np.maximum(offset, -2.0), 2.0)
+        return out
 
 
-def analyse_spectrum(frames: _FloatArray, sample_rate: float, n_bins: int | None = None) -> BatchSpectrum:
+def analyse_spectrum(frames: NDArray[np.floating[Any]], sample_rate: float, n_bins: int | None = None) -> BatchSpectrum:
     """Spectra of a batch of frames (one single-precision real FFT per frame).
 
     Parameters
     ----------
-    frames : ndarray of float, shape (n_frames, frame_size)
+    frames : ndarray of float (float32 is used as is), shape (n_frames, frame_size)
         Consecutive analysis frames (rectangular, not yet windowed).
     sample_rate : float > 0, Hz
     n_bins : int or None
