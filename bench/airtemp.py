@@ -24,21 +24,43 @@ TEMP_RANGE_C = (TEMP_MIN_C, TEMP_MAX_C)
 """Air temperatures accepted, degC (the tuning model's range)."""
 
 
+_W1_MILLI = re.compile(r"\bt=(-?\d+)\b")
+
+
 def parse_temp_c(text: str, origin: str) -> float:
-    """The first number in ``text`` as degC.
+    r"""The temperature in ``text``, degC: the first number, or a 1-wire sensor's reading.
+
+    Linux's 1-wire thermometers (DS18B20) give millidegrees: ``w1_slave`` ends in
+    ``t=23125`` and the newer ``temperature`` file holds ``23125`` alone; both read 23.125.
+    A bare whole number above 1000 is taken as millidegrees (no room is that hot).
 
     >>> parse_temp_c("temp=23.4 C", "sensor")
     23.4
+    >>> parse_temp_c("72 01 4b 46 7f ff 0e 10 57 : crc=57 YES\n72 01 4b 46 7f ff 0e 10 57 t=23125", "w1")
+    23.125
+    >>> parse_temp_c("23125\n", "w1 temperature")
+    23.125
 
     Raises
     ------
     SettingsError
         No number, or one outside the accepted range (-10..45 degC).
     """
+    w1 = _W1_MILLI.search(text)
+    if w1 is not None:
+        if "NO" in text.split("t=")[0].split():
+            raise SettingsError(f"1-wire sensor in {origin} reports a bad CRC; keeping the last temperature")
+        return _in_range(int(w1.group(1)) / 1000.0, origin)
+    bare = text.strip()
+    if bare.lstrip("-").isdigit() and abs(int(bare)) > 1000:
+        return _in_range(int(bare) / 1000.0, origin)
     m = _NUMBER.search(text)
     if m is None:
         raise SettingsError(f"no temperature in {origin} (read {text.strip()[:40]!r}); it should print degC")
-    temp_c = float(m.group().replace(",", "."))
+    return _in_range(float(m.group().replace(",", ".")), origin)
+
+
+def _in_range(temp_c: float, origin: str) -> float:
     lo, hi = TEMP_RANGE_C
     if not lo <= temp_c <= hi:
         raise SettingsError(f"temperature {temp_c} degC from {origin} is outside {lo:.0f}..{hi:.0f} degC")
