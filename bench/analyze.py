@@ -187,9 +187,9 @@ def analyse_file(
         rate = f.samplerate if MIN_RATE_HZ <= f.samplerate <= MAX_RATE_HZ else RESAMPLE_RATE_HZ
         analyser = StreamingAnalyser(sample_rate=rate)
         if locked_midi is not None:
-            from bench.tuning.mapping import target_hz
+            from bench.tuning.mapping import target_hz_at_air
 
-            analyser.lock(target_hz(locked_midi, settings))
+            analyser.lock(target_hz_at_air(locked_midi, settings))  # where it sounds in this air
         tracker = HeldNoteTracker()
         notes: list[HeldNote] = []
         log = CsvFrameLog(csv_path, overwrite=True, flush_interval_s=1.0) if csv_path else None
