@@ -225,6 +225,12 @@ class BlowingCurve:
         return f"blowing curve {self.note}: {slope}; {brk}"
 
 
+MIN_SLOPE_SPAN_DB = 3.0
+"""Smallest level span (dB) over which a slope in cents per dB is fitted: over less, the
+fit divides the pitch scatter by almost nothing (common practice of the bench: a crescendo
+for voicing spans well over 6 dB)."""
+
+
 class _Run:
     """Frames of one held note being collected."""
 
@@ -273,7 +279,7 @@ class _Run:
                 levels.append(lv)
                 cents.append(c)
                 lo, hi = min(lo, lv), max(hi, lv)
-        fit = sums.fit()
+        fit = sums.fit() if sums.n and hi - lo >= MIN_SLOPE_SPAN_DB else None
         step = max(1, math.ceil(len(levels) / MAX_KEPT_POINTS))
         midi, settings = self.key
         return BlowingCurve(
@@ -425,7 +431,8 @@ def find_blowing_curves(
     dropout_s: float = 0.06,
 ) -> list[BlowingCurve]:
     """Blowing curves of every held note that changed level by ``min_range_db`` or more,
-    or broke into the next register (a crescendo), in playing order.
+    or rose by ``MIN_SLOPE_SPAN_DB`` and broke into the next register (a crescendo), in
+    playing order. A note that broke at a constant level shows no curve.
 
     Parameters
     ----------
@@ -438,7 +445,11 @@ def find_blowing_curves(
     return [
         c
         for c in _all_curves(rows, attack_s, dropout_s)
-        if c.n >= min_frames and (c.level_range_db >= min_range_db or c.break_level_dbfs is not None)
+        if c.n >= min_frames
+        and (
+            c.level_range_db >= min_range_db
+            or (c.break_level_dbfs is not None and c.level_range_db >= MIN_SLOPE_SPAN_DB)
+        )
     ]
 
 

@@ -255,7 +255,7 @@ def format_text_chart(chart: TuningChart, *, half_width_cents: int = 25) -> str:
             lines.append(f"{name}{e.register:>3} {'-':>7} {'-':>6} {'-':>7}  not yet checked")
             continue
         c = e.capture
-        margin = f"{c.register_margin_db:+.1f}dB" if c.register_margin_db is not None else "-"
+        margin = f"{round(c.register_margin_db, 1) + 0.0:+.1f}dB" if c.register_margin_db is not None else "-"
         extra = "  (not in this profile's plan)" if not e.expected else ""
         cents = c.cents if abs(c.cents) >= 0.05 else 0.0  # no "-0.0"
         lines.append(
@@ -380,7 +380,7 @@ def draw_chart_axes(ax, chart: TuningChart) -> None:  # type: ignore[no-untyped-
                 margin = entry.capture.register_margin_db  # type: ignore[union-attr]
                 if margin is not None:
                     any_margin = True
-                    ax.annotate(f"{margin:+.1f} dB", (x, y + e), xytext=(0, 4),
+                    ax.annotate(f"{round(margin, 1) + 0.0:+.1f} dB", (x, y + e), xytext=(0, 4),
                                 textcoords="offset points", ha="center", fontsize=6, color="#666666")
     if any_margin:
         ax.text(0.995, 0.015, "grey dB: level left before the note broke into the next register",
