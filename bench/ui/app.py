@@ -24,7 +24,7 @@ import threading
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, ClassVar
+from typing import Any, ClassVar, TypeVar
 
 from textual.app import App, ComposeResult
 from textual.binding import Binding
@@ -76,6 +76,9 @@ LABEL_MAX_CHARS = 80
 """Longest session label, characters."""
 DEFAULT_PROFILE = "alto"
 """Instrument profile when none is given."""
+
+
+_T = TypeVar("_T")
 
 
 @dataclass(frozen=True, slots=True)
@@ -623,16 +626,22 @@ class BenchApp(App[int]):
             self.apply_typed_a4,
         )
 
-    def apply_typed_a4(self, text: str | None) -> None:
-        """Apply a typed A4 (Hz or a standard's name); a bad value leaves A4 as it was."""
+    def _parse_typed(self, text: str | None, parse: Callable[[str], _T]) -> _T | None:
+        """A typed value parsed, or None: the dialog was cancelled, or the value was refused
+        with a one-line notice (the setting keeps its old value)."""
         if text is None:
-            return
+            return None
         try:
-            a4_hz = parse_a4(text)
+            return parse(text)
         except SettingsError as exc:
             self.notify(str(exc), severity="error")
-            return
-        self.change_settings(a4_hz=a4_hz)
+            return None
+
+    def apply_typed_a4(self, text: str | None) -> None:
+        """Apply a typed A4 (Hz or a standard's name); a bad value leaves A4 as it was."""
+        a4_hz = self._parse_typed(text, parse_a4)
+        if a4_hz is not None:
+            self.change_settings(a4_hz=a4_hz)
 
     def action_type_air(self) -> None:
         self.push_screen(
@@ -694,14 +703,9 @@ class BenchApp(App[int]):
 
     def apply_typed_lock(self, text: str | None) -> None:
         """Lock to a typed note (``F4``, ``Bb5``); a bad name leaves the lock as it was."""
-        if text is None:
-            return
-        try:
-            midi = parse_note(text)
-        except SettingsError as exc:
-            self.notify(str(exc), severity="error")
-            return
-        self.lock_target(midi)
+        midi = self._parse_typed(text, parse_note)
+        if midi is not None:
+            self.lock_target(midi)
 
     def lock_target(self, midi: int | None) -> None:
         """Lock the target to MIDI note ``midi``, or release it with None."""
@@ -919,12 +923,8 @@ class BenchApp(App[int]):
 
     def apply_typed_label(self, text: str | None) -> None:
         """Put a typed label on the next captures; a label too long is refused in one line."""
-        if text is None:
-            return
-        try:
-            label = check_label(text)
-        except SettingsError as exc:
-            self.notify(str(exc), severity="error")
+        label = self._parse_typed(text, check_label)
+        if label is None:
             return
         self.session_label = label
         if self.workflow is not None:
