@@ -50,7 +50,13 @@ def safe_cell(text: str) -> str:
     return text
 
 
-def _num(value: float | None, digits: int) -> str:
+def number_cell(value: float | None, digits: int) -> str:
+    """A number as a CSV cell: fixed ``digits`` decimals, empty for None or NaN, ``inf``/``-inf``
+    for infinities (the level of digital silence).
+
+    >>> number_cell(-3.0103, 2), number_cell(None, 2), number_cell(float("-inf"), 2)
+    ('-3.01', '', '-inf')
+    """
     if value is None or not math.isfinite(value):
         return "" if value is None or math.isnan(value) else ("-inf" if value < 0 else "inf")
     return f"{value:.{digits}f}"
@@ -66,28 +72,28 @@ def frame_row(
     voiced = frame.f0_hz is not None and mapping is not None
     harm = frame.harmonics_db if voiced and frame.harmonics_db is not None else (None,) * 8
     row = [
-        _num(frame.time_s, 6),
-        _num(frame.ready_s, 6),
-        _num(frame.f0_hz, 4) if voiced else "",
-        _num(frame.clarity, 3),
-        _num(frame.level_dbfs, 2),
+        number_cell(frame.time_s, 6),
+        number_cell(frame.ready_s, 6),
+        number_cell(frame.f0_hz, 4) if voiced else "",
+        number_cell(frame.clarity, 3),
+        number_cell(frame.level_dbfs, 2),
         safe_cell(mapping.note) if voiced and mapping else "",
-        _num(mapping.target_hz, 4) if voiced and mapping else "",
-        _num(mapping.cents_raw, 3) if voiced and mapping else "",
-        _num(mapping.cents, 3) if voiced and mapping else "",
+        number_cell(mapping.target_hz, 4) if voiced and mapping else "",
+        number_cell(mapping.cents_raw, 3) if voiced and mapping else "",
+        number_cell(mapping.cents, 3) if voiced and mapping else "",
         (frame.register or "") if voiced else "",
         (frame.jump or "") if voiced and frame.register == "jumped" else "",
-        _num(frame.odd_even_db, 2) if voiced else "",
-        *(_num(h, 2) if h is not None else "" for h in harm),
+        number_cell(frame.odd_even_db, 2) if voiced else "",
+        *(number_cell(h, 2) if h is not None else "" for h in harm),
         safe_cell(str(settings.temperament)),
         safe_cell(str(settings.tonic)),
-        _num(settings.a4_hz, 2),
-        _num(settings.temp_c, 2),
-        _num(settings.ref_temp_c, 2),
+        number_cell(settings.a4_hz, 2),
+        number_cell(settings.temp_c, 2),
+        number_cell(settings.ref_temp_c, 2),
         "1" if frame.clipped else "0",
-        _num(frame.held_f0_hz, 4) if voiced else "",
+        number_cell(frame.held_f0_hz, 4) if voiced else "",
         safe_cell(locked_note or ""),
-        _num(settings.rh_percent, 1) if settings.rh_percent is not None else "",
+        number_cell(settings.rh_percent, 1) if settings.rh_percent is not None else "",
     ]
     return row
 

@@ -58,7 +58,7 @@ from pathlib import Path
 from typing import Any, Literal
 
 from bench.errors import LogError
-from bench.framelog import safe_cell
+from bench.framelog import number_cell, safe_cell
 from bench.workflow.blowing import LevelHistory, fit_line
 from bench.workflow.points import FramePoint, SettingsKey, as_point
 from bench.workflow.profiles import InstrumentProfile
@@ -630,12 +630,6 @@ def captures_path_for(log_path: str | Path) -> Path:
     return p.with_name(f"{p.stem}.captures.csv")
 
 
-def _fmt(value: float | None, digits: int) -> str:
-    if value is None:
-        return ""
-    if not math.isfinite(value):
-        return "" if math.isnan(value) else ("-inf" if value < 0 else "inf")
-    return f"{value:.{digits}f}"
 
 
 def capture_row(cap: Capture) -> list[str]:
@@ -649,27 +643,27 @@ def capture_row(cap: Capture) -> list[str]:
         str(cap.register),
         "" if cap.mode is None else str(cap.mode),
         cap.jump,
-        _fmt(cap.start_s, 4),
-        _fmt(cap.end_s, 4),
+        number_cell(cap.start_s, 4),
+        number_cell(cap.end_s, 4),
         str(cap.frames),
-        _fmt(cap.cents, 3),
-        _fmt(cap.cents_spread, 3),
-        _fmt(cap.cents_raw, 3),
-        _fmt(cap.f0_hz, 4),
-        _fmt(cap.target_hz, 4),
-        _fmt(cap.level_dbfs, 2),
-        _fmt(cap.level_min_dbfs, 2),
-        _fmt(cap.level_max_dbfs, 2),
-        _fmt(cap.odd_even_db, 2),
-        *(_fmt(h, 2) for h in cap.harmonics_db),
-        _fmt(cap.register_margin_db, 2),
-        _fmt(cap.break_level_dbfs, 2),
+        number_cell(cap.cents, 3),
+        number_cell(cap.cents_spread, 3),
+        number_cell(cap.cents_raw, 3),
+        number_cell(cap.f0_hz, 4),
+        number_cell(cap.target_hz, 4),
+        number_cell(cap.level_dbfs, 2),
+        number_cell(cap.level_min_dbfs, 2),
+        number_cell(cap.level_max_dbfs, 2),
+        number_cell(cap.odd_even_db, 2),
+        *(number_cell(h, 2) for h in cap.harmonics_db),
+        number_cell(cap.register_margin_db, 2),
+        number_cell(cap.break_level_dbfs, 2),
         _quote(cap.temperament),
         _quote(cap.tonic),
-        _fmt(cap.a4_hz, 3),
-        _fmt(cap.temp_c, 2),
-        _fmt(cap.ref_temp_c, 2),
-        _fmt(cap.rh_percent, 1),
+        number_cell(cap.a4_hz, 3),
+        number_cell(cap.temp_c, 2),
+        number_cell(cap.ref_temp_c, 2),
+        number_cell(cap.rh_percent, 1),
     ]
 
 

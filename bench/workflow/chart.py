@@ -26,7 +26,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any, Literal
 
 from bench.errors import BenchError, LogError
-from bench.framelog import safe_cell
+from bench.framelog import number_cell, safe_cell
 from bench.workflow.captures import Capture
 from bench.workflow.notenames import note_name
 from bench.workflow.points import SettingsKey
@@ -286,9 +286,6 @@ def write_summary_csv(chart: TuningChart, path: str | Path) -> Path:
     """
     path = Path(path)
 
-    def num(v: float | None, digits: int) -> str:
-        return "" if v is None or not math.isfinite(v) else f"{v:.{digits}f}"
-
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
         with open(path, "w", encoding="utf-8", newline="") as f:
@@ -304,19 +301,19 @@ def write_summary_csv(chart: TuningChart, path: str | Path) -> Path:
                         e.midi,
                         e.register,
                         e.status,
-                        num(c.cents if c else None, 2),
-                        num(c.cents_spread if c else None, 2),
-                        num(c.cents_raw if c else None, 2),
-                        num(c.level_dbfs if c else None, 1),
-                        num(c.odd_even_db if c else None, 1),
-                        num(c.register_margin_db if c else None, 1),
+                        number_cell(c.cents if c else None, 2),
+                        number_cell(c.cents_spread if c else None, 2),
+                        number_cell(c.cents_raw if c else None, 2),
+                        number_cell(c.level_dbfs if c else None, 1),
+                        number_cell(c.odd_even_db if c else None, 1),
+                        number_cell(c.register_margin_db if c else None, 1),
                         c.index if c else "",
                         safe_cell(c.label) if c else "",
                         safe_cell(s.temperament) if s else "",
                         safe_cell(s.tonic) if s else "",
-                        num(s.a4_hz if s else None, 2),
-                        num(s.temp_c if s else None, 2),
-                        num(s.ref_temp_c if s else None, 2),
+                        number_cell(s.a4_hz if s else None, 2),
+                        number_cell(s.temp_c if s else None, 2),
+                        number_cell(s.ref_temp_c if s else None, 2),
                     ]
                 )
     except OSError as exc:

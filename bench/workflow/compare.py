@@ -29,7 +29,7 @@ from pathlib import Path
 from typing import Literal
 
 from bench.errors import BenchError, LogError
-from bench.framelog import safe_cell
+from bench.framelog import number_cell, safe_cell
 from bench.workflow.captures import Capture
 from bench.workflow.chart import GUIDE_CENTS, build_chart, check_picture_path, agg_pyplot
 from bench.workflow.points import SettingsKey
@@ -287,8 +287,8 @@ def write_comparison_csv(cmp: Comparison, path: str | Path) -> Path:
     """Write the comparison (columns :data:`COMPARISON_COLUMNS`). Raises LogError."""
     path = Path(path)
 
-    def n(v: float | None, d: int = 2) -> str:
-        return "" if v is None or not math.isfinite(v) else f"{v:.{d}f}"
+    def n(v: float | None) -> str:
+        return number_cell(v, 2)
 
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
