@@ -8,21 +8,15 @@ Contract other modules code against::
     an.lock(target_hz)                               # judge register against this note; None releases
     an.reset()                                       # back to the state after construction
 
-Per hop, vectorised over all the hops a block completes:
-
-1. one real FFT of the newest ``frame_size`` samples (~85 ms) and one of the newest half
-   of them; Hann spectra and frequency reassignment come from them (:mod:`dsp.spectrum`);
-2. coarse f0 by harmonic matching of the strongest peaks, refined by weighted least
-   squares over the reassigned harmonic frequencies (:mod:`dsp.pitch`);
-3. voicing: clarity = 1 - (power density between the harmonics) / (density on them), the
-   strongest harmonic >= 20 dB over the local floor, energy present across the window's
-   centre (clicks and knocks fail it), mains hum (f0 within 0.5 % of 50, 60, 100, 120, 150
-   or 180 Hz) rejected; a sounding note is held on weaker evidence (hysteresis);
-4. level, clipping (:mod:`dsp.level`), H1..H8 and odd/even balance (:mod:`dsp.harmonics`);
-5. the register monitor (:mod:`dsp.register`), fed with the newest half-window's powers at
-   the held note's harmonics and the level of the newest quarter window. Once a jump is
-   past a frame's centre and the window still shows the held note (reverberation), the
-   frame's pitch is measured on the harmonics of mode x held note.
+Per hop: one real FFT of the newest ``frame_size`` samples (~85 ms) and one of the newest
+half of them, for all the hops a block completes at once; then one compiled pass per frame
+(:mod:`dsp.measure`): Hann spectra, coarse and refined f0 (:mod:`dsp.pitch`), voicing,
+level, clipping, H1..H8 and odd/even balance, and the register evidence. The register
+monitor (:mod:`dsp.register`) is fed the newest half-window's powers at the held note's
+harmonics and the level of the newest quarter window; a sounding note stays voiced on
+weaker evidence (hysteresis). Once a jump is past a frame's centre and the window still
+shows the held note (reverberation), the frame's pitch is measured on the harmonics of
+mode x held note.
 
 Known limits: a vibrato is read through the window's smoothing (~4.5 % shallow at 5 Hz:
 ~0.5 cent median error on a 15-cent vibrato); ready_s - time_s is half a window (43 ms at
@@ -42,12 +36,13 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+import scipy.fft  # type: ignore[import-untyped]
+
 from dsp.frame import Frame
-from dsp.harmonics import harmonic_levels_db, odd_even_db
-from dsp.level import clipped
-from dsp.pitch import RefinedPitch, estimate_coarse_f0, find_peaks, refine_f0
-from dsp.register import EVIDENCE_HARMONICS, EVIDENCE_MODES, RegisterMonitor, summarise_evidence
-from dsp.spectrum import BatchSpectrum, analyse_spectrum, band_floor
+from dsp.harmonics import N_REPORTED, balance_row
+from dsp.measure import FIT_SNR_DB, MAINS_HZ, MAINS_TOLERANCE, N_FIT_HARMONICS, measure_frames
+from dsp.pitch import refine_f0
+from dsp.register import EVIDENCE_MODES, RegisterMonitor
 
 __all__ = ["StreamingAnalyser", "MIN_SAMPLE_RATE", "MAX_SAMPLE_RATE", "FMIN_HZ", "FMAX_HZ"]
 
@@ -58,40 +53,10 @@ FMIN_HZ = 60.0
 FMAX_HZ = 4500.0
 """Highest fundamental reported, Hz."""
 
-_MAINS_HZ = np.array([50.0, 60.0, 100.0, 120.0, 150.0, 180.0])
-_MAINS_TOLERANCE = 0.005  # mains frequency stays within +-0.4 %: common practice (grid codes)
-_CLARITY_MIN = 0.5
-_PEAK_SNR_MIN_DB = 20.0  # strongest harmonic over the local floor; noise maxima reach ~10 dB
-_CLARITY_HOLD = 0.3
-_PEAK_SNR_HOLD_DB = 14.0
 _HOLD_CENTS = 50.0  # a sustained frame must stay within this of the previous voiced f0
-_FLATNESS_MIN = 0.005  # centre segments within 23 dB of the loudest: level steps pass, knocks (decaying ~10 dB per segment) do not
-_SEGMENTS = 8
 _PEAK_LIMIT_HZ = 10000.0
 _CHUNK_FRAMES = 32
-_N_PEAKS = 10  # spectral peaks for the coarse match
-_N_FIT_HARMONICS = 12  # harmonics in the refinement (H12 of a duct flute is ~50 dB down)
-_CLARITY_K = np.arange(1, 41, dtype=np.float64)  # harmonics counted by the clarity
-_EVIDENCE_K = np.arange(1, EVIDENCE_HARMONICS + 1, dtype=np.float64)[None, None, :]
-_EVIDENCE_M = np.arange(1, EVIDENCE_MODES + 1, dtype=np.float64)[None, :, None]
-_OFFS3 = np.arange(-1, 2)
-
-
-@dataclass(frozen=True, slots=True)
-class _Batch:
-    """Per-frame results of one batch (arrays over frames)."""
-
-    spec: BatchSpectrum
-    floor: NDArray[np.float64]
-    refined: RefinedPitch
-    voiced: NDArray[np.bool_]
-    sustain: NDArray[np.bool_]
-    clarity: NDArray[np.float64]
-    level_dbfs: NDArray[np.float64]
-    fast_level_dbfs: NDArray[np.float64]
-    clip: NDArray[np.bool_]
-    evidence: NDArray[np.float64]  # (n_frames, 3, 8)
-    fast: BatchSpectrum
+_compiled = False  # the kernels compiled (or loaded from numba's cache) in this process
 
 
 class StreamingAnalyser:
@@ -175,12 +140,27 @@ class StreamingAnalyser:
         self._limit_hz = min(_PEAK_LIMIT_HZ, 0.45 * sr)
         self._lo_bin = max(2, int(math.floor(0.9 * fmin_hz / df)))
         self._hi_bin = min(n_bins - 3, int(math.ceil(self._limit_hz / df)))
-        self._n_bins = self._hi_bin + 4
-        self._fast_bins = self._hi_bin // 2 + 4
+        self._keep = min(self._hi_bin + 4, self._n // 2)  # bins of the whole-window spectrum used
+        self._fast_keep = min(self._hi_bin // 2 + 4, self._n // 4)  # ... of the newest half window
         self._store_size = self._n + 8 * self._hop + 8192
-        self._hum_lo_hz = _MAINS_HZ * (1.0 - _MAINS_TOLERANCE)
-        self._hum_hi_hz = _MAINS_HZ * (1.0 + _MAINS_TOLERANCE)
+        self._hum_lo_hz = MAINS_HZ * (1.0 - MAINS_TOLERANCE)
+        self._hum_hi_hz = MAINS_HZ * (1.0 + MAINS_TOLERANCE)
+        c, keep = _CHUNK_FRAMES, self._keep
+        self._power = np.empty((c, keep))
+        self._floor = np.empty((c, keep))
+        self._f0 = np.empty(c)
+        self._clarity = np.empty(c)
+        self._level = np.empty(c)
+        self._fast_level = np.empty(c)
+        self._clip = np.empty(c, dtype=bool)
+        self._voiced = np.empty(c, dtype=bool)
+        self._sustain = np.empty(c, dtype=bool)
+        self._harm_db = np.empty((c, N_REPORTED))
+        self._odd_even = np.empty(c)
+        self._evidence = np.empty((c, EVIDENCE_MODES, 4))
         self.reset()
+        if not _compiled:
+            self._compile()
 
     # -- contract -------------------------------------------------------------------------
 
@@ -278,11 +258,7 @@ class StreamingAnalyser:
         if self._next_end <= self._n_in:
             n_frames = (self._n_in - self._next_end) // hop + 1
             first = self._next_end - self._n - self._store_start  # buffer index of frame 0
-            item = self._store.itemsize
-            view = np.lib.stride_tricks.as_strided(
-                self._store[first:], shape=(n_frames, self._n), strides=(hop * item, item), writeable=False
-            )
-            frames = self._analyse(view, self._next_end, n_frames)
+            frames = self._analyse(first, self._next_end, n_frames)
             self._next_end += hop * n_frames
         # keep from the next frame's first sample on
         drop = self._next_end - self._n - self._store_start
@@ -301,35 +277,50 @@ class StreamingAnalyser:
 
     # -- analysis -------------------------------------------------------------------------
 
-    def _analyse(self, x: NDArray[np.float64], first_end: int, n_frames: int) -> list[Frame]:
-        """Frames for ``n_frames`` windows ``x`` (a strided view), the first ending at ``first_end``."""
+    def _analyse(self, first: int, first_end: int, n_frames: int) -> list[Frame]:
+        """Frames for ``n_frames`` windows, the first at store index ``first`` and ending at ``first_end``."""
         out: list[Frame] = []
         for s in range(0, n_frames, _CHUNK_FRAMES):  # chunks that stay in cache
             c = min(_CHUNK_FRAMES, n_frames - s)
             ends = [first_end + self._hop * (s + i) for i in range(c)]
-            out.extend(self._analyse_chunk(np.ascontiguousarray(x[s : s + c]), ends))
+            out.extend(self._analyse_chunk(first + s * self._hop, ends))
         return out
 
-    def _analyse_chunk(self, x: NDArray[np.float64], ends_l: list[int]) -> list[Frame]:
-        """Frames for up to _CHUNK_FRAMES windows."""
-        b = self._analyse_batch(x)
+    def _analyse_chunk(self, first: int, ends_l: list[int]) -> list[Frame]:
+        """Frames for up to _CHUNK_FRAMES windows, the first at store index ``first``."""
+        n, hop, c = self._n, self._hop, len(ends_l)
+        item = self._store.itemsize
+        view = np.lib.stride_tricks.as_strided(
+            self._store[first:], shape=(c, n), strides=(hop * item, item), writeable=False
+        )
+        x32 = view.astype(np.float32)
+        # single precision: rounding noise ~1e-7 of the peak, far under any microphone's floor
+        rect = scipy.fft.rfft(x32, axis=1, workers=1)
+        rect_fast = scipy.fft.rfft(x32[:, n // 2 :], axis=1, workers=1)
+        measure_frames(
+            self._store, first, hop, n, rect, rect_fast, self._sr, self._lo_bin, self._hi_bin, self._fast_keep,
+            self._limit_hz, self._fmin, self._fmax, self._hum_lo_hz, self._hum_hi_hz,
+            self._power[:c], self._floor[:c], self._f0[:c], self._clarity[:c], self._level[:c],
+            self._fast_level[:c], self._clip[:c], self._voiced[:c], self._sustain[:c], self._harm_db[:c],
+            self._odd_even[:c], self._evidence[:c],
+        )  # fmt: skip
         sr = self._sr
-        half = self._n / 2.0
+        half = n / 2.0
         out: list[Frame] = []
         update = self._monitor.update
-        f0s = b.refined.f0_hz.tolist()
-        voiced_l = b.voiced.tolist()
-        sustain_l = b.sustain.tolist()
-        harm_db = harmonic_levels_db(b.refined.harmonic_amp).tolist()
-        oe = odd_even_db(b.refined.harmonic_amp).tolist()
-        evidence = summarise_evidence(b.evidence).tolist()
-        fast_level = b.fast_level_dbfs.tolist()
-        clarity = b.clarity.tolist()
-        level = b.level_dbfs.tolist()
-        clip = b.clip.tolist()
+        f0s = self._f0[:c].tolist()
+        voiced_l = self._voiced[:c].tolist()
+        sustain_l = self._sustain[:c].tolist()
+        harm_db = self._harm_db[:c].tolist()
+        oe = self._odd_even[:c].tolist()
+        evidence = self._evidence[:c].tolist()
+        fast_level = self._fast_level[:c].tolist()
+        clarity = self._clarity[:c].tolist()
+        level = self._level[:c].tolist()
+        clip = self._clip[:c].tolist()
         prev = self._prev_f0
         jumped_run = self._jumped_run
-        for i in range(len(ends_l)):
+        for i in range(c):
             f0 = f0s[i] if voiced_l[i] else None
             if f0 is None and prev is not None and sustain_l[i] and abs(1200.0 * math.log2(f0s[i] / prev)) <= _HOLD_CENTS:
                 f0 = f0s[i]
@@ -351,7 +342,7 @@ class StreamingAnalyser:
                     # octave sounds: measure the sounding note at mode x held. Only once the
                     # change is past this frame's centre: the monitor judges the newest half
                     # window, whose centre leads this frame's by a quarter window
-                    f0, h_db, oe_db = self._refine_single(b, i, reading.mode * held)
+                    f0, h_db, oe_db = self._refine_single(rect[i], i, reading.mode * held)
                 else:
                     h_db = tuple(harm_db[i])
                     oe_db = oe[i]
@@ -376,104 +367,32 @@ class StreamingAnalyser:
         self._jumped_run = jumped_run
         return out
 
-    def _refine_single(self, b: _Batch, i: int, f_hz: float) -> tuple[float | None, tuple[float, ...] | None, float | None]:
-        """Refine frame ``i`` of a batch around ``f_hz``."""
-        sp = b.spec
-        spec = BatchSpectrum(sp.rect[i : i + 1], sp.power[i : i + 1], sp.bin_hz, sp.frame_size)
-        r = refine_f0(spec, b.floor[i : i + 1], np.array([f_hz]), self._limit_hz, n_harmonics=_N_FIT_HARMONICS)
-        f0 = float(r.f0_hz[0])
+    def _compile(self) -> None:
+        """Run every compiled kernel once on a made-up frame, so that no first call stalls a live stream.
+
+        numba compiles on first use (seconds, once per installation: the result is cached
+        on disk) and loads from its cache on each process's first call (~0.3 s).
+        """
+        global _compiled
+        t = np.arange(self._n + self._hop) / self._sr
+        self._store = np.sin(2.0 * np.pi * 440.0 * t) * 0.1
+        try:
+            self._analyse_chunk(0, [self._n])
+            self._refine_single(scipy.fft.rfft(self._store[: self._n].astype(np.float32)), 0, 880.0)
+        finally:
+            self.reset()  # the made-up frame leaves no trace
+        _compiled = True
+
+    def _refine_single(
+        self, rect: NDArray[np.complex64], i: int, f_hz: float
+    ) -> tuple[float | None, tuple[float, ...] | None, float | None]:
+        """Refine frame ``i`` of the current chunk around ``f_hz``."""
+        amp = np.empty(N_FIT_HARMONICS)
+        f0, _ = refine_f0(
+            rect, self._power[i], self._floor[i], f_hz, self._sr / self._n, self._n, self._limit_hz, amp, FIT_SNR_DB
+        )
         if not math.isfinite(f0):
             return None, None, None
-        return f0, tuple(harmonic_levels_db(r.harmonic_amp)[0].tolist()), float(odd_even_db(r.harmonic_amp)[0])
-
-    def _analyse_batch(self, x: NDArray[np.float64]) -> _Batch:
-        """Vectorised per-frame measurements."""
-        sr = self._sr
-        n = self._n
-        lo, hi = self._lo_bin, self._hi_bin
-        x32 = x.astype(np.float32)
-        spec = analyse_spectrum(x32, sr, self._n_bins)
-        floor = band_floor(spec.power)
-        top = spec.power[:, lo:hi].max(axis=1, keepdims=True)
-        floor = np.maximum(floor, top * 1e-12)  # digital-silence-clean tones: relative floor
-        peaks = find_peaks(spec, floor, lo, hi, n_peaks=_N_PEAKS)
-        coarse = estimate_coarse_f0(peaks, self._fmin * 0.97, self._fmax * 1.03)
-        refined = refine_f0(spec, floor, coarse.f0_hz, self._limit_hz, n_harmonics=_N_FIT_HARMONICS)
-        f0 = refined.f0_hz
-        finite = np.isfinite(f0)
-        f0_safe = np.where(finite, f0, 1000.0)
-
-        clarity = self._clarity(spec, f0_safe) * finite
-        seg = np.add.reduce((x * x).reshape(x.shape[0], _SEGMENTS, -1), 2)
-        ms = np.empty((x.shape[0], 2))
-        ms[:, 0] = np.add.reduce(seg, 1) / n
-        # newest quarter of the window (~21 ms at 48 kHz): a level step shows quickly
-        ms[:, 1] = (seg[:, -2] + seg[:, -1]) / (n // 4)
-        with np.errstate(divide="ignore"):
-            levels = 10.0 * np.log10(ms)
-        level = levels[:, 0]
-        fast_level = levels[:, 1]
-        flat = np.minimum.reduce(seg[:, 2:6], 1) >= _FLATNESS_MIN * np.maximum(np.maximum.reduce(seg, 1), 1e-300)
-        hum = ((f0_safe[:, None] >= self._hum_lo_hz) & (f0_safe[:, None] <= self._hum_hi_hz)).any(axis=1)
-        usable = finite & (f0_safe >= self._fmin) & (f0_safe <= self._fmax) & flat & ~hum & (level > -100.0)
-        snr = refined.best_snr_db
-        voiced = usable & (clarity >= _CLARITY_MIN) & (snr >= _PEAK_SNR_MIN_DB)
-        # hysteresis: a note already sounding stays voiced on weaker evidence (reverberant
-        # tails, breath noise); see _analyse_chunk
-        sustain = usable & (clarity >= _CLARITY_HOLD) & (snr >= _PEAK_SNR_HOLD_DB)
-        fast = analyse_spectrum(x32[:, n // 2 :], sr, self._fast_bins)
-        evidence = self._evidence(fast, f0_safe)
-        return _Batch(
-            spec=spec,
-            floor=floor,
-            refined=refined,
-            voiced=voiced,
-            sustain=sustain,
-            clarity=clarity,
-            level_dbfs=level,
-            fast_level_dbfs=fast_level,
-            clip=clipped(x),
-            evidence=evidence,
-            fast=fast,
-        )
-
-    def _clarity(self, spec: BatchSpectrum, f0: NDArray[np.float64]) -> NDArray[np.float64]:
-        """1 - (power density between the harmonics of ``f0``) / (density on them), clipped 0..1.
-
-        "On" a harmonic: the 3 bins nearest it (>= 97 % of a Hann-windowed sine's energy);
-        "between": the other bins from the lowest search bin up to half a harmonic above the
-        last harmonic counted (at most 40, below the peak search limit). A periodic tone has
-        empty valleys (clarity near 1); noise fills both alike (near 0), even for a low
-        candidate whose harmonics cover half the bins.
-        """
-        df = spec.bin_hz
-        p = spec.power
-        n_frames, n_bins = p.shape
-        pos = f0[:, None] * _CLARITY_K
-        inside = pos <= self._limit_hz
-        centre = np.minimum(np.rint(pos / df).astype(np.intp), n_bins - 2)
-        on = np.add.reduce(p[np.arange(n_frames)[:, None, None], centre[:, :, None] + _OFFS3], 2).astype(np.float64)
-        e_on = np.add.reduce((on * inside), 1)
-        n_h = np.add.reduce(inside, 1)
-        n_on = 3.0 * n_h
-        top = np.minimum(np.rint((n_h + 0.5) * f0 / df).astype(np.intp), self._hi_bin)
-        top = np.maximum(top, self._lo_bin + 1)
-        cum = p[:, self._lo_bin : self._hi_bin + 1].cumsum(1, dtype=np.float64)
-        e_all = cum[np.arange(n_frames), top - self._lo_bin]
-        n_all = (top - self._lo_bin + 1).astype(np.float64)
-        e_off = np.maximum(e_all - e_on, 0.0)
-        n_off = np.maximum(n_all - n_on, 1.0)
-        dens_on = e_on / np.maximum(n_on, 1.0)
-        ratio = (e_off / n_off) / np.maximum(dens_on, 1e-300)
-        out: NDArray[np.float64] = np.minimum(np.maximum(1.0 - ratio, 0.0), 1.0) * (n_h > 0)
-        return out
-
-    def _evidence(self, fast: BatchSpectrum, f0: NDArray[np.float64]) -> NDArray[np.float64]:
-        """Powers at k f0 / m (k = 1..8, m = 1..3), max over +-1 bin of the half window."""
-        df = fast.bin_hz
-        p = fast.power
-        n_bins = p.shape[1]
-        pos = f0[:, None, None] * _EVIDENCE_K / _EVIDENCE_M
-        centre = np.minimum(np.maximum(np.rint(pos / df).astype(np.intp), 1), n_bins - 2)
-        near = np.maximum.reduce(p[np.arange(p.shape[0])[:, None, None, None], centre[..., None] + _OFFS3], -1)
-        return np.where(pos < self._limit_hz, near, 0.0)
+        levels = np.empty(N_REPORTED)
+        oe = balance_row(amp, levels)
+        return f0, tuple(levels.tolist()), oe

@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
+from numba import njit  # type: ignore[import-untyped]
 from numpy.typing import NDArray
 
-__all__ = ["harmonic_levels_db", "odd_even_db", "N_REPORTED", "FLOOR_DB"]
+__all__ = ["harmonic_levels_db", "odd_even_db", "balance_row", "N_REPORTED", "FLOOR_DB"]
 
 N_REPORTED = 8
 """Harmonics reported (H1..H8)."""
@@ -14,6 +17,48 @@ FLOOR_DB = -120.0
 """Lowest level reported, dB re the strongest harmonic (absent harmonics read this)."""
 
 _FLOOR_RATIO = 10.0 ** (FLOOR_DB / 20.0)
+_ODD_EVEN_LIMIT_DB = 120.0
+
+
+@njit(cache=True, nogil=True)
+def balance_row(amp: NDArray[np.float64], levels_db: NDArray[np.float64]) -> float:
+    """H1..H8 of one frame in dB re the strongest into ``levels_db``; returns odd/even (dB).
+
+    ``amp``: amplitudes of harmonics 1..n (n >= 8). Levels are 0 for the strongest and
+    never below ``FLOOR_DB`` (the floor applied before the logarithm: no log of zero for
+    silence). Odd/even: ``10 log10(sum of odd H^2 / sum of even H^2)`` over H1..H8,
+    clipped to +-120 dB; 0 when both sums are 0.
+    """
+    top = 0.0
+    for k in range(N_REPORTED):
+        if amp[k] > top:
+            top = amp[k]
+    scale = 1.0 / top if top > 0.0 else 1.0
+    odd = 0.0
+    even = 0.0
+    for k in range(N_REPORTED):
+        a = amp[k]
+        levels_db[k] = 20.0 * math.log10(max(a * scale, _FLOOR_RATIO))
+        if k % 2 == 0:
+            odd += a * a
+        else:
+            even += a * a
+    if odd == 0.0 and even == 0.0:
+        return 0.0
+    if even == 0.0:
+        return _ODD_EVEN_LIMIT_DB
+    if odd == 0.0:
+        return -_ODD_EVEN_LIMIT_DB
+    return min(max(10.0 * math.log10(odd / even), -_ODD_EVEN_LIMIT_DB), _ODD_EVEN_LIMIT_DB)
+
+
+def _balance(amp: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    a = np.ascontiguousarray(amp, dtype=np.float64)
+    levels = np.empty((a.shape[0], N_REPORTED))
+    oe = np.empty(a.shape[0])
+    for i in range(a.shape[0]):
+        oe[i] = balance_row(a[i], levels[i])
+    return levels, oe
 
 
 def harmonic_levels_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
@@ -34,13 +79,7 @@ def harmonic_levels_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
     >>> harmonic_levels_db(np.array([[1.0, 0.5, 0.1, 0, 0, 0, 0, 0]]))[0, :3].round(2).tolist()
     [0.0, -6.02, -20.0]
     """
-    a = amp[:, :N_REPORTED]
-    top = a.max(axis=1, keepdims=True)
-    # the floor applied before the logarithm (10^-6 = -120 dB): no log of zero to silence
-    rel = np.maximum(a / np.where(top > 0.0, top, 1.0), _FLOOR_RATIO)
-    db: NDArray[np.float64] = np.log10(rel)
-    db *= 20.0
-    return np.maximum(db, FLOOR_DB, out=db)
+    return _balance(amp)[0]
 
 
 def odd_even_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
@@ -54,12 +93,4 @@ def odd_even_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
     >>> round(float(odd_even_db(np.array([[1.0, 1.0, 1.0, 1.0, 0, 0, 0, 0]]))[0]), 2)
     0.0
     """
-    a = amp[:, :N_REPORTED]
-    a2 = a * a
-    odd = np.add.reduce(a2[:, 0::2], 1)
-    even = np.add.reduce(a2[:, 1::2], 1)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ratio = 10.0 * np.log10(odd / even)
-    ratio[np.isnan(ratio)] = 0.0
-    out: NDArray[np.float64] = np.minimum(np.maximum(ratio, -120.0), 120.0)
-    return out
+    return _balance(amp)[1]

@@ -10,3 +10,14 @@ def _private_user_folders(tmp_path_factory, monkeypatch):
     """Point bench's config and log folders at fresh temporary ones for every test."""
     monkeypatch.setenv("BENCH_CONFIG_DIR", str(tmp_path_factory.mktemp("config")))
     monkeypatch.setenv("BENCH_LOG_DIR", str(tmp_path_factory.mktemp("logs")))
+
+
+def pytest_sessionstart(session):
+    """Compile the analyser's kernels once, before any test times a subprocess.
+
+    numba caches the machine code on disk; without this, the first test to start bench in
+    a subprocess would also pay the one-off compilation (seconds).
+    """
+    from dsp.analyser import StreamingAnalyser
+
+    StreamingAnalyser(48000)

@@ -1,0 +1,244 @@
+"""One compiled pass over each frame: spectrum, noise floor, f0, clarity, level, register evidence.
+
+The analyser (:mod:`dsp.analyser`) computes the frames' FFTs in one batch and hands them
+here; :func:`measure_frames` then measures every frame on its own (numba, no Python per
+operation), so a frame's result never depends on the block sizes it was fed in. Steps:
+
+1. Hann power of the ~85 ms window and its noise floor (:mod:`dsp.spectrum`);
+2. coarse f0 from the strongest peaks, refined by weighted least squares over the
+   reassigned harmonic frequencies (:mod:`dsp.pitch`);
+3. voicing: clarity = 1 - (power density between the harmonics) / (density on them), the
+   strongest harmonic >= 20 dB over the local floor, energy present across the window's
+   centre (clicks and knocks fail it), mains hum (f0 within 0.5 % of 50, 60, 100, 120, 150
+   or 180 Hz) rejected; weaker "sustain" evidence for a note already sounding;
+4. level (whole window and newest quarter), clipping, H1..H8 and odd/even balance;
+5. the register monitor's evidence: powers at ``k f0 / m`` (k = 1..8, m = 1..3) in the
+   newest half window, summarised in dB (:func:`dsp.register.summarise_row`).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit  # type: ignore[import-untyped]
+from numpy.typing import NDArray
+
+from dsp.harmonics import N_REPORTED, balance_row
+from dsp.level import CLIP_THRESHOLD
+from dsp.pitch import coarse_f0, refine_f0, strongest_peaks
+from dsp.register import EVIDENCE_HARMONICS, EVIDENCE_MODES, summarise_row
+from dsp.spectrum import band_floor, hann_power
+
+__all__ = ["MAINS_HZ", "MAINS_TOLERANCE", "N_FIT_HARMONICS", "FIT_SNR_DB", "measure_frames"]
+
+MAINS_HZ = np.array([50.0, 60.0, 100.0, 120.0, 150.0, 180.0])
+"""Mains hum and its harmonics, Hz: never a note."""
+MAINS_TOLERANCE = 0.005  # mains frequency stays within +-0.4 %: common practice (grid codes)
+N_FIT_HARMONICS = 12  # harmonics in the refinement (H12 of a duct flute is ~50 dB down)
+FIT_SNR_DB = 10.0  # harmonics under this SNR over the floor stay out of the refinement
+CLARITY_MIN = 0.5
+PEAK_SNR_MIN_DB = 20.0  # strongest harmonic over the local floor; noise maxima reach ~10 dB
+CLARITY_HOLD = 0.3
+PEAK_SNR_HOLD_DB = 14.0
+FLATNESS_MIN = 0.005  # centre segments within 23 dB of the loudest: level steps pass, knocks (decaying ~10 dB per segment) do not
+_SEGMENTS = 8
+_N_PEAKS = 10  # spectral peaks for the coarse match
+_CLARITY_HARMONICS = 40
+_FLOOR_BAND_BINS = 32
+_RELATIVE_FLOOR = 1e-12  # floor never under this share of the strongest bin (digitally clean tones)
+
+
+@njit(cache=True, nogil=True)
+def _hann_power_at(rect: NDArray[np.complex64], k: int, n: int) -> float:
+    """Hann power of bin ``k`` of an ``n``-point DFT (0 at bin 0), as :func:`dsp.spectrum.hann_power`."""
+    if k <= 0:
+        return 0.0
+    a = 2.0 / n
+    b = 1.0 / n
+    re = a * rect[k].real - b * (rect[k - 1].real + rect[k + 1].real)
+    im = a * rect[k].imag - b * (rect[k - 1].imag + rect[k + 1].imag)
+    return re * re + im * im
+
+
+@njit(cache=True, nogil=True)
+def _clarity(power: NDArray[np.float64], f0: float, bin_hz: float, lo_bin: int, hi_bin: int, limit_hz: float) -> float:
+    """1 - (power density between the harmonics of ``f0``) / (density on them), clipped 0..1.
+
+    "On" a harmonic: the 3 bins nearest it (>= 97 % of a Hann-windowed sine's energy);
+    "between": the other bins from the lowest search bin up to half a harmonic above the
+    last harmonic counted (at most 40, below the peak search limit). A periodic tone has
+    empty valleys (clarity near 1); noise fills both alike (near 0), even for a low
+    candidate whose harmonics cover half the bins.
+    """
+    n_bins = power.size
+    e_on = 0.0
+    n_h = 0
+    for k in range(1, _CLARITY_HARMONICS + 1):
+        pos = f0 * k
+        if pos > limit_hz:
+            continue
+        c = min(int(np.rint(pos / bin_hz)), n_bins - 2)
+        e_on += power[c - 1] + power[c] + power[c + 1]
+        n_h += 1
+    if n_h == 0:
+        return 0.0
+    top = min(int(np.rint((n_h + 0.5) * f0 / bin_hz)), hi_bin)
+    top = max(top, lo_bin + 1)
+    e_all = 0.0
+    for b in range(lo_bin, top + 1):
+        e_all += power[b]
+    n_on = 3.0 * n_h
+    e_off = max(e_all - e_on, 0.0)
+    n_off = max(top - lo_bin + 1 - n_on, 1.0)
+    ratio = (e_off / n_off) / max(e_on / n_on, 1e-300)
+    return min(max(1.0 - ratio, 0.0), 1.0)
+
+
+@njit(cache=True, nogil=True)
+def measure_frames(
+    store: NDArray[np.float64],
+    first: int,
+    hop: int,
+    n: int,
+    rect: NDArray[np.complex64],
+    rect_fast: NDArray[np.complex64],
+    sample_rate: float,
+    lo_bin: int,
+    hi_bin: int,
+    fast_keep: int,
+    limit_hz: float,
+    fmin_hz: float,
+    fmax_hz: float,
+    hum_lo_hz: NDArray[np.float64],
+    hum_hi_hz: NDArray[np.float64],
+    power: NDArray[np.float64],
+    floor: NDArray[np.float64],
+    f0_out: NDArray[np.float64],
+    clarity_out: NDArray[np.float64],
+    level_out: NDArray[np.float64],
+    fast_level_out: NDArray[np.float64],
+    clip_out: NDArray[np.bool_],
+    voiced_out: NDArray[np.bool_],
+    sustain_out: NDArray[np.bool_],
+    harm_db_out: NDArray[np.float64],
+    odd_even_out: NDArray[np.float64],
+    evidence_out: NDArray[np.float64],
+) -> None:
+    """Measure ``rect.shape[0]`` frames; frame ``i`` is ``store[first + i hop :][:n]``.
+
+    Parameters
+    ----------
+    store : 1-D float64, full scale 1.0
+        Samples.
+    first, hop, n : samples
+        Start of frame 0 in ``store``, frame step, frame size.
+    rect, rect_fast : complex64, (n_frames, >= keep + 1) and (n_frames, >= fast_keep + 1)
+        Rectangular-window DFT bins of each whole frame (n points) and of its newest half.
+    sample_rate : Hz
+    lo_bin, hi_bin : peak search bins ``lo_bin <= k < hi_bin``
+    fast_keep : bins of the half-window spectrum used
+    limit_hz, fmin_hz, fmax_hz : Hz
+        Highest harmonic used; range of fundamentals reported.
+    hum_lo_hz, hum_hi_hz : Hz
+        Mains bands rejected.
+    power, floor : (n_frames, keep) out
+        Hann power and noise floor of each frame (``keep = power.shape[1]``).
+    f0_out ... evidence_out : out
+        Refined f0 (Hz, nan if none), clarity (0..1), level and newest-quarter level
+        (dBFS, -inf for digital silence), clipping, voiced, sustain, H1..H8 (dB re the
+        strongest), odd/even (dB), register evidence (n_frames, 3, 4) dB.
+    """
+    n_frames = rect.shape[0]
+    keep = power.shape[1]
+    bin_hz = sample_rate / n
+    half = n // 2
+    fast_hz = sample_rate / half
+    peak_freq = np.empty(_N_PEAKS)
+    peak_pow = np.empty(_N_PEAKS)
+    amp = np.empty(N_FIT_HARMONICS)
+    ev = np.empty((EVIDENCE_MODES, EVIDENCE_HARMONICS))
+    seg = np.empty(_SEGMENTS)
+    for i in range(n_frames):
+        r = rect[i]
+        p = power[i]
+        fl = floor[i]
+        hann_power(r, n, keep, p)
+        band_floor(p, fl, _FLOOR_BAND_BINS)
+        top = 0.0
+        for k in range(lo_bin, hi_bin):
+            if p[k] > top:
+                top = p[k]
+        for k in range(keep):
+            fl[k] = max(fl[k], top * _RELATIVE_FLOOR)
+        count = strongest_peaks(r, p, fl, lo_bin, hi_bin, bin_hz, peak_freq, peak_pow)
+        coarse, _ = coarse_f0(peak_freq, peak_pow, count, fmin_hz * 0.97, fmax_hz * 1.03)
+        f0, snr_db = refine_f0(r, p, fl, coarse, bin_hz, n, limit_hz, amp, FIT_SNR_DB)
+        finite = math.isfinite(f0)
+        f0_safe = f0 if finite else 1000.0
+        clarity = _clarity(p, f0_safe, bin_hz, lo_bin, hi_bin, limit_hz) if finite else 0.0
+
+        start = first + i * hop
+        total = 0.0
+        top_x = 0.0
+        bottom_x = 0.0
+        for s in range(_SEGMENTS):
+            # four running sums in a fixed order: the same result wherever the frame lies
+            lo = start + s * n // _SEGMENTS
+            hi = start + (s + 1) * n // _SEGMENTS
+            a0 = a1 = a2 = a3 = 0.0
+            j = lo
+            while j + 4 <= hi:
+                v0, v1, v2, v3 = store[j], store[j + 1], store[j + 2], store[j + 3]
+                a0 += v0 * v0
+                a1 += v1 * v1
+                a2 += v2 * v2
+                a3 += v3 * v3
+                top_x = max(top_x, max(max(v0, v1), max(v2, v3)))
+                bottom_x = min(bottom_x, min(min(v0, v1), min(v2, v3)))
+                j += 4
+            while j < hi:
+                v0 = store[j]
+                a0 += v0 * v0
+                top_x = max(top_x, v0)
+                bottom_x = min(bottom_x, v0)
+                j += 1
+            seg[s] = (a0 + a1) + (a2 + a3)
+            total += seg[s]
+        peak = max(top_x, -bottom_x)
+        ms = total / n
+        ms_fast = (seg[_SEGMENTS - 2] + seg[_SEGMENTS - 1]) / (n - (_SEGMENTS - 2) * n // _SEGMENTS)  # newest quarter (~21 ms)
+        level = 10.0 * math.log10(ms) if ms > 0.0 else -np.inf
+        level_out[i] = level
+        fast_level_out[i] = 10.0 * math.log10(ms_fast) if ms_fast > 0.0 else -np.inf
+        clip_out[i] = peak >= CLIP_THRESHOLD
+        loudest = 1e-300
+        for s in range(_SEGMENTS):
+            loudest = max(loudest, seg[s])
+        quiet = seg[2]
+        for s in range(3, _SEGMENTS - 2):
+            quiet = min(quiet, seg[s])
+        flat = quiet >= FLATNESS_MIN * loudest
+        hum = False
+        for h in range(hum_lo_hz.size):
+            if hum_lo_hz[h] <= f0_safe <= hum_hi_hz[h]:
+                hum = True
+        usable = finite and fmin_hz <= f0_safe <= fmax_hz and flat and not hum and level > -100.0
+        f0_out[i] = f0
+        clarity_out[i] = clarity
+        voiced_out[i] = usable and clarity >= CLARITY_MIN and snr_db >= PEAK_SNR_MIN_DB
+        sustain_out[i] = usable and clarity >= CLARITY_HOLD and snr_db >= PEAK_SNR_HOLD_DB
+        odd_even_out[i] = balance_row(amp, harm_db_out[i])
+
+        rf = rect_fast[i]
+        for m in range(EVIDENCE_MODES):
+            for k in range(EVIDENCE_HARMONICS):
+                pos = f0_safe * (k + 1) / (m + 1)
+                if pos >= limit_hz:
+                    ev[m, k] = 0.0
+                    continue
+                c = min(max(int(np.rint(pos / fast_hz)), 1), fast_keep - 2)
+                ev[m, k] = max(
+                    _hann_power_at(rf, c - 1, half), _hann_power_at(rf, c, half), _hann_power_at(rf, c + 1, half)
+                )
+        summarise_row(ev, evidence_out[i])
