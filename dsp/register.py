@@ -30,6 +30,7 @@ window), not on a smoothed pitch track:
 from __future__ import annotations
 
 import math
+import statistics
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Literal
@@ -212,10 +213,11 @@ class RegisterMonitor:
         self._base_r3 = -math.inf
         self._weak_run = 0
         self._back_run = 0
-        self._hist_level = np.full(self._hist_len, np.nan)
-        self._hist_even = np.full(self._hist_len, np.nan)
-        self._hist_mult3 = np.full(self._hist_len, np.nan)
-        self._hist_steady = np.zeros(self._hist_len, dtype=bool)
+        # rings of plain floats: one frame's bookkeeping costs no array operation
+        self._hist_level = [math.nan] * self._hist_len
+        self._hist_even = [math.nan] * self._hist_len
+        self._hist_mult3 = [math.nan] * self._hist_len
+        self._hist_steady = [False] * self._hist_len
         self._hist_pos = 0
         self._intact = False
         self._steady_level = math.nan  # level of the last steady stretch, >= 70 ms back
@@ -255,16 +257,16 @@ class RegisterMonitor:
         if self._hist_pos > self._ref_near:
             j = (self._hist_pos - 1 - self._ref_near) % self._hist_len
             if self._hist_steady[j] and math.isfinite(self._hist_level[j]):
-                self._steady_level = float(self._hist_level[j])
+                self._steady_level = self._hist_level[j]
 
-    def _reference(self, ring: NDArray[np.float64]) -> float:
+    def _reference(self, ring: list[float]) -> float:
         """Median of a ring over frames ``_ref_far`` .. ``_ref_near`` back (nan if none)."""
         if self._hist_pos < self._ref_near + 1:
             return math.nan
-        back = np.arange(self._ref_near, min(self._ref_far, self._hist_pos - 1) + 1)
-        vals = ring[(self._hist_pos - 1 - back) % self._hist_len]
-        vals = vals[np.isfinite(vals)]
-        return float(np.median(vals)) if vals.size else math.nan
+        last = self._hist_pos - 1
+        vals = [ring[(last - b) % self._hist_len] for b in range(self._ref_near, min(self._ref_far, last) + 1)]
+        vals = [v for v in vals if math.isfinite(v)]
+        return statistics.median(vals) if vals else math.nan
 
     def _start_note(self, f0_hz: float) -> None:
         """Make ``f0_hz`` the held note."""
@@ -406,7 +408,7 @@ class RegisterMonitor:
             return 3
         return 0
 
-    def _collapsed(self, drop: float, ratio: float, kept_db: float, ring: NDArray[np.float64]) -> bool:
+    def _collapsed(self, drop: float, ratio: float, kept_db: float, ring: list[float]) -> bool:
         """Collapse of the held note's vanishing harmonics (odd ones, or those off the 3s).
 
         Either they fell ``collapse_db`` under their baseline, no longer dominate
