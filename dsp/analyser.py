@@ -40,7 +40,7 @@ import scipy.fft  # type: ignore[import-untyped]
 
 from dsp.frame import Frame
 from dsp.harmonics import N_REPORTED, balance_row
-from dsp.measure import FIT_SNR_DB, MAINS_HZ, MAINS_TOLERANCE, N_FIT_HARMONICS, measure_frames
+from dsp.measure import CURVATURE_GAIN, CURVATURE_NOISE, FIT_SNR_DB, MAINS_HZ, MAINS_TOLERANCE, N_FIT_HARMONICS, measure_frames
 from dsp.pitch import refine_f0
 from dsp.register import EVIDENCE_MODES, RegisterMonitor
 
@@ -389,8 +389,9 @@ class StreamingAnalyser:
         """Refine frame ``i`` of the current chunk around ``f_hz``."""
         amp = np.empty(N_FIT_HARMONICS)
         f0, _ = refine_f0(
-            rect, self._power[i], self._floor[i], f_hz, self._sr / self._n, self._n, self._limit_hz, amp, FIT_SNR_DB
-        )
+            rect, self._power[i], self._floor[i], f_hz, self._sr / self._n, self._n, self._limit_hz, amp, FIT_SNR_DB,
+            CURVATURE_GAIN, CURVATURE_NOISE,
+        )  # fmt: skip
         if not math.isfinite(f0):
             return None, None, None
         levels = np.empty(N_REPORTED)

@@ -32,7 +32,7 @@ import numpy as np
 from numba import njit  # type: ignore[import-untyped]
 from numpy.typing import NDArray
 
-from dsp.spectrum import hann2_taps, hann2_reassigned_bin, hann_gain, hann_reassigned_bin
+from dsp.spectrum import hann2_reassigned_bin, hann2_taps, hann3_reassigned_bin, hann_gain, hann_reassigned_bin
 
 __all__ = ["PeakSet", "CoarsePitch", "estimate_coarse_f0", "strongest_peaks", "coarse_f0", "refine_f0"]
 
@@ -44,6 +44,7 @@ _MAX_MATCH_HARMONIC = 24
 _MATCH_TOLERANCE = 0.015  # share of the candidate f0 a peak may sit off its harmonic (26 cents at H1)
 _EMPTY_PENALTY = 0.35
 _CLEAN_BELOW_BINS = 12.0  # harmonic spacing (bins) under which leakage is modelled
+_CENTS_PER_LN = 1200.0 / math.log(2.0)
 
 
 @dataclass(frozen=True, slots=True)
@@ -265,6 +266,8 @@ def refine_f0(
     limit_hz: float,
     amp_out: _FloatArray,
     snr_db: float,
+    curvature_gain: float,
+    curvature_noise: float,
 ) -> tuple[float, float]:
     """Refined fundamental (Hz, nan if no harmonic was usable) and the SNR of the strongest
     fitted harmonic (dB, -inf if none), by weighted least squares over reassigned harmonics.
@@ -274,6 +277,16 @@ def refine_f0(
     a real local maximum and reassigned near their harmonic enter the fit. ``amp_out``
     receives each harmonic's amplitude (peak amplitude, scalloping removed; 0 above
     ``limit_hz``). ``rect``/``power``/``floor``: the frame's DFT bins, Hann power, noise floor.
+
+    A window reads a curving pitch (vibrato) as its weighted average, high or low by
+    ``k f''`` with ``k`` set by the window's width. Above the leakage-model range the same
+    harmonics are also read under the narrower Hann^3 window (same weights); the two
+    readings differ by ``(k_wide - k_narrow) f''``, so ``f0 + (1 + curvature_gain) d``
+    (``d`` the narrow reading less the wide one, ``curvature_gain = k_narrow / (k_wide -
+    k_narrow)``) is the pitch at the window centre. The step is shrunk, as
+    ``d^2 / (d^2 + tau^2)``, where ``d`` is within noise: ``tau = curvature_noise`` fit
+    standard errors (``1 / sqrt(sum w k^2)`` bins), so a steady note in noise keeps its
+    wide-window reading.
     """
     n_h = amp_out.size
     n_bins = power.size
@@ -313,8 +326,10 @@ def refine_f0(
         # neighbours closer than _CLEAN_BELOW_BINS leak measurably even through Hann^2
         _clean_reassign(rect, peak_bin, ok, n, beta)
     num = 0.0
+    num_narrow = 0.0
     den = 0.0
     top_w = 0.0
+    narrow = coarse_hz >= _CLEAN_BELOW_BINS * bin_hz
     for h in range(n_h):
         k = h + 1.0
         if ok[h] and abs(beta[h] * bin_hz - coarse_hz * k) <= tol_hz:
@@ -323,8 +338,21 @@ def refine_f0(
             den += w * k * k
             if w > top_w:
                 top_w = w
+            if narrow:
+                if peak_bin[h] >= 5 and peak_bin[h] + 5 <= rect.size:
+                    num_narrow += w * k * hann3_reassigned_bin(rect, peak_bin[h]) * bin_hz
+                else:
+                    narrow = False
         if inside[h]:
             amp_out[h] = math.sqrt(power[peak_bin[h]]) / max(hann_gain(beta[h] - peak_bin[h]), 0.5)
     f0 = num / den if den > 0.0 else np.nan
+    if narrow and den > 0.0 and curvature_gain > 0.0 and f0 > 0.0:
+        f0_narrow = num_narrow / den
+        d = 1200.0 * math.log2(f0_narrow / f0)  # cents
+        # shrunk where noise alone explains the difference, full above; the noise of d
+        # scales as the fit's standard error, 1 / sqrt(sum w k^2) bins
+        tau = curvature_noise * _CENTS_PER_LN * bin_hz / f0 / math.sqrt(den)
+        d2 = d * d
+        f0 = f0 * 2.0 ** ((1.0 + curvature_gain) * d * d2 / (d2 + tau * tau + 1e-300) / 1200.0)
     best_snr_db = 10.0 * math.log10(top_w) if top_w > 0.0 else -np.inf
     return f0, best_snr_db

@@ -16,8 +16,20 @@ def pytest_sessionstart(session):
     """Compile the analyser's kernels once, before any test times a subprocess.
 
     numba caches the machine code on disk; without this, the first test to start bench in
-    a subprocess would also pay the one-off compilation (seconds).
+    a subprocess would also pay the one-off compilation (seconds). Its cache is keyed on
+    each kernel's own file only: a kernel that calls one from an edited file would keep the
+    old code, so the whole cache goes whenever any dsp source is newer than it.
     """
+    from pathlib import Path
+
+    dsp_dir = Path(__file__).resolve().parent.parent / "dsp"
+    cached = list((dsp_dir / "__pycache__").glob("*.nb[ic]"))
+    if cached:
+        newest_source = max(p.stat().st_mtime for p in dsp_dir.glob("*.py"))
+        if newest_source > min(p.stat().st_mtime for p in cached):
+            for p in cached:
+                p.unlink(missing_ok=True)
+
     from dsp.analyser import StreamingAnalyser
 
     StreamingAnalyser(48000)

@@ -89,10 +89,18 @@ def test_agrees_with_aubio_yinfft_and_is_closer_to_the_truth(f0_hz):
     assert np.median(np.abs(_cents(ours, f0_hz))) < 0.1 * np.median(np.abs(_cents(ref, f0_hz)))
 
 
-def test_vibrato_tone_tracks_the_instantaneous_frequency():
+# (f0 Hz, depth c, rate Hz, median bound c, p95 bound c): the exact instantaneous frequency
+# of a phase-integrated tone is the truth. A plain 85 ms window reads the 15 c, 5 Hz case
+# 0.48 c median off (0.71 at the 95th percentile) and the 40 c, 7 Hz one ~2 c; with the
+# curvature step measured 0.065/0.073 and 0.35/0.85 c (higher-order terms remain at 7 Hz)
+VIBRATO_CASES = [(523.251, 15.0, 5.0, 0.15, 0.2), (1046.5, 10.0, 4.0, 0.05, 0.08), (440.0, 40.0, 7.0, 0.6, 1.5)]
+
+
+@pytest.mark.parametrize(("f0_hz", "depth_c", "rate_hz", "median_c", "p95_c"), VIBRATO_CASES)
+def test_vibrato_tone_tracks_the_instantaneous_frequency(f0_hz, depth_c, rate_hz, median_c, p95_c):
     t = np.arange(SR) / SR
-    cents = 15.0 * np.sin(2 * np.pi * 5.0 * t)
-    inst = 523.251 * 2 ** (cents / 1200)
+    cents = depth_c * np.sin(2 * np.pi * rate_hz * t)
+    inst = f0_hz * 2 ** (cents / 1200)
     phase = 2 * np.pi * np.cumsum(inst) / SR
     x = 0.1 * (np.sin(phase) + 0.3 * np.sin(2 * phase + 1) + 0.1 * np.sin(3 * phase + 2))
     an = StreamingAnalyser(SR)
@@ -101,10 +109,22 @@ def test_vibrato_tone_tracks_the_instantaneous_frequency():
     f0 = np.array([f.f0_hz for f in frames], dtype=np.float64)
     truth = np.interp(tt, t, inst)
     err = np.abs(_cents(f0, truth))
-    # an 85 ms window averages a 5 Hz, 15-cent vibrato: ~1 cent at its crests (measured
-    # median 0.48, 95th percentile 0.71 cents)
-    assert np.median(err) < 1.0
-    assert np.percentile(err, 95) < 2.0
+    assert np.median(err) < median_c
+    assert np.percentile(err, 95) < p95_c
+
+
+def test_quadratic_glide_is_read_at_the_window_centre():
+    # f(t) = f0 + q t^2 about a frame's centre: a window averages it to f0 + k q T^2 (k ~ 0.014
+    # for an 85 ms Hann^2 window: ~0.1 Hz at q = 1000 Hz/s^2, 0.4 c at 440 Hz); the analyser
+    # must read f0 itself. Truth: the phase integral, exact.
+    n_half = 2048
+    an = StreamingAnalyser(SR)
+    tc = (np.arange(2 * n_half) - n_half) / SR
+    q = 1000.0
+    x = 0.1 * np.cos(2 * np.pi * (440.0 * tc + q * tc**3 / 3.0) + 0.4)
+    frame = an.process(x)[0]
+    assert frame.time_s == pytest.approx(n_half / SR)
+    assert abs(_cents(frame.f0_hz, 440.0)) < 0.05
 
 
 def test_weak_fundamental_is_not_read_an_octave_up():
