@@ -21,6 +21,7 @@ import dataclasses
 import gc
 import math
 import threading
+import time
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
@@ -66,6 +67,7 @@ TRAIL_WINDOW_S = 10.0
 """Seconds of pitch history on the trail."""
 
 _STATS_EVERY = 6  # polls between reads of engine.stats (5 Hz at 30 Hz)
+_LOAD_SPAN_S = 3.0  # the analysis load shown is averaged over this long, seconds
 _TRAIL_EVERY = 3  # polls between reads of engine.history (10 Hz at 30 Hz)
 _EARLY_EVENTS = 64  # events kept while the app is not yet listening
 _BLOWING_EVERY = 3  # polls between blowing-curve updates on its view (10 Hz at 30 Hz)
@@ -270,6 +272,7 @@ class BenchApp(App[int]):
         self.readings_shown = 0
         """Readings put on screen so far (the benchmark divides it by time)."""
         self._polls = 0
+        self._load_samples: collections.deque[tuple[float, float]] = collections.deque()
         self._save_warned = False
         self._views: dict[Any, Any] = {}
         if profile is None:
@@ -428,10 +431,25 @@ class BenchApp(App[int]):
         bar.source = stats.source
         bar.state = stats.state
         bar.dropped_blocks = stats.dropped_blocks
+        bar.analysis_load_pct = self._analysis_load_pct(getattr(stats, "cpu_s", None))
         log_path = self.engine.log_path
         bar.log_path = None if log_path is None else str(log_path)
         if self.workflow is not None and log_path != self._workflow_log:
             self._follow_log(log_path)
+
+    def _analysis_load_pct(self, cpu_s: float | None) -> float | None:
+        """Analysis-thread CPU seconds per wall second over the last ~3 s, percent (None: unknown yet)."""
+        if cpu_s is None:
+            return None
+        samples = self._load_samples
+        now_s = time.monotonic()
+        samples.append((now_s, cpu_s))
+        while len(samples) > 2 and now_s - samples[1][0] >= _LOAD_SPAN_S:
+            samples.popleft()
+        t0_s, cpu0_s = samples[0]
+        if now_s - t0_s < 0.5:
+            return None
+        return max(0.0, 100.0 * (cpu_s - cpu0_s) / (now_s - t0_s))
 
     def on_bench_app_engine_reported(self, message: EngineReported) -> None:
         event = message.event

@@ -20,7 +20,7 @@ def _signed(value: float | None, unit: str, digits: int = 1) -> str:
 
 class SessionBar(LineView):
     """One line: the source and its state, input level and clipping, dropped input, log file,
-    the held view."""
+    the analysis thread's load, the held view."""
 
     DEFAULT_CSS = "SessionBar { height: 1; }"
     COMPONENT_CLASSES = {
@@ -40,6 +40,8 @@ class SessionBar(LineView):
     """True when the newest frame reached full scale."""
     dropped_blocks: reactive[int] = reactive(0)
     """Input blocks lost so far."""
+    analysis_load_pct: reactive[float | None] = reactive(None)
+    """Share of one CPU core the analysis thread used over the last seconds, percent."""
     log_path: reactive[str | None] = reactive(None)
     """File being logged to; None when logging is off."""
     held: reactive[bool] = reactive(False)
@@ -84,6 +86,10 @@ class SessionBar(LineView):
             text.append(f" {log_shown}", value)
         else:
             text.append("off", value)
+        if self.analysis_load_pct is not None:
+            # near a whole core, input will soon be dropped
+            text.append("  dsp ", label)
+            text.append(f"{self.analysis_load_pct:.0f} %", alarm if self.analysis_load_pct >= 80.0 else value)
         text.append("  source ", label)
         text.append(self.source or "?", value)
         return text

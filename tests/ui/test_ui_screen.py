@@ -168,6 +168,41 @@ def test_harmonic_bars_odd_solid_even_hatched(engine, make_app):
     run(scenario())
 
 
+def test_analysis_load_is_cpu_seconds_per_wall_second_over_the_last_seconds(engine, make_app, monkeypatch):
+    import bench.ui.app as app_module
+
+    clock = [100.0]
+    monkeypatch.setattr(app_module.time, "monotonic", lambda: clock[0])
+    app = make_app(engine)
+    assert app._analysis_load_pct(None) is None  # an engine that does not count
+    assert app._analysis_load_pct(2.0) is None  # one sample: no rate yet
+    clock[0] += 1.0
+    assert app._analysis_load_pct(2.05) == pytest.approx(5.0)
+    clock[0] += 1.0
+    assert app._analysis_load_pct(2.10) == pytest.approx(5.0)
+    # a burst: 0.5 s of CPU in the last second; the first sample has left the 3 s span
+    for _ in range(2):
+        clock[0] += 1.0
+        app._analysis_load_pct(2.10)
+    clock[0] += 1.0
+    assert app._analysis_load_pct(2.60) == pytest.approx(100.0 * 0.5 / 3.0)
+
+
+def test_analysis_load_on_the_session_line(engine, make_app):
+    async def scenario():
+        app = make_app(engine)
+        async with app.run_test(size=SIZE) as pilot:
+            await pilot.pause(0.8)
+            engine.cpu_s = 10.0  # ten CPU seconds in under a second of wall time: overloaded
+            await pilot.pause(0.4)
+            bar = app.query_one(SessionBar)
+            text = bar.render().plain
+            assert "dsp " in text
+            assert bar.analysis_load_pct is not None and bar.analysis_load_pct >= 80.0
+
+    run(scenario())
+
+
 def test_level_clipping_dropped_and_log_on_the_session_line(engine, make_app):
     async def scenario():
         app = make_app(engine)

@@ -39,6 +39,7 @@ class FakeEngine:
         self.stopped = False
         self.state = "idle"
         self.dropped_blocks = 0
+        self.cpu_s = 0.0  # analysis-thread CPU seconds so far
         self.start_error: Exception | None = None
         self.settings_seen: list[TuningSettings] = []
 
@@ -81,7 +82,7 @@ class FakeEngine:
 
     @property
     def stats(self) -> FakeStats:
-        return FakeStats(len(self.readings), self.dropped_blocks, "fake", self.state)
+        return FakeStats(len(self.readings), self.dropped_blocks, "fake", self.state, self.cpu_s)
 
     # test helpers
     def show(
