@@ -18,9 +18,10 @@ weaker evidence (hysteresis). Once a jump is past a frame's centre and the windo
 shows the held note (reverberation), the frame's pitch is measured on the harmonics of
 mode x held note.
 
-Known limits: a vibrato is read through the window's smoothing (~4.5 % shallow at 5 Hz:
-~0.5 cent median error on a 15-cent vibrato); ready_s - time_s is half a window (43 ms at
-48 kHz), so a change is followed ~28 ms after it by ready_s at best.
+Known limits: the window's smoothing of a vibrato is taken out only to second order (a 40-cent,
+7 Hz vibrato still reads ~0.35 cent off in the median) and not at all below 12 bins of f0
+(~140 Hz at 48 kHz); ready_s - time_s is half a window (43 ms at 48 kHz), so a change is
+followed ~28 ms after it by ready_s at best.
 
 Timing: a frame measures the ``frame_size`` samples ending at sample ``e`` (exclusive);
 ``time_s = (e - frame_size / 2) / sample_rate`` (the centre of the symmetric window) and
