@@ -45,7 +45,7 @@ from dsp.measure import CURVATURE_GAIN, CURVATURE_NOISE, FIT_SNR_DB, MAINS_HZ, M
 from dsp.pitch import refine_f0
 from dsp.register import EVIDENCE_MODES, RegisterMonitor
 
-__all__ = ["StreamingAnalyser", "MIN_SAMPLE_RATE", "MAX_SAMPLE_RATE", "FMIN_HZ", "FMAX_HZ"]
+__all__ = ["StreamingAnalyser", "prepare_kernels", "MIN_SAMPLE_RATE", "MAX_SAMPLE_RATE", "FMIN_HZ", "FMAX_HZ"]
 
 MIN_SAMPLE_RATE = 16000
 MAX_SAMPLE_RATE = 96000
@@ -58,6 +58,16 @@ _HOLD_CENTS = 50.0  # a sustained frame must stay within this of the previous vo
 _PEAK_LIMIT_HZ = 10000.0
 _CHUNK_FRAMES = 32
 _compiled = False  # the kernels compiled (or loaded from numba's cache) in this process
+
+
+def prepare_kernels() -> None:
+    """Compile the analyser's kernels, or load them from numba's disk cache, in this process.
+
+    Idempotent; the first :class:`StreamingAnalyser` does it too. Call it early where the
+    moment matters: compiling takes seconds once per installation, loading ~0.3 s.
+    """
+    if not _compiled:
+        StreamingAnalyser(48000)
 
 
 class StreamingAnalyser:

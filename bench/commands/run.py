@@ -187,6 +187,27 @@ def _start_follower(args: argparse.Namespace, engine: Any, report: Callable[[str
     return follower
 
 
+def _prepare_analyser() -> None:
+    """Load (the first time after an install: compile) the analyser's kernels before anything starts.
+
+    Done before the screen starts, their objects are among the start-up objects the screen
+    keeps out of the garbage collector's full passes; loaded later, every full pass walked
+    them and held the interpreter ~50 ms, long enough for a JACK period to pass the audio
+    callback by (measured: a block dropped per pass).
+    """
+    import threading
+
+    from dsp.analyser import prepare_kernels
+
+    notice = threading.Timer(1.0, _say, ("preparing the analyser (the first start after an install takes a few seconds)",))
+    notice.daemon = True
+    notice.start()
+    try:
+        prepare_kernels()
+    finally:
+        notice.cancel()
+
+
 def _start_engine(
     make: Callable[[Any], Any], source: Any, args: argparse.Namespace
 ) -> tuple[Any, str | None]:
@@ -225,6 +246,7 @@ def _run_screen(
         if exc.name and exc.name.startswith("bench.ui"):
             raise BenchError("the screen is not installed in this build; use --no-ui") from None
         raise
+    _prepare_analyser()
     # Started here so a device that cannot open is one line before the screen appears;
     # the app connects its event handler through the settable ``on_event``.
     engine, fallback = _start_engine(

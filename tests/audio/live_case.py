@@ -218,6 +218,7 @@ def main() -> int:
         engine.start()
         result["start_s"] = time.monotonic() - wall0
         result["description"] = source.description
+        result["callback_in"] = source.callback_in
         result["input_latency_s"] = source.input_latency_s
         deadline = time.monotonic() + args.seconds + (args.loop or 0.0)
         kill_at = time.monotonic() + args.kill_after if args.kill_server else None

@@ -65,6 +65,7 @@ def test_jack_paced_input_reads_known_notes_promptly(jack_server, tmp_path, anal
     )  # fmt: skip
     assert res["jack_rate"] == SAMPLE_RATE
     assert "JACK" in res["description"] and res["connected"]
+    assert res["callback_in"] == "c"  # python-rtmixer's C callback, not a Python one
     assert res["feed_done"], "the feeder never finished playing"
     assert res["state"] == "stopped" and not res["still_running"]
     assert [e["kind"] for e in res["events"]] == ["log_started"]
@@ -121,6 +122,7 @@ def test_alsa_flood_is_counted_as_dropped_input(alsa_file_device):
         {"ALSA_CONFIG_PATH": config_path},
     )
     assert "ALSA" in res["description"]
+    assert res["callback_in"] == "c"
     # The null plugin has no clock: far more than 3 s of input arrives in 3 s...
     assert res["dropped_blocks"] > 100
     # ...and the engine keeps working through what it can take, never stalling or crashing.
