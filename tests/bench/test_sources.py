@@ -386,3 +386,56 @@ def test_file_at_a_rate_the_analyser_refuses_is_resampled_to_48k(tmp_path, file_
     pitch.set_unit("Hz")
     f0 = [float(pitch(np.ascontiguousarray(audio[i : i + 512]))[0]) for i in range(0, 40000, 512)]
     assert 1200 * np.log2(np.median(f0[10:]) / 440.0) == pytest.approx(0.0, abs=1.0)
+
+
+def test_c_recording_counts_what_a_full_ring_lost_and_records_again():
+    # python-rtmixer's C callback stops recording when its ring is full (rtmixer.c, the
+    # RECORD_RINGBUFFER case); the frames lost meanwhile follow from the stream clock (now
+    # less the action's start) less the frames the action recorded
+    from bench.sources import mic
+
+    class Actions(set):
+        """rtmixer's set of running actions, holding cffi pointers (compared by identity)."""
+
+        def __contains__(self, action):
+            return super().__contains__(id(action))
+
+        def add(self, action):
+            super().add(id(action))
+
+    class FakeRing:
+        def __init__(self, elementsize, size):
+            self.elementsize, self.size, self.read_available = elementsize, size, 0
+
+    class FakeRecorder:
+        def __init__(self, **kw):
+            self.kw, self.actions, self.time = kw, Actions(), 0.0
+
+        def start(self):
+            pass
+
+        def record_ringbuffer(self, ring):
+            self.last = types.SimpleNamespace(actual_time=self.time, done_frames=0)
+            self.actions.add(self.last)
+            return self.last
+
+        def fetch_and_reset_stats(self):
+            return types.SimpleNamespace(stats=types.SimpleNamespace(input_overflows=2))
+
+    rt = types.SimpleNamespace(Recorder=FakeRecorder, RingBuffer=FakeRing)
+    rec = mic._CRecording(rt, device=0, channels=1, sample_rate=48000, block_size=512,
+                          ring_frames=96000, finished_callback=None)  # fmt: skip
+    assert rec._ring.size == 131072  # the next power of two
+    rec.start()
+    first = rec.stream.last
+    assert rec.pop(0.0) is None and rec.full_drops == 0  # recording, nothing waiting yet
+    # the ring filled: the action ended after 12,000 frames while the clock ran 0.5 s
+    first.done_frames = 12000
+    rec.stream.actions.clear()
+    rec.stream.time = 0.5
+    assert rec.pop(0.5) is None
+    assert rec.full_drops == 24  # (24,000 - 12,000) frames in blocks of 512, rounded up
+    assert rec.stream.last is not first and rec.stream.last in rec.stream.actions  # recording again
+    # driver overflows come from the callback's counters, fetched about once a second
+    rec.pop(2.0)
+    assert rec.overflows == 2
