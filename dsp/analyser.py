@@ -32,7 +32,7 @@ Timing: a frame measures the ``frame_size`` samples ending at sample ``e`` (excl
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -41,7 +41,16 @@ import scipy.fft  # type: ignore[import-untyped]
 
 from dsp.frame import Frame
 from dsp.harmonics import N_REPORTED, balance_row
-from dsp.measure import CURVATURE_GAIN, CURVATURE_NOISE, FIT_SNR_DB, MAINS_HZ, MAINS_TOLERANCE, N_FIT_HARMONICS, measure_frames
+from dsp.measure import (
+    CURVATURE_GAIN,
+    CURVATURE_NOISE,
+    FIT_SNR_DB,
+    MAINS_HZ,
+    MAINS_TOLERANCE,
+    N_FIT_HARMONICS,
+    copy_frames,
+    measure_frames,
+)
 from dsp.pitch import refine_f0
 from dsp.register import EVIDENCE_MODES, RegisterMonitor
 
@@ -169,6 +178,12 @@ class StreamingAnalyser:
         self._harm_db = np.empty((c, N_REPORTED))
         self._odd_even = np.empty(c)
         self._evidence = np.empty((c, EVIDENCE_MODES, 4))
+        self._x32 = np.empty((c, self._n), dtype=np.float32)
+        self._work_arrays = (
+            self._x32, self._power, self._floor, self._f0, self._clarity, self._level, self._fast_level,
+            self._clip, self._voiced, self._sustain, self._harm_db, self._odd_even, self._evidence,
+        )  # fmt: skip
+        self._work: dict[int, tuple[NDArray[Any], ...]] = {}  # views of the work arrays per chunk size
         self.reset()
         if not _compiled:
             self._compile()
@@ -300,35 +315,35 @@ class StreamingAnalyser:
     def _analyse_chunk(self, first: int, ends_l: list[int]) -> list[Frame]:
         """Frames for up to _CHUNK_FRAMES windows, the first at store index ``first``."""
         n, hop, c = self._n, self._hop, len(ends_l)
-        item = self._store.itemsize
-        view = np.lib.stride_tricks.as_strided(
-            self._store[first:], shape=(c, n), strides=(hop * item, item), writeable=False
-        )
-        x32 = view.astype(np.float32)
+        work = self._work.get(c)
+        if work is None:
+            work = self._work[c] = tuple(a[:c] for a in self._work_arrays)
+        (x32, power, floor, f0_a, clarity_a, level_a, fast_level_a, clip_a, voiced_a, sustain_a, harm_db_a,
+         odd_even_a, evidence_a) = work  # fmt: skip
         # single precision: rounding noise ~1e-7 of the peak, far under any microphone's floor
+        copy_frames(self._store, first, hop, x32)
         rect = scipy.fft.rfft(x32, axis=1, workers=1)
         rect_fast = scipy.fft.rfft(x32[:, n // 2 :], axis=1, workers=1)
         measure_frames(
             self._store, first, hop, n, rect, rect_fast, self._sr, self._lo_bin, self._hi_bin, self._fast_keep,
             self._limit_hz, self._fmin, self._fmax, self._hum_lo_hz, self._hum_hi_hz,
-            self._power[:c], self._floor[:c], self._f0[:c], self._clarity[:c], self._level[:c],
-            self._fast_level[:c], self._clip[:c], self._voiced[:c], self._sustain[:c], self._harm_db[:c],
-            self._odd_even[:c], self._evidence[:c],
+            power, floor, f0_a, clarity_a, level_a, fast_level_a, clip_a, voiced_a, sustain_a, harm_db_a,
+            odd_even_a, evidence_a,
         )  # fmt: skip
         sr = self._sr
         half = n / 2.0
         out: list[Frame] = []
         update = self._monitor.update
-        f0s = self._f0[:c].tolist()
-        voiced_l = self._voiced[:c].tolist()
-        sustain_l = self._sustain[:c].tolist()
-        harm_db = self._harm_db[:c].tolist()
-        oe = self._odd_even[:c].tolist()
-        evidence = self._evidence[:c].tolist()
-        fast_level = self._fast_level[:c].tolist()
-        clarity = self._clarity[:c].tolist()
-        level = self._level[:c].tolist()
-        clip = self._clip[:c].tolist()
+        f0s = f0_a.tolist()
+        voiced_l = voiced_a.tolist()
+        sustain_l = sustain_a.tolist()
+        harm_db = harm_db_a.tolist()
+        oe = odd_even_a.tolist()
+        evidence = evidence_a.tolist()
+        fast_level = fast_level_a.tolist()
+        clarity = clarity_a.tolist()
+        level = level_a.tolist()
+        clip = clip_a.tolist()
         prev = self._prev_f0
         jumped_run = self._jumped_run
         for i in range(c):

@@ -31,7 +31,7 @@ from dsp.pitch import coarse_f0, refine_f0, strongest_peaks
 from dsp.register import EVIDENCE_HARMONICS, EVIDENCE_MODES, summarise_row
 from dsp.spectrum import band_floor, hann_power
 
-__all__ = ["MAINS_HZ", "MAINS_TOLERANCE", "N_FIT_HARMONICS", "FIT_SNR_DB", "CURVATURE_GAIN", "CURVATURE_NOISE", "measure_frames"]
+__all__ = ["MAINS_HZ", "MAINS_TOLERANCE", "N_FIT_HARMONICS", "FIT_SNR_DB", "CURVATURE_GAIN", "CURVATURE_NOISE", "copy_frames", "measure_frames"]
 
 MAINS_HZ = np.array([50.0, 60.0, 100.0, 120.0, 150.0, 180.0])
 """Mains hum and its harmonics, Hz: never a note."""
@@ -100,6 +100,16 @@ def _clarity(power: NDArray[np.float64], f0: float, bin_hz: float, lo_bin: int, 
     n_off = max(top - lo_bin + 1 - n_on, 1.0)
     ratio = (e_off / n_off) / max(e_on / n_on, 1e-300)
     return min(max(1.0 - ratio, 0.0), 1.0)
+
+
+@njit(cache=True, nogil=True)
+def copy_frames(store: NDArray[np.float64], first: int, hop: int, out: NDArray[np.float32]) -> None:
+    """Frame ``i`` of ``out`` (n_frames, n) = ``store[first + i hop :][:n]`` in single precision."""
+    n = out.shape[1]
+    for i in range(out.shape[0]):
+        start = first + i * hop
+        for j in range(n):
+            out[i, j] = store[start + j]
 
 
 @njit(cache=True, nogil=True)
