@@ -364,7 +364,14 @@ class RegisterMonitor:
 
         locked_fresh = self._target_hz is not None and m > 1 and not math.isfinite(self._base_r2)
         if self._frames_in_note >= self._warmup_frames or locked_fresh:
-            jump_mode = self._jump_mode(m, r2, r3, even_db, mult3_db)
+            if (
+                self.collapse_db > self._base_r2 - r2
+                and self.collapse_db > self._base_r3 - r3
+                and (self._target_hz is None or math.isfinite(self._base_r2))
+            ):
+                jump_mode = 0  # no collapse to judge: what _jump_mode finds, without the calls
+            else:
+                jump_mode = self._jump_mode(m, r2, r3, even_db, mult3_db)
             if jump_mode:
                 # against the level the note was blown at while steady (~70 ms and more
                 # back, before any weakening): a weakening phase loses the held note's
