@@ -166,22 +166,14 @@ class StreamingAnalyser:
         self._hum_lo_hz = MAINS_HZ * (1.0 - MAINS_TOLERANCE)
         self._hum_hi_hz = MAINS_HZ * (1.0 + MAINS_TOLERANCE)
         c, keep = _CHUNK_FRAMES, self._keep
-        self._power = np.empty((c, keep))
+        self._power = np.empty((c, keep))  # kept for _refine_single
         self._floor = np.empty((c, keep))
-        self._f0 = np.empty(c)
-        self._clarity = np.empty(c)
-        self._level = np.empty(c)
-        self._fast_level = np.empty(c)
-        self._clip = np.empty(c, dtype=bool)
-        self._voiced = np.empty(c, dtype=bool)
-        self._sustain = np.empty(c, dtype=bool)
-        self._harm_db = np.empty((c, N_REPORTED))
-        self._odd_even = np.empty(c)
-        self._evidence = np.empty((c, EVIDENCE_MODES, 4))
-        self._x32 = np.empty((c, self._n), dtype=np.float32)
+        # what one chunk's frames are measured into; views per chunk size in self._work
         self._work_arrays = (
-            self._x32, self._power, self._floor, self._f0, self._clarity, self._level, self._fast_level,
-            self._clip, self._voiced, self._sustain, self._harm_db, self._odd_even, self._evidence,
+            np.empty((c, self._n), dtype=np.float32), self._power, self._floor,
+            np.empty(c), np.empty(c), np.empty(c), np.empty(c),  # f0, clarity, level, newest-quarter level
+            np.empty(c, dtype=bool), np.empty(c, dtype=bool), np.empty(c, dtype=bool),  # clip, voiced, sustain
+            np.empty((c, N_REPORTED)), np.empty(c), np.empty((c, EVIDENCE_MODES, 4)),  # H1..H8, odd/even, evidence
         )  # fmt: skip
         self._work: dict[int, tuple[NDArray[Any], ...]] = {}  # views of the work arrays per chunk size
         self.reset()

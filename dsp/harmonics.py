@@ -8,7 +8,7 @@ import numpy as np
 from numba import njit  # type: ignore[import-untyped]
 from numpy.typing import NDArray
 
-__all__ = ["harmonic_levels_db", "odd_even_db", "balance_row", "N_REPORTED", "FLOOR_DB"]
+__all__ = ["balance_row", "N_REPORTED", "FLOOR_DB"]
 
 N_REPORTED = 8
 """Harmonics reported (H1..H8)."""
@@ -27,7 +27,16 @@ def balance_row(amp: NDArray[np.float64], levels_db: NDArray[np.float64]) -> flo
     ``amp``: amplitudes of harmonics 1..n (n >= 8). Levels are 0 for the strongest and
     never below ``FLOOR_DB`` (the floor applied before the logarithm: no log of zero for
     silence). Odd/even: ``10 log10(sum of odd H^2 / sum of even H^2)`` over H1..H8,
-    clipped to +-120 dB; 0 when both sums are 0.
+    clipped to +-120 dB; 0 when both sums are 0. A stopped pipe (odd harmonics only;
+    Fletcher & Rossing, *The Physics of Musical Instruments*, 1998) reads large and positive.
+
+    Examples
+    --------
+    >>> levels = np.empty(8)
+    >>> balance_row(np.array([1.0, 1.0, 1.0, 1.0, 0, 0, 0, 0]), levels)
+    0.0
+    >>> levels[:3].round(2).tolist()
+    [0.0, 0.0, 0.0]
     """
     top = 0.0
     for k in range(N_REPORTED):
@@ -50,47 +59,3 @@ def balance_row(amp: NDArray[np.float64], levels_db: NDArray[np.float64]) -> flo
     if odd == 0.0:
         return -_ODD_EVEN_LIMIT_DB
     return min(max(10.0 * math.log10(odd / even), -_ODD_EVEN_LIMIT_DB), _ODD_EVEN_LIMIT_DB)
-
-
-def _balance(amp: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-    a = np.ascontiguousarray(amp, dtype=np.float64)
-    levels = np.empty((a.shape[0], N_REPORTED))
-    oe = np.empty(a.shape[0])
-    for i in range(a.shape[0]):
-        oe[i] = balance_row(a[i], levels[i])
-    return levels, oe
-
-
-def harmonic_levels_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
-    """Levels of H1..H8 in dB relative to the strongest of them.
-
-    Parameters
-    ----------
-    amp : ndarray of float, shape (n_frames, n >= 8)
-        Amplitudes of harmonics 1..n.
-
-    Returns
-    -------
-    ndarray of float, shape (n_frames, 8), dB
-        0 for the strongest, never below ``FLOOR_DB``.
-
-    Examples
-    --------
-    >>> harmonic_levels_db(np.array([[1.0, 0.5, 0.1, 0, 0, 0, 0, 0]]))[0, :3].round(2).tolist()
-    [0.0, -6.02, -20.0]
-    """
-    return _balance(amp)[0]
-
-
-def odd_even_db(amp: NDArray[np.float64]) -> NDArray[np.float64]:
-    """``10 log10(sum of odd H^2 / sum of even H^2)`` over H1..H8, clipped to +-120 dB.
-
-    A stopped pipe (odd harmonics only; Fletcher & Rossing, *The Physics of Musical
-    Instruments*, 1998) reads large and positive.
-
-    Examples
-    --------
-    >>> round(float(odd_even_db(np.array([[1.0, 1.0, 1.0, 1.0, 0, 0, 0, 0]]))[0]), 2)
-    0.0
-    """
-    return _balance(amp)[1]

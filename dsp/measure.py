@@ -26,12 +26,11 @@ from numba import njit  # type: ignore[import-untyped]
 from numpy.typing import NDArray
 
 from dsp.harmonics import N_REPORTED, balance_row
-from dsp.level import CLIP_THRESHOLD
 from dsp.pitch import coarse_f0, refine_f0, strongest_peaks
 from dsp.register import EVIDENCE_HARMONICS, EVIDENCE_MODES, summarise_row
-from dsp.spectrum import band_floor, hann_power
+from dsp.spectrum import band_floor, hann_power, hann_power_at
 
-__all__ = ["MAINS_HZ", "MAINS_TOLERANCE", "N_FIT_HARMONICS", "FIT_SNR_DB", "CURVATURE_GAIN", "CURVATURE_NOISE", "copy_frames", "measure_frames"]
+__all__ = ["CLIP_THRESHOLD", "MAINS_HZ", "MAINS_TOLERANCE", "N_FIT_HARMONICS", "FIT_SNR_DB", "CURVATURE_GAIN", "CURVATURE_NOISE", "copy_frames", "measure_frames"]
 
 MAINS_HZ = np.array([50.0, 60.0, 100.0, 120.0, 150.0, 180.0])
 """Mains hum and its harmonics, Hz: never a note."""
@@ -49,23 +48,12 @@ PEAK_SNR_MIN_DB = 20.0  # strongest harmonic over the local floor; noise maxima 
 CLARITY_HOLD = 0.3
 PEAK_SNR_HOLD_DB = 14.0
 FLATNESS_MIN = 0.005  # centre segments within 23 dB of the loudest: level steps pass, knocks (decaying ~10 dB per segment) do not
+CLIP_THRESHOLD = 0.999  # |x| at or above this counts as clipped (full scale is 1.0)
 _SEGMENTS = 8
 _N_PEAKS = 10  # spectral peaks for the coarse match
 _CLARITY_HARMONICS = 40
 _FLOOR_BAND_BINS = 32
 _RELATIVE_FLOOR = 1e-12  # floor never under this share of the strongest bin (digitally clean tones)
-
-
-@njit(cache=True, nogil=True)
-def _hann_power_at(rect: NDArray[np.complex64], k: int, n: int) -> float:
-    """Hann power of bin ``k`` of an ``n``-point DFT (0 at bin 0), as :func:`dsp.spectrum.hann_power`."""
-    if k <= 0:
-        return 0.0
-    a = 2.0 / n
-    b = 1.0 / n
-    re = a * rect[k].real - b * (rect[k - 1].real + rect[k + 1].real)
-    im = a * rect[k].imag - b * (rect[k - 1].imag + rect[k + 1].imag)
-    return re * re + im * im
 
 
 @njit(cache=True, nogil=True)
@@ -258,6 +246,6 @@ def measure_frames(
                     continue
                 c = min(max(int(np.rint(pos / fast_hz)), 1), fast_keep - 2)
                 ev[m, k] = max(
-                    _hann_power_at(rf, c - 1, half), _hann_power_at(rf, c, half), _hann_power_at(rf, c + 1, half)
+                    hann_power_at(rf, c - 1, half), hann_power_at(rf, c, half), hann_power_at(rf, c + 1, half)
                 )
         summarise_row(ev, evidence_out[i])

@@ -26,7 +26,6 @@ exact Dirichlet kernel (two passes), which removes the interference bias that li
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 
 import numpy as np
 from numba import njit  # type: ignore[import-untyped]
@@ -34,7 +33,7 @@ from numpy.typing import NDArray
 
 from dsp.spectrum import hann2_reassigned_bin, hann2_taps, hann3_reassigned_bin, hann_gain, hann_reassigned_bin
 
-__all__ = ["PeakSet", "CoarsePitch", "estimate_coarse_f0", "strongest_peaks", "coarse_f0", "refine_f0"]
+__all__ = ["strongest_peaks", "coarse_f0", "refine_f0"]
 
 _FloatArray = NDArray[np.float64]
 _BoolArray = NDArray[np.bool_]
@@ -45,62 +44,6 @@ _MATCH_TOLERANCE = 0.015  # share of the candidate f0 a peak may sit off its har
 _EMPTY_PENALTY = 0.35
 _CLEAN_BELOW_BINS = 12.0  # harmonic spacing (bins) under which leakage is modelled
 _CENTS_PER_LN = 1200.0 / math.log(2.0)
-
-
-@dataclass(frozen=True, slots=True)
-class PeakSet:
-    """The strongest spectral peaks of each frame.
-
-    Attributes
-    ----------
-    freq_hz : ndarray of float, shape (n_frames, n_peaks), Hz
-        Reassigned peak frequencies (0 where ``valid`` is False).
-    power : ndarray of float, shape (n_frames, n_peaks)
-        Hann power at the peak bin (0 where not valid).
-    valid : ndarray of bool, shape (n_frames, n_peaks)
-    """
-
-    freq_hz: _FloatArray
-    power: _FloatArray
-    valid: _BoolArray
-
-
-@dataclass(frozen=True, slots=True)
-class CoarsePitch:
-    """Coarse fundamental per frame.
-
-    Attributes
-    ----------
-    f0_hz : ndarray of float, shape (n_frames,), Hz
-        nan where no candidate was found.
-    explained : ndarray of float, shape (n_frames,), 0..1
-        Share of peak energy on the candidate's harmonics.
-    """
-
-    f0_hz: _FloatArray
-    explained: _FloatArray
-
-
-def estimate_coarse_f0(peaks: PeakSet, fmin_hz: float, fmax_hz: float) -> CoarsePitch:
-    """Coarse fundamental of each frame of a peak set by harmonic matching (see :func:`coarse_f0`).
-
-    Examples
-    --------
-    >>> f = np.array([[440.0, 880.0, 1320.0, 0.0]])
-    >>> p = np.array([[0.1, 1.0, 0.3, 0.0]])  # fundamental weaker than the 2nd harmonic
-    >>> c = estimate_coarse_f0(PeakSet(f, p, p > 0), 60.0, 4500.0)
-    >>> float(c.f0_hz[0])
-    440.0
-    """
-    n_frames = peaks.freq_hz.shape[0]
-    f0 = np.empty(n_frames)
-    explained = np.empty(n_frames)
-    for i in range(n_frames):
-        keep = np.asarray(peaks.valid[i], dtype=bool)
-        freq = np.ascontiguousarray(np.asarray(peaks.freq_hz[i], dtype=np.float64)[keep])
-        power = np.ascontiguousarray(np.asarray(peaks.power[i], dtype=np.float64)[keep])
-        f0[i], explained[i] = coarse_f0(freq, power, freq.size, float(fmin_hz), float(fmax_hz))
-    return CoarsePitch(f0_hz=f0, explained=explained)
 
 
 @njit(cache=True, nogil=True)
@@ -157,7 +100,14 @@ def strongest_peaks(
 def coarse_f0(freq: _FloatArray, power: _FloatArray, count: int, fmin_hz: float, fmax_hz: float) -> tuple[float, float]:
     """Coarse fundamental (Hz, nan if none) and the share of peak energy it explains (0..1).
 
-    ``freq``/``power``: the first ``count`` peaks of :func:`strongest_peaks`.
+    ``freq``/``power``: the first ``count`` peaks of :func:`strongest_peaks` (Hz, power).
+
+    Examples
+    --------
+    >>> f = np.array([440.0, 880.0, 1320.0])
+    >>> p = np.array([0.1, 1.0, 0.3])  # fundamental weaker than the 2nd harmonic
+    >>> float(coarse_f0(f, p, 3, 60.0, 4500.0)[0])
+    440.0
     """
     total = 0.0
     for i in range(count):

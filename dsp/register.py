@@ -39,7 +39,7 @@ import numpy as np
 from numba import njit  # type: ignore[import-untyped]
 from numpy.typing import NDArray
 
-__all__ = ["RegisterMonitor", "RegisterReading", "summarise_evidence", "summarise_row", "EVIDENCE_HARMONICS", "EVIDENCE_MODES"]
+__all__ = ["RegisterMonitor", "RegisterReading", "summarise_row", "EVIDENCE_HARMONICS", "EVIDENCE_MODES"]
 
 EVIDENCE_HARMONICS = 8
 """Harmonics of the held note in each evidence row."""
@@ -77,7 +77,19 @@ class RegisterReading:
 
 @njit(cache=True, nogil=True)
 def summarise_row(powers: NDArray[np.float64], out: NDArray[np.float64]) -> None:
-    """:func:`summarise_evidence` of one frame: ``powers`` (3, 8) into ``out`` (3, 4), dB."""
+    """Energy sums of the held note's harmonics, in dB, for each mode hypothesis.
+
+    ``powers`` (3, 8): powers at harmonics k = 1..8 of the held note under the hypotheses
+    "the pipe sounds mode m" (m = 1..3). ``out`` (3, 4), dB: per hypothesis, the odd
+    harmonics, the even ones, those off the multiples of 3, those on them.
+
+    Examples
+    --------
+    >>> out = np.empty((3, 4))
+    >>> summarise_row(np.tile([1.0, 0.1, 0.01, 0.1, 0.0, 0.0, 0.0, 0.0], (3, 1)), out)
+    >>> out[0].round(2).tolist()
+    [0.04, -6.99, 0.79, -20.0]
+    """
     for m in range(EVIDENCE_MODES):
         p = powers[m]
         odd = p[0] + p[2] + p[4] + p[6]
@@ -88,34 +100,6 @@ def summarise_row(powers: NDArray[np.float64], out: NDArray[np.float64]) -> None
         out[m, 1] = 10.0 * math.log10(even + _TINY)
         out[m, 2] = 10.0 * math.log10(off3 + _TINY)
         out[m, 3] = 10.0 * math.log10(on3 + _TINY)
-
-
-def summarise_evidence(powers: NDArray[np.float64]) -> NDArray[np.float64]:
-    """Energy sums of the held note's harmonics, in dB, for each mode hypothesis.
-
-    Parameters
-    ----------
-    powers : ndarray of float, shape (..., 3, 8)
-        Powers at harmonics k = 1..8 of the held note under the hypotheses "the pipe
-        sounds mode m" (m = 1..3).
-
-    Returns
-    -------
-    ndarray of float, shape (..., 3, 4), dB
-        Per hypothesis: odd harmonics, even harmonics, off the multiples of 3, on them.
-
-    Examples
-    --------
-    >>> p = np.array([1.0, 0.1, 0.01, 0.1, 0.0, 0.0, 0.0, 0.0])
-    >>> summarise_evidence(np.tile(p, (3, 1)))[0].round(2).tolist()
-    [0.04, -6.99, 0.79, -20.0]
-    """
-    p = np.ascontiguousarray(powers, dtype=np.float64)
-    flat = p.reshape(-1, EVIDENCE_MODES, EVIDENCE_HARMONICS)
-    out = np.empty((flat.shape[0], EVIDENCE_MODES, 4))
-    for i in range(flat.shape[0]):
-        summarise_row(flat[i], out[i])
-    return out.reshape(p.shape[:-1] + (4,))
 
 
 class RegisterMonitor:
@@ -157,8 +141,9 @@ class RegisterMonitor:
     Examples
     --------
     >>> mon = RegisterMonitor(0.005)
-    >>> ev = np.tile(np.array([1.0, 0.1, 0.03, 0.01, 0.003, 0.001, 0.0005, 0.0002]), (3, 1))
-    >>> mon.update(440.0, summarise_evidence(ev).tolist(), -20.0).register
+    >>> ev = np.empty((3, 4))
+    >>> summarise_row(np.tile([1.0, 0.1, 0.03, 0.01, 0.003, 0.001, 0.0005, 0.0002], (3, 1)), ev)
+    >>> mon.update(440.0, ev.tolist(), -20.0).register
     'steady'
     """
 
@@ -287,7 +272,7 @@ class RegisterMonitor:
         f0_hz : float or None, Hz
             Sounding fundamental of the frame; None when unvoiced.
         evidence_db : 3 rows of 4 floats, dB
-            :func:`summarise_evidence` of the powers at ``k f0 / m`` (k = 1..8; row m-1:
+            :func:`summarise_row` of the powers at ``k f0 / m`` (k = 1..8; row m-1:
             the held note's harmonics if the pipe sounds mode m), from a short recent window.
         level_dbfs : float, dBFS
             Level of that short window.

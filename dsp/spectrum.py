@@ -19,29 +19,35 @@ import numpy as np
 from numba import njit  # type: ignore[import-untyped]
 from numpy.typing import NDArray
 
-__all__ = ["hann_power", "band_floor", "hann_reassigned_bin", "hann2_taps", "hann2_reassigned_bin", "hann_gain"]
+__all__ = ["hann_power", "hann_power_at", "band_floor", "hann_reassigned_bin", "hann2_taps", "hann2_reassigned_bin", "hann_gain"]
 
 _NOISE_SCALE = 1.0 / -math.log(0.8)  # mean of exponential noise over its 20th percentile
 
 
 @njit(cache=True, nogil=True)
-def hann_power(rect: NDArray[np.complex64], n: int, keep: int, out: NDArray[np.float64]) -> None:
-    """Hann-window power ``|X_h|^2`` of bins ``0 .. keep - 1`` into ``out``.
+def hann_power_at(rect: NDArray[np.complex64], k: int, n: int) -> float:
+    """Hann-window power ``|X_h|^2`` of bin ``k`` of an ``n``-point DFT (0 at bin 0).
 
-    Amplitude-normalised: a sine of amplitude ``a`` at a bin centre reads ``a^2``
-    (bin 0 is set to 0). ``rect`` holds at least ``keep + 1`` bins of an ``n``-point DFT;
-    the Hann bin is ``0.5 R[k] - 0.25 (R[k-1] + R[k+1])``, normalised by ``4 / n``.
+    Amplitude-normalised: a sine of amplitude ``a`` at a bin centre reads ``a^2``. The Hann
+    bin is ``0.5 R[k] - 0.25 (R[k-1] + R[k+1])``, normalised by ``4 / n``.
     """
+    if k <= 0:
+        return 0.0
     a = 2.0 / n
     b = 1.0 / n
-    out[0] = 0.0
-    for k in range(1, keep):
-        lo = rect[k - 1]
-        hi = rect[k + 1]
-        mid = rect[k]
-        re = a * mid.real - b * (lo.real + hi.real)
-        im = a * mid.imag - b * (lo.imag + hi.imag)
-        out[k] = re * re + im * im
+    lo = rect[k - 1]
+    hi = rect[k + 1]
+    mid = rect[k]
+    re = a * mid.real - b * (lo.real + hi.real)
+    im = a * mid.imag - b * (lo.imag + hi.imag)
+    return re * re + im * im
+
+
+@njit(cache=True, nogil=True)
+def hann_power(rect: NDArray[np.complex64], n: int, keep: int, out: NDArray[np.float64]) -> None:
+    """:func:`hann_power_at` of bins ``0 .. keep - 1`` into ``out`` (``rect`` holds ``keep + 1`` bins or more)."""
+    for k in range(keep):
+        out[k] = hann_power_at(rect, k, n)
 
 
 @njit(cache=True, nogil=True)

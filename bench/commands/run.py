@@ -190,10 +190,10 @@ def _start_follower(args: argparse.Namespace, engine: Any, report: Callable[[str
 def _prepare_analyser() -> None:
     """Load (the first time after an install: compile) the analyser's kernels before anything starts.
 
-    Done before the screen starts, their objects are among the start-up objects the screen
-    keeps out of the garbage collector's full passes; loaded later, every full pass walked
-    them and held the interpreter ~50 ms, long enough for a JACK period to pass the audio
-    callback by (measured: a block dropped per pass).
+    Compiling takes seconds once per installation: the user is told if it takes over a
+    second, before the screen takes the terminal. Done before the screen starts, the
+    loaded code is also among the start-up objects the screen keeps out of the garbage
+    collector's full passes, instead of being walked by every one of them.
     """
     import threading
 

@@ -18,6 +18,7 @@ waiting.
 from __future__ import annotations
 
 import atexit
+import sys
 import threading
 from dataclasses import dataclass
 from typing import Any
@@ -42,8 +43,6 @@ def import_sounddevice() -> Any:
 
 def import_rtmixer(sd: Any) -> Any | None:
     """python-rtmixer for the real sounddevice module ``sd``; None for a stand-in or without it."""
-    import sys
-
     if sd is not sys.modules.get("sounddevice"):
         return None
     try:
@@ -82,10 +81,6 @@ class _CRecording:
         self._pops = 0
         self.overflows = 0
         self.full_drops = 0
-
-    @property
-    def latency(self) -> float:
-        return float(self.stream.latency)
 
     def start(self) -> None:
         self.stream.start()

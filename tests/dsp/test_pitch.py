@@ -15,7 +15,7 @@ import pytest
 import scipy.signal
 
 from dsp.analyser import StreamingAnalyser
-from dsp.pitch import PeakSet, estimate_coarse_f0
+from dsp.pitch import coarse_f0
 
 SR = 48000
 
@@ -144,9 +144,9 @@ def test_odd_only_spectrum_is_its_own_fundamental():
 
 def test_coarse_step_on_a_hand_made_peak_set():
     # peaks at 2, 4, 6 x 300 Hz only: the fundamental is 600 Hz, not 300 Hz (empty odd slots)
-    f = np.array([[600.0, 1200.0, 1800.0]])
-    p = np.array([[1.0, 0.5, 0.2]])
-    assert estimate_coarse_f0(PeakSet(f, p, p > 0), 60.0, 4500.0).f0_hz[0] == pytest.approx(600.0)
+    f = np.array([600.0, 1200.0, 1800.0])
+    p = np.array([1.0, 0.5, 0.2])
+    assert coarse_f0(f, p, 3, 60.0, 4500.0)[0] == pytest.approx(600.0)
 
 
 @pytest.mark.parametrize("sr", [16000, 22050, 44100, 96000])

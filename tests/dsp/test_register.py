@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 
 from dsp.analyser import StreamingAnalyser
-from dsp.register import RegisterMonitor, summarise_evidence
+from dsp.register import RegisterMonitor, summarise_row
 from dsp.synth import NoteEvent, render
 
 SR = 48000
@@ -134,8 +134,10 @@ def test_monitor_alone_on_hand_made_evidence():
     mon = RegisterMonitor(0.005)
     first = np.array([1.0, 0.1, 0.05, 0.02, 0.01, 0.005, 0.002, 0.001])  # all harmonics
     octave = np.array([1e-9, 1.0, 1e-9, 0.1, 1e-9, 0.03, 1e-9, 0.01])  # only the even ones, louder
-    ev_first = summarise_evidence(np.tile(first, (3, 1))).tolist()
-    ev_oct = summarise_evidence(np.stack([octave, octave, octave])).tolist()
+    ev_first, ev_oct = np.empty((3, 4)), np.empty((3, 4))
+    summarise_row(np.tile(first, (3, 1)), ev_first)
+    summarise_row(np.tile(octave, (3, 1)), ev_oct)
+    ev_first, ev_oct = ev_first.tolist(), ev_oct.tolist()
     for _ in range(60):
         assert mon.update(440.0, ev_first, -20.0).register == "steady"
     jumped = mon.update(880.0, ev_oct, -12.0)  # level +8 dB at the change
