@@ -37,22 +37,11 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-import scipy.fft  # type: ignore[import-untyped]
-
+from dsp.chunk import N_OUT, O_CLARITY, O_CLIP, O_F0, O_H1, O_HELD, O_JUMP, O_LEVEL, O_ODD_EVEN, O_REGISTER
+from dsp.chunk import CARRY_JUMPED_RUN, CARRY_PREV_F0, analyse_chunk, chunk_params, store_block
 from dsp.frame import Frame
-from dsp.harmonics import N_REPORTED, balance_row
-from dsp.measure import (
-    CURVATURE_GAIN,
-    CURVATURE_NOISE,
-    FIT_SNR_DB,
-    MAINS_HZ,
-    MAINS_TOLERANCE,
-    N_FIT_HARMONICS,
-    copy_frames,
-    measure_frames,
-)
-from dsp.pitch import refine_f0
-from dsp.register import EVIDENCE_MODES, RegisterMonitor
+from dsp.measure import MAINS_HZ, MAINS_TOLERANCE
+from dsp.register import JUMP_NAMES, REGISTER_NAMES, RegisterMonitor
 
 __all__ = ["StreamingAnalyser", "prepare_kernels", "MIN_SAMPLE_RATE", "MAX_SAMPLE_RATE", "FMIN_HZ", "FMAX_HZ"]
 
@@ -66,6 +55,7 @@ FMAX_HZ = 4500.0
 _HOLD_CENTS = 50.0  # a sustained frame must stay within this of the previous voiced f0
 _PEAK_LIMIT_HZ = 10000.0
 _CHUNK_FRAMES = 32
+_F32, _F64 = np.dtype(np.float32), np.dtype(np.float64)
 _compiled = False  # the kernels compiled (or loaded from numba's cache) in this process
 
 
@@ -163,17 +153,17 @@ class StreamingAnalyser:
         self._keep = min(self._hi_bin + 4, self._n // 2)  # bins of the whole-window spectrum used
         self._fast_keep = min(self._hi_bin // 2 + 4, self._n // 4)  # ... of the newest half window
         self._store_size = self._n + 8 * self._hop + 8192
-        self._hum_lo_hz = MAINS_HZ * (1.0 - MAINS_TOLERANCE)
-        self._hum_hi_hz = MAINS_HZ * (1.0 + MAINS_TOLERANCE)
-        c, keep = _CHUNK_FRAMES, self._keep
-        self._power = np.empty((c, keep))  # kept for _refine_single
-        self._floor = np.empty((c, keep))
+        self._hum_hz = np.stack([MAINS_HZ * (1.0 - MAINS_TOLERANCE), MAINS_HZ * (1.0 + MAINS_TOLERANCE)])
+        self._params = chunk_params(
+            sr, self._lo_bin, self._hi_bin, self._fast_keep, self._limit_hz, self._fmin, self._fmax,
+            self._override_frames, _HOLD_CENTS,
+        )  # fmt: skip
+        self._carry = np.empty(2)
+        c = _CHUNK_FRAMES
         # what one chunk's frames are measured into; views per chunk size in self._work
         self._work_arrays = (
-            np.empty((c, self._n), dtype=np.float32), self._power, self._floor,
-            np.empty(c), np.empty(c), np.empty(c), np.empty(c),  # f0, clarity, level, newest-quarter level
-            np.empty(c, dtype=bool), np.empty(c, dtype=bool), np.empty(c, dtype=bool),  # clip, voiced, sustain
-            np.empty((c, N_REPORTED)), np.empty(c), np.empty((c, EVIDENCE_MODES, 4)),  # H1..H8, odd/even, evidence
+            np.empty((c, self._n), dtype=np.float32), np.empty((c, self._keep)), np.empty((c, self._keep)),
+            np.empty((c, N_OUT)),
         )  # fmt: skip
         self._work: dict[int, tuple[NDArray[Any], ...]] = {}  # views of the work arrays per chunk size
         self.reset()
@@ -200,7 +190,7 @@ class StreamingAnalyser:
     @property
     def _buf(self) -> NDArray[np.float64]:
         """Samples held for the next frames (a view)."""
-        return self._store[: self._fill]
+        return self._store[max(self._next_end - self._n - self._store_start, 0) : self._fill]
 
     def reset(self) -> None:
         """Back to the state after construction (input clock restarts at 0; lock kept off)."""
@@ -209,8 +199,8 @@ class StreamingAnalyser:
         self._store_start = 0  # absolute index of self._store[0]
         self._n_in = 0
         self._next_end = self._n
-        self._prev_f0: float | None = None
-        self._jumped_run = 0
+        self._carry[CARRY_PREV_F0] = math.nan
+        self._carry[CARRY_JUMPED_RUN] = 0.0
         self._monitor.lock(None)
         self._monitor.reset()
 
@@ -259,39 +249,46 @@ class StreamingAnalyser:
             return []
         if x.dtype.kind != "f":
             raise TypeError(f"block dtype {x.dtype} is not floating point; scale to float32/float64 with full scale 1.0")
-        # a finite sum proves every sample finite; an infinite one may be an overflow only
-        if not math.isfinite(float(np.add.reduce(x, dtype=np.float64))) and not np.all(np.isfinite(x)):
-            bad = int(np.flatnonzero(~np.isfinite(x))[0])
-            raise ValueError(f"block holds {x[bad]} at sample {bad}; pass finite samples")
+        if x.dtype not in (_F32, _F64) or not x.flags.c_contiguous:
+            x = np.ascontiguousarray(x, dtype=np.float64)
+        if self._fill + n_new > self._store.size:
+            self._compact(n_new)
         fill = self._fill
-        if fill + n_new > self._store.size:
-            grown = np.empty(max(2 * self._store.size, fill + n_new), dtype=np.float64)
-            grown[:fill] = self._store[:fill]
-            self._store = grown
-        self._store[fill : fill + n_new] = x
-        fill += n_new
+        bad = store_block(self._store, fill, x)  # copies, and finds the first non-finite sample
+        if bad >= 0:
+            raise ValueError(f"block holds {x[bad]} at sample {bad}; pass finite samples")
+        self._fill = fill + n_new
         self._n_in += n_new
         frames: list[Frame] = []
-        hop = self._hop
         if self._next_end <= self._n_in:
+            hop = self._hop
             n_frames = (self._n_in - self._next_end) // hop + 1
-            first = self._next_end - self._n - self._store_start  # buffer index of frame 0
+            first = self._next_end - self._n - self._store_start  # store index of frame 0
             frames = self._analyse(first, self._next_end, n_frames)
             self._next_end += hop * n_frames
-        # keep from the next frame's first sample on
-        drop = self._next_end - self._n - self._store_start
-        if drop > 0:
-            if drop < fill:
-                self._store[: fill - drop] = self._store[drop:fill]
-            fill = max(fill - drop, 0)
-            self._store_start += drop
-            if self._store.size > 4 * self._store_size and fill <= self._store_size:
-                # one long block made the store large: give the memory back
-                small = np.zeros(self._store_size, dtype=np.float64)
-                small[:fill] = self._store[:fill]
-                self._store = small
-        self._fill = fill
+        if self._store.size > 4 * self._store_size:
+            self._compact(0)  # one long block made the store large: give the memory back
         return frames
+
+    def _compact(self, n_new: int) -> None:
+        """Move the samples still needed (from the next frame's first on) to the store's start.
+
+        Grows the store when they and ``n_new`` more do not fit; shrinks it back to its
+        usual size when they fit in that. Called only when the store is full (or too large),
+        so that most blocks cost no move.
+        """
+        keep_from = max(self._next_end - self._n - self._store_start, 0)
+        live = self._fill - keep_from
+        need = live + n_new
+        store = self._store
+        if need > store.size:
+            store = np.empty(max(2 * store.size, need), dtype=np.float64)
+        elif store.size > 4 * self._store_size and need <= self._store_size:
+            store = np.empty(self._store_size, dtype=np.float64)
+        store[:live] = self._store[keep_from : self._fill]
+        self._store = store
+        self._store_start += keep_from
+        self._fill = live
 
     # -- analysis -------------------------------------------------------------------------
 
@@ -306,112 +303,52 @@ class StreamingAnalyser:
 
     def _analyse_chunk(self, first: int, ends_l: list[int]) -> list[Frame]:
         """Frames for up to _CHUNK_FRAMES windows, the first at store index ``first``."""
-        n, hop, c = self._n, self._hop, len(ends_l)
+        c = len(ends_l)
         work = self._work.get(c)
         if work is None:
             work = self._work[c] = tuple(a[:c] for a in self._work_arrays)
-        (x32, power, floor, f0_a, clarity_a, level_a, fast_level_a, clip_a, voiced_a, sustain_a, harm_db_a,
-         odd_even_a, evidence_a) = work  # fmt: skip
-        # single precision: rounding noise ~1e-7 of the peak, far under any microphone's floor
-        copy_frames(self._store, first, hop, x32)
-        rect = scipy.fft.rfft(x32, axis=1, workers=1)
-        rect_fast = scipy.fft.rfft(x32[:, n // 2 :], axis=1, workers=1)
-        measure_frames(
-            self._store, first, hop, n, rect, rect_fast, self._sr, self._lo_bin, self._hi_bin, self._fast_keep,
-            self._limit_hz, self._fmin, self._fmax, self._hum_lo_hz, self._hum_hi_hz,
-            power, floor, f0_a, clarity_a, level_a, fast_level_a, clip_a, voiced_a, sustain_a, harm_db_a,
-            odd_even_a, evidence_a,
+        x32, power, floor, out = work
+        cfg, st, hist = self._monitor.arrays
+        analyse_chunk(
+            self._store, first, self._hop, x32, power, floor, self._params, self._hum_hz, cfg, st, hist, self._carry, out
         )  # fmt: skip
         sr = self._sr
-        half = n / 2.0
-        out: list[Frame] = []
-        update = self._monitor.update
-        f0s = f0_a.tolist()
-        voiced_l = voiced_a.tolist()
-        sustain_l = sustain_a.tolist()
-        harm_db = harm_db_a.tolist()
-        oe = odd_even_a.tolist()
-        evidence = evidence_a.tolist()
-        fast_level = fast_level_a.tolist()
-        clarity = clarity_a.tolist()
-        level = level_a.tolist()
-        clip = clip_a.tolist()
-        prev = self._prev_f0
-        jumped_run = self._jumped_run
-        for i in range(c):
-            f0 = f0s[i] if voiced_l[i] else None
-            if f0 is None and prev is not None and sustain_l[i] and abs(1200.0 * math.log2(f0s[i] / prev)) <= _HOLD_CENTS:
-                f0 = f0s[i]
-            reading = update(f0, evidence[i], fast_level[i])
-            h_db: tuple[float, ...] | None = None
-            oe_db: float | None = None
-            if f0 is None:
-                jumped_run = 0
-            else:
-                held = reading.held_f0_hz
-                jumped_run = jumped_run + 1 if reading.register == "jumped" else 0
-                if (
-                    reading.mode > 1
-                    and held is not None
-                    and jumped_run > self._override_frames
-                    and abs(1200.0 * math.log2(f0 / (reading.mode * held))) > 50.0
-                ):
-                    # the held note's odd harmonics may linger (reverberation) while the
-                    # octave sounds: measure the sounding note at mode x held. Only once the
-                    # change is past this frame's centre: the monitor judges the newest half
-                    # window, whose centre leads this frame's by a quarter window
-                    f0, h_db, oe_db = self._refine_single(rect[i], i, reading.mode * held)
-                else:
-                    h_db = tuple(harm_db[i])
-                    oe_db = oe[i]
-            prev = f0
-            e = ends_l[i]
-            out.append(
+        half = self._n / 2.0
+        frames: list[Frame] = []
+        for e, row in zip(ends_l, out.tolist()):
+            f0 = row[O_F0]
+            held = row[O_HELD]
+            voiced = f0 == f0  # not nan
+            frames.append(
                 Frame(
                     time_s=(e - half) / sr,
                     ready_s=e / sr,
-                    f0_hz=f0,
-                    clarity=clarity[i],
-                    level_dbfs=level[i],
-                    clipped=clip[i],
-                    harmonics_db=h_db,
-                    odd_even_db=oe_db,
-                    register=reading.register if f0 is not None else None,
-                    jump=reading.jump if f0 is not None else None,
-                    held_f0_hz=reading.held_f0_hz,
+                    f0_hz=f0 if voiced else None,
+                    clarity=row[O_CLARITY],
+                    level_dbfs=row[O_LEVEL],
+                    clipped=row[O_CLIP] != 0.0,
+                    harmonics_db=tuple(row[O_H1:]) if voiced else None,
+                    odd_even_db=row[O_ODD_EVEN] if voiced else None,
+                    register=REGISTER_NAMES[int(row[O_REGISTER])],
+                    jump=JUMP_NAMES[int(row[O_JUMP])],
+                    held_f0_hz=held if held == held else None,
                 )
             )
-        self._prev_f0 = prev
-        self._jumped_run = jumped_run
-        return out
+        return frames
 
     def _compile(self) -> None:
-        """Run every compiled kernel once on a made-up frame, so that no first call stalls a live stream.
+        """Run the compiled pass once on a made-up frame, so that no first call stalls a live stream.
 
         numba compiles on first use (seconds, once per installation: the result is cached
         on disk) and loads from its cache on each process's first call (~0.3 s).
         """
         global _compiled
-        t = np.arange(self._n + self._hop) / self._sr
+        t = np.arange(self._n + 8 * self._hop) / self._sr
         self._store = np.sin(2.0 * np.pi * 440.0 * t) * 0.1
         try:
-            self._analyse_chunk(0, [self._n])
-            self._refine_single(scipy.fft.rfft(self._store[: self._n].astype(np.float32)), 0, 880.0)
+            for dtype in (_F32, _F64):  # the live input's samples and any other float's
+                store_block(np.empty(4), 0, np.zeros(4, dtype=dtype))
+            self._analyse_chunk(0, [self._n + self._hop * i for i in range(8)])
         finally:
-            self.reset()  # the made-up frame leaves no trace
+            self.reset()  # the made-up frames leave no trace
         _compiled = True
-
-    def _refine_single(
-        self, rect: NDArray[np.complex64], i: int, f_hz: float
-    ) -> tuple[float | None, tuple[float, ...] | None, float | None]:
-        """Refine frame ``i`` of the current chunk around ``f_hz``."""
-        amp = np.empty(N_FIT_HARMONICS)
-        f0, _ = refine_f0(
-            rect, self._power[i], self._floor[i], f_hz, self._sr / self._n, self._n, self._limit_hz, amp, FIT_SNR_DB,
-            CURVATURE_GAIN, CURVATURE_NOISE,
-        )  # fmt: skip
-        if not math.isfinite(f0):
-            return None, None, None
-        levels = np.empty(N_REPORTED)
-        oe = balance_row(amp, levels)
-        return f0, tuple(levels.tolist()), oe

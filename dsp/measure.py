@@ -1,7 +1,7 @@
 """One compiled pass over each frame: spectrum, noise floor, f0, clarity, level, register evidence.
 
-The analyser (:mod:`dsp.analyser`) computes the frames' FFTs in one batch and hands them
-here; :func:`measure_frames` then measures every frame on its own (numba, no Python per
+The analyser's compiled pass (:mod:`dsp.chunk`) takes a chunk of frames' FFTs and hands
+them here; :func:`measure_frames` measures every frame on its own (numba, no Python per
 operation), so a frame's result never depends on the block sizes it was fed in. Steps:
 
 1. Hann power of the ~85 ms window and its noise floor (:mod:`dsp.spectrum`);
@@ -249,3 +249,4 @@ def measure_frames(
                     hann_power_at(rf, c - 1, half), hann_power_at(rf, c, half), hann_power_at(rf, c + 1, half)
                 )
         summarise_row(ev, evidence_out[i])
+

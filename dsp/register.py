@@ -30,7 +30,6 @@ window), not on a smoothed pitch track:
 from __future__ import annotations
 
 import math
-import statistics
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Literal
@@ -39,7 +38,10 @@ import numpy as np
 from numba import njit  # type: ignore[import-untyped]
 from numpy.typing import NDArray
 
-__all__ = ["RegisterMonitor", "RegisterReading", "summarise_row", "EVIDENCE_HARMONICS", "EVIDENCE_MODES"]
+__all__ = [
+    "RegisterMonitor", "RegisterReading", "summarise_row", "monitor_update", "monitor_config", "monitor_arrays",
+    "monitor_reset", "monitor_lock", "EVIDENCE_HARMONICS", "EVIDENCE_MODES",
+]  # fmt: skip
 
 EVIDENCE_HARMONICS = 8
 """Harmonics of the held note in each evidence row."""
@@ -102,8 +104,427 @@ def summarise_row(powers: NDArray[np.float64], out: NDArray[np.float64]) -> None
         out[m, 3] = 10.0 * math.log10(on3 + _TINY)
 
 
+# -- the monitor's state, in flat arrays a compiled step can update --------------------------
+# configuration (float64 vector)
+_C_COLLAPSE, _C_DEEP, _C_COLLAPSED_RATIO, _C_EVEN_RISE, _C_WEAKEN, _C_RISE = 0, 1, 2, 3, 4, 5
+_C_SILENCE, _C_CONFIRM, _C_WARMUP, _C_ALPHA, _C_WEAK, _C_REF_FAR, _C_REF_NEAR = 6, 7, 8, 9, 10, 11, 12
+_N_CONFIG = 13
+# state (float64 vector; nan stands for "none"; counters are whole numbers)
+_S_TARGET, _S_HELD, _S_STATE, _S_JUMP, _S_MODE, _S_UNVOICED, _S_PENDING, _S_PENDING_RUN = 0, 1, 2, 3, 4, 5, 6, 7
+_S_IN_NOTE, _S_BASE_R2, _S_BASE_R3, _S_WEAK_RUN, _S_BACK_RUN, _S_HIST_POS, _S_INTACT, _S_STEADY_LEVEL = (
+    8, 9, 10, 11, 12, 13, 14, 15,
+)
+# the last reading: register code, jump code, held note (Hz, nan none), mode
+OUT_REGISTER, OUT_JUMP, OUT_HELD, OUT_MODE = 16, 17, 18, 19
+N_STATE = 20
+# history rings, one row each: short-window level, energy on the evens, on the 3s, intact flag
+_H_LEVEL, _H_EVEN, _H_MULT3, _H_STEADY = 0, 1, 2, 3
+
+UNVOICED, STEADY, WEAKENING, JUMPED = -1, 0, 1, 2
+"""Register codes of :data:`OUT_REGISTER`."""
+NO_JUMP, OVERBLOWN, VENTED = 0, 1, 2
+"""Jump codes of :data:`OUT_JUMP`."""
+REGISTER_NAMES: dict[int, Literal["steady", "weakening", "jumped"] | None] = {
+    UNVOICED: None, STEADY: "steady", WEAKENING: "weakening", JUMPED: "jumped"
+}
+JUMP_NAMES: dict[int, Literal["overblown", "vented"] | None] = {NO_JUMP: None, OVERBLOWN: "overblown", VENTED: "vented"}
+
+
+@njit(cache=True, nogil=True)
+def _clear_note(st: NDArray[np.float64], hist: NDArray[np.float64]) -> None:
+    """Reset the per-note memory."""
+    st[_S_IN_NOTE] = 0.0
+    st[_S_BASE_R2] = -np.inf
+    st[_S_BASE_R3] = -np.inf
+    st[_S_WEAK_RUN] = 0.0
+    st[_S_BACK_RUN] = 0.0
+    for j in range(hist.shape[1]):
+        hist[_H_LEVEL, j] = np.nan
+        hist[_H_EVEN, j] = np.nan
+        hist[_H_MULT3, j] = np.nan
+        hist[_H_STEADY, j] = 0.0
+    st[_S_HIST_POS] = 0.0
+    st[_S_INTACT] = 0.0
+    st[_S_STEADY_LEVEL] = np.nan  # level of the last steady stretch, >= 70 ms back
+
+
+@njit(cache=True, nogil=True)
+def monitor_reset(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray[np.float64]) -> None:
+    """Forget the held note and all history (the lock target is kept)."""
+    st[_S_HELD] = np.nan
+    _set_register(st, STEADY, NO_JUMP, 1)
+    st[_S_UNVOICED] = cfg[_C_SILENCE]  # as after a long silence
+    st[_S_PENDING] = np.nan
+    st[_S_PENDING_RUN] = 0.0
+    _clear_note(st, hist)
+    _emit(st, UNVOICED, NO_JUMP, st[_S_TARGET], 0)
+
+
+@njit(cache=True, nogil=True)
+def monitor_lock(st: NDArray[np.float64], hist: NDArray[np.float64], target_hz: float) -> None:
+    """Judge the register against ``target_hz`` (Hz; nan releases)."""
+    old = st[_S_TARGET]
+    if (math.isnan(old) and math.isnan(target_hz)) or old == target_hz:
+        return
+    st[_S_TARGET] = target_hz
+    _set_register(st, STEADY, NO_JUMP, 1)
+    _clear_note(st, hist)
+    if math.isnan(target_hz):
+        st[_S_HELD] = np.nan
+
+
+@njit(cache=True, nogil=True)
+def _set_register(st: NDArray[np.float64], state: int, jump: int, mode: int) -> None:
+    st[_S_STATE] = state
+    st[_S_JUMP] = jump
+    st[_S_MODE] = mode
+
+
+@njit(cache=True, nogil=True)
+def _emit(st: NDArray[np.float64], register: int, jump: int, held_hz: float, mode: int) -> None:
+    """Write the frame's reading."""
+    st[OUT_REGISTER] = register
+    st[OUT_JUMP] = jump
+    st[OUT_HELD] = held_hz
+    st[OUT_MODE] = mode
+
+
+@njit(cache=True, nogil=True)
+def _held_or_target(st: NDArray[np.float64]) -> float:
+    """Held note to report, Hz (nan for none)."""
+    return st[_S_HELD] if math.isnan(st[_S_TARGET]) else st[_S_TARGET]
+
+
+@njit(cache=True, nogil=True)
+def _push(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray[np.float64], level_db: float,
+          even_db: float, mult3_db: float) -> None:  # fmt: skip
+    """Append one frame to the history rings."""
+    size = hist.shape[1]
+    pos = int(st[_S_HIST_POS])
+    i = pos % size
+    hist[_H_LEVEL, i] = level_db
+    hist[_H_EVEN, i] = even_db
+    hist[_H_MULT3, i] = mult3_db
+    hist[_H_STEADY, i] = st[_S_INTACT]
+    pos += 1
+    st[_S_HIST_POS] = pos
+    near = int(cfg[_C_REF_NEAR])
+    if pos > near:
+        j = (pos - 1 - near) % size
+        if hist[_H_STEADY, j] != 0.0 and math.isfinite(hist[_H_LEVEL, j]):
+            st[_S_STEADY_LEVEL] = hist[_H_LEVEL, j]
+
+
+@njit(cache=True, nogil=True)
+def _reference(cfg: NDArray[np.float64], st: NDArray[np.float64], ring: NDArray[np.float64]) -> float:
+    """Median of a ring over frames ``ref_far`` .. ``ref_near`` back (nan if none)."""
+    near, far, pos = int(cfg[_C_REF_NEAR]), int(cfg[_C_REF_FAR]), int(st[_S_HIST_POS])
+    if pos < near + 1:
+        return np.nan
+    last = pos - 1
+    vals = np.empty(far - near + 1)
+    count = 0
+    for b in range(near, min(far, last) + 1):
+        v = ring[(last - b) % ring.size]
+        if math.isfinite(v):
+            vals[count] = v
+            count += 1
+    if count == 0:
+        return np.nan
+    v = np.sort(vals[:count])
+    mid = count // 2
+    return v[mid] if count % 2 else (v[mid - 1] + v[mid]) / 2.0
+
+
+@njit(cache=True, nogil=True)
+def _start_note(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray[np.float64], f0_hz: float) -> None:
+    """Make ``f0_hz`` the held note."""
+    st[_S_HELD] = f0_hz if math.isnan(st[_S_TARGET]) else st[_S_TARGET]
+    _set_register(st, STEADY, NO_JUMP, 1)
+    st[_S_PENDING] = np.nan
+    st[_S_PENDING_RUN] = 0.0
+    _clear_note(st, hist)
+
+
+@njit(cache=True, nogil=True)
+def _cents(a: float, b: float) -> float:
+    return abs(1200.0 * math.log2(a / b))
+
+
+@njit(cache=True, nogil=True)
+def monitor_update(
+    cfg: NDArray[np.float64],
+    st: NDArray[np.float64],
+    hist: NDArray[np.float64],
+    f0_hz: float,
+    evidence_db: NDArray[np.float64],
+    level_dbfs: float,
+) -> None:
+    """Advance by one frame; the reading is left in ``st[OUT_REGISTER:OUT_MODE + 1]``.
+
+    ``f0_hz``: sounding fundamental (Hz, nan when unvoiced); ``evidence_db`` (3, 4):
+    :func:`summarise_row` of the powers at ``k f0 / m`` from a short recent window;
+    ``level_dbfs``: that window's level (dBFS).
+    """
+    unlocked = math.isnan(st[_S_TARGET])
+    if math.isnan(f0_hz):
+        st[_S_INTACT] = 0.0
+        st[_S_UNVOICED] += 1.0
+        if st[_S_STATE] == JUMPED:
+            # a jump lasts while the tone does: after a dropout it must be found anew
+            _set_register(st, STEADY, NO_JUMP, 1)
+        _push(cfg, st, hist, level_dbfs, np.nan, np.nan)
+        if st[_S_UNVOICED] >= cfg[_C_SILENCE] and not math.isnan(st[_S_HELD]):
+            st[_S_HELD] = st[_S_TARGET]
+            _set_register(st, STEADY, NO_JUMP, 1)
+            _clear_note(st, hist)
+        _emit(st, UNVOICED, NO_JUMP, _held_or_target(st), 0)
+        return
+    after_silence = st[_S_UNVOICED] >= cfg[_C_SILENCE]
+    st[_S_UNVOICED] = 0.0
+    ref = st[_S_HELD] if unlocked else st[_S_TARGET]
+    if math.isnan(ref) or (after_silence and unlocked):
+        _start_note(cfg, st, hist, f0_hz)
+        ref = st[_S_HELD]
+    elif after_silence:
+        _set_register(st, STEADY, NO_JUMP, 1)
+        _clear_note(st, hist)
+    ratio = f0_hz / ref
+    m = int(np.rint(ratio))
+    related = 1 <= m <= EVIDENCE_MODES and _cents(ratio, m) <= 50.0
+    row = m - 1 if related else 0
+    odd_db, even_db = evidence_db[row, 0], evidence_db[row, 1]
+    off3_db, mult3_db = evidence_db[row, 2], evidence_db[row, 3]
+    r2 = odd_db - even_db
+    r3 = off3_db - mult3_db
+    # the held note's odd harmonics intact (no weakening yet): its level is the blowing
+    # level a later jump is compared with
+    st[_S_INTACT] = 1.0 if (m == 1 and st[_S_STATE] == STEADY and r2 >= st[_S_BASE_R2] - 2.0) else 0.0
+
+    if not related:
+        _push(cfg, st, hist, level_dbfs, even_db, mult3_db)
+        if not unlocked:
+            # playing another note than the target: no register judgement to make
+            _emit(st, STEADY, NO_JUMP, st[_S_TARGET], 1)
+            return
+        if not math.isnan(st[_S_PENDING]) and _cents(f0_hz, st[_S_PENDING]) <= 50.0:
+            st[_S_PENDING_RUN] += 1.0
+        else:
+            st[_S_PENDING] = f0_hz
+            st[_S_PENDING_RUN] = 1.0
+        if st[_S_PENDING_RUN] >= cfg[_C_CONFIRM]:
+            _start_note(cfg, st, hist, f0_hz)
+            _steady_update(cfg, st, hist, f0_hz, r2, r3, level_dbfs, even_db, mult3_db, False, 1)
+            return
+        # a pitch that is no register of the held note: whatever the held note did is
+        # over (a jump included); the new note is confirmed on the next frames
+        if st[_S_STATE] == JUMPED:
+            _set_register(st, STEADY, NO_JUMP, 1)
+        _emit(st, STEADY, NO_JUMP, st[_S_HELD], 1)
+        return
+    st[_S_PENDING] = np.nan
+    st[_S_PENDING_RUN] = 0.0
+
+    if st[_S_STATE] == JUMPED:
+        _push(cfg, st, hist, level_dbfs, even_db, mult3_db)
+        octave = st[_S_MODE] == 2
+        base = st[_S_BASE_R2] if octave else st[_S_BASE_R3]
+        now = r2 if octave else r3
+        back = m == 1 and now > max(base - cfg[_C_WEAKEN], cfg[_C_COLLAPSED_RATIO])
+        st[_S_BACK_RUN] = st[_S_BACK_RUN] + 1.0 if back else 0.0
+        if st[_S_BACK_RUN] >= cfg[_C_WEAK]:  # the held note's own harmonics are back
+            _set_register(st, STEADY, NO_JUMP, 1)
+            st[_S_BACK_RUN] = 0.0
+            _steady_update(cfg, st, hist, f0_hz, r2, r3, level_dbfs, even_db, mult3_db, True, 1)
+            return
+        if unlocked:
+            st[_S_HELD] = f0_hz / m
+        _emit(st, JUMPED, int(st[_S_JUMP]), _held_or_target(st), int(st[_S_MODE]))
+        return
+
+    locked_fresh = not unlocked and m > 1 and not math.isfinite(st[_S_BASE_R2])
+    if st[_S_IN_NOTE] >= cfg[_C_WARMUP] or locked_fresh:
+        collapse = cfg[_C_COLLAPSE]
+        if (
+            collapse > st[_S_BASE_R2] - r2
+            and collapse > st[_S_BASE_R3] - r3
+            and (unlocked or math.isfinite(st[_S_BASE_R2]))
+        ):
+            jump_mode = 0  # no collapse to judge: what _jump_mode finds, without the calls
+        else:
+            jump_mode = _jump_mode(cfg, st, hist, m, r2, r3, even_db, mult3_db)
+        if jump_mode:
+            # against the level the note was blown at while steady (~70 ms and more
+            # back, before any weakening): a weakening phase loses the held note's
+            # strong odd harmonics and with them some level, which is no blowing change
+            ref_level = st[_S_STEADY_LEVEL]
+            if not math.isfinite(ref_level):
+                ref_level = _reference(cfg, st, hist[_H_LEVEL])
+            # no reference at all (a locked note that started in the upper register):
+            # blowing too hard is the usual cause (common practice)
+            rise = level_dbfs - ref_level if math.isfinite(ref_level) else np.inf
+            _set_register(st, JUMPED, OVERBLOWN if rise >= cfg[_C_RISE] else VENTED, jump_mode)
+            _push(cfg, st, hist, level_dbfs, even_db, mult3_db)
+            if unlocked:
+                st[_S_HELD] = f0_hz / m
+            _emit(st, JUMPED, int(st[_S_JUMP]), _held_or_target(st), jump_mode)
+            return
+        if m > 1:
+            # the octave (or twelfth) sounds with no collapse of the held note: a new note
+            _push(cfg, st, hist, level_dbfs, even_db, mult3_db)
+            if not unlocked:
+                _emit(st, STEADY, NO_JUMP, st[_S_TARGET], 1)
+                return
+            if math.isnan(st[_S_PENDING]):
+                st[_S_PENDING] = f0_hz
+            st[_S_PENDING_RUN] += 1.0
+            if st[_S_PENDING_RUN] >= 2.0 * cfg[_C_CONFIRM]:
+                _start_note(cfg, st, hist, f0_hz)
+                _steady_update(cfg, st, hist, f0_hz, r2, r3, level_dbfs, even_db, mult3_db, False, 1)
+                return
+            _emit(st, int(st[_S_STATE]), NO_JUMP, _held_or_target(st), 1)
+            return
+    _steady_update(cfg, st, hist, f0_hz, r2, r3, level_dbfs, even_db, mult3_db, False, m)
+
+
+@njit(cache=True, nogil=True)
+def _jump_mode(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray[np.float64], m: int, r2: float,
+               r3: float, even_db: float, mult3_db: float) -> int:  # fmt: skip
+    """Mode the pipe jumped to (2 or 3) on this frame's evidence, else 0."""
+    if not math.isnan(st[_S_TARGET]) and (m == 2 or m == 3) and not math.isfinite(st[_S_BASE_R2]):
+        # locked, and the note never sounded in the first register: judge the target's
+        # own harmonics directly, with no baseline
+        ratio = r2 if m == 2 else r3
+        return m if ratio <= cfg[_C_COLLAPSED_RATIO] - cfg[_C_COLLAPSE] else 0
+    if (m == 1 or m == 2) and _collapsed(cfg, st, st[_S_BASE_R2] - r2, r2, even_db, hist[_H_EVEN]):
+        return 2
+    if (m == 1 or m == 3) and _collapsed(cfg, st, st[_S_BASE_R3] - r3, r3, mult3_db, hist[_H_MULT3]):
+        return 3
+    return 0
+
+
+@njit(cache=True, nogil=True)
+def _collapsed(cfg: NDArray[np.float64], st: NDArray[np.float64], drop: float, ratio: float, kept_db: float,
+               ring: NDArray[np.float64]) -> bool:  # fmt: skip
+    """Collapse of the held note's vanishing harmonics (odd ones, or those off the 3s).
+
+    Either they fell ``collapse_db`` under their baseline, sit ``_DOMINATED_DB`` or more
+    under the kept ones (the new mode's) and those rose ``even_rise_db`` -- what a jump
+    does in a reverberant room, where the vanishing ones only decay -- or they fell
+    ``deep_collapse_db`` and sit ``collapsed_ratio_db`` under the kept ones.
+    """
+    if drop < cfg[_C_COLLAPSE]:
+        return False
+    if drop >= cfg[_C_DEEP] and ratio <= cfg[_C_COLLAPSED_RATIO]:
+        return True
+    if ratio > _DOMINATED_DB:
+        return False
+    return kept_db - _reference(cfg, st, ring) >= cfg[_C_EVEN_RISE]
+
+
+@njit(cache=True, nogil=True)
+def _steady_update(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray[np.float64], f0_hz: float,
+                   r2: float, r3: float, level_dbfs: float, even_db: float, mult3_db: float, pushed: bool,
+                   m_related: int) -> None:  # fmt: skip
+    """Steady or weakening frame of the held note: learn baselines."""
+    if not pushed:
+        _push(cfg, st, hist, level_dbfs, even_db, mult3_db)
+    st[_S_IN_NOTE] += 1.0
+    st[_S_MODE] = 1
+    st[_S_JUMP] = NO_JUMP
+    if m_related > 1:
+        # a foreign register during warm-up: no baseline to learn from it
+        st[_S_STATE] = STEADY
+        _emit(st, STEADY, NO_JUMP, _held_or_target(st), 1)
+        return
+    if math.isnan(st[_S_TARGET]):
+        st[_S_HELD] = f0_hz
+    warm = st[_S_IN_NOTE] > cfg[_C_WARMUP]
+    weak = r2 <= st[_S_BASE_R2] - cfg[_C_WEAKEN] and warm
+    st[_S_WEAK_RUN] = st[_S_WEAK_RUN] + 1.0 if weak else 0.0
+    if st[_S_WEAK_RUN] >= cfg[_C_WEAK]:
+        st[_S_STATE] = WEAKENING
+    else:
+        st[_S_STATE] = STEADY
+        if not math.isfinite(st[_S_BASE_R2]) or not warm:
+            # the attack is no reference (a real flute's upper harmonics grow for tens
+            # of ms): follow it directly until the note has settled
+            st[_S_BASE_R2] = r2
+            st[_S_BASE_R3] = r3
+        else:
+            # a slow average, not a peak hold: in a reverberant room the harmonics of a
+            # note with vibrato beat by several dB, and a peak hold would read that as
+            # a fall of the odd harmonics
+            a = cfg[_C_ALPHA]
+            st[_S_BASE_R2] += a * (r2 - st[_S_BASE_R2])
+            st[_S_BASE_R3] += a * (r3 - st[_S_BASE_R3])
+    _emit(st, int(st[_S_STATE]), NO_JUMP, _held_or_target(st), 1)
+
+
+REGISTER_DEFAULTS = {
+    "collapse_db": 15.0,
+    "deep_collapse_db": 30.0,
+    "collapsed_ratio_db": -10.0,
+    "even_rise_db": 3.0,
+    "weaken_db": 6.0,
+    "rise_db": 3.0,
+    "silence_s": 0.05,
+    "confirm_s": 0.015,
+    "warmup_s": 0.1,
+    "baseline_s": 0.15,
+    "weaken_hold_s": 0.02,
+}
+"""Default thresholds of :class:`RegisterMonitor` (dB, seconds)."""
+
+
+def monitor_config(hop_s: float, **options: float) -> NDArray[np.float64]:
+    """The configuration vector of a monitor stepping every ``hop_s`` seconds.
+
+    Raises
+    ------
+    ValueError
+        For a hop that is not a positive number of seconds.
+    TypeError
+        For an option name that is not one of :data:`REGISTER_DEFAULTS`.
+    """
+    if not (isinstance(hop_s, (int, float)) and hop_s > 0.0 and math.isfinite(hop_s)):
+        raise ValueError(f"hop_s {hop_s!r} must be a positive number of seconds")
+    unknown = sorted(set(options) - set(REGISTER_DEFAULTS))
+    if unknown:
+        raise TypeError(f"unknown register option {unknown[0]!r}; use one of {', '.join(REGISTER_DEFAULTS)}")
+    o = {**REGISTER_DEFAULTS, **options}
+    cfg = np.empty(_N_CONFIG)
+    cfg[_C_COLLAPSE] = o["collapse_db"]
+    cfg[_C_DEEP] = o["deep_collapse_db"]
+    cfg[_C_COLLAPSED_RATIO] = o["collapsed_ratio_db"]
+    cfg[_C_EVEN_RISE] = o["even_rise_db"]
+    cfg[_C_WEAKEN] = o["weaken_db"]
+    cfg[_C_RISE] = o["rise_db"]
+    cfg[_C_SILENCE] = max(1, int(round(o["silence_s"] / hop_s)))
+    cfg[_C_CONFIRM] = max(1, int(round(o["confirm_s"] / hop_s)))
+    cfg[_C_WARMUP] = int(round(o["warmup_s"] / hop_s))
+    cfg[_C_ALPHA] = 1.0 - math.exp(-hop_s / o["baseline_s"])
+    cfg[_C_WEAK] = max(1, int(round(o["weaken_hold_s"] / hop_s)))
+    # reference span for rises: frames 150..70 ms before now
+    cfg[_C_REF_FAR] = max(2, int(round(0.15 / hop_s)))
+    cfg[_C_REF_NEAR] = max(1, int(round(0.07 / hop_s)))
+    return cfg
+
+
+def monitor_arrays(cfg: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Fresh (state, history) arrays for ``cfg``, unlocked and reset."""
+    st = np.zeros(N_STATE)
+    st[_S_TARGET] = np.nan
+    hist = np.empty((4, int(cfg[_C_REF_FAR]) + 1))
+    monitor_reset(cfg, st, hist)
+    return st, hist
+
+
 class RegisterMonitor:
     """Frame-by-frame register state of the held note.
+
+    A thin shell over the compiled step :func:`monitor_update`, whose state lives in flat
+    arrays (the analyser runs the same step inside its own compiled pass).
 
     Parameters
     ----------
@@ -147,69 +568,14 @@ class RegisterMonitor:
     'steady'
     """
 
-    def __init__(
-        self,
-        hop_s: float,
-        *,
-        collapse_db: float = 15.0,
-        deep_collapse_db: float = 30.0,
-        collapsed_ratio_db: float = -10.0,
-        even_rise_db: float = 3.0,
-        weaken_db: float = 6.0,
-        rise_db: float = 3.0,
-        silence_s: float = 0.05,
-        confirm_s: float = 0.015,
-        warmup_s: float = 0.1,
-        baseline_s: float = 0.15,
-        weaken_hold_s: float = 0.02,
-    ) -> None:
-        if not (hop_s > 0.0 and math.isfinite(hop_s)):
-            raise ValueError(f"hop_s {hop_s!r} must be a positive number of seconds")
-        self.hop_s = float(hop_s)
-        self.collapse_db = collapse_db
-        self.deep_collapse_db = deep_collapse_db
-        self.collapsed_ratio_db = collapsed_ratio_db
-        self.even_rise_db = even_rise_db
-        self.weaken_db = weaken_db
-        self.rise_db = rise_db
-        self._silence_frames = max(1, int(round(silence_s / hop_s)))
-        self._confirm_frames = max(1, int(round(confirm_s / hop_s)))
-        self._warmup_frames = int(round(warmup_s / hop_s))
-        self._baseline_alpha = 1.0 - math.exp(-hop_s / baseline_s)
-        self._weak_frames = max(1, int(round(weaken_hold_s / hop_s)))
-        # reference span for rises: frames 150..70 ms before now
-        self._ref_far = max(2, int(round(0.15 / hop_s)))
-        self._ref_near = max(1, int(round(0.07 / hop_s)))
-        self._hist_len = self._ref_far + 1
-        self._target_hz: float | None = None
-        self.reset()
+    def __init__(self, hop_s: float, **options: float) -> None:
+        self.hop_s = float(hop_s) if isinstance(hop_s, (int, float)) else hop_s
+        self._cfg = monitor_config(hop_s, **options)
+        self._st, self._hist = monitor_arrays(self._cfg)
 
     def reset(self) -> None:
         """Forget the held note and all history (the lock target is kept)."""
-        self._held_hz: float | None = None
-        self._state: Literal["steady", "weakening", "jumped"] = "steady"
-        self._jump: Literal["overblown", "vented"] | None = None
-        self._mode = 1
-        self._unvoiced_run = self._silence_frames  # as after a long silence
-        self._pending_hz: float | None = None
-        self._pending_run = 0
-        self._clear_note()
-
-    def _clear_note(self) -> None:
-        """Reset the per-note memory."""
-        self._frames_in_note = 0
-        self._base_r2 = -math.inf
-        self._base_r3 = -math.inf
-        self._weak_run = 0
-        self._back_run = 0
-        # rings of plain floats: one frame's bookkeeping costs no array operation
-        self._hist_level = [math.nan] * self._hist_len
-        self._hist_even = [math.nan] * self._hist_len
-        self._hist_mult3 = [math.nan] * self._hist_len
-        self._hist_steady = [False] * self._hist_len
-        self._hist_pos = 0
-        self._intact = False
-        self._steady_level = math.nan  # level of the last steady stretch, >= 70 ms back
+        monitor_reset(self._cfg, self._st, self._hist)
 
     def lock(self, target_hz: float | None) -> None:
         """Judge the register against ``target_hz`` (the fingered note); None releases.
@@ -219,50 +585,20 @@ class RegisterMonitor:
         ValueError
             For a target that is not a positive finite frequency.
         """
-        if target_hz is not None:
-            if not (math.isfinite(target_hz) and target_hz > 0.0):
-                raise ValueError(f"target_hz {target_hz!r} must be a positive frequency in Hz, or None to release")
-            target_hz = float(target_hz)
-        if target_hz != self._target_hz:
-            self._target_hz = target_hz
-            self._state, self._jump, self._mode = "steady", None, 1
-            self._clear_note()
-            if target_hz is None:
-                self._held_hz = None
+        if target_hz is not None and not (math.isfinite(target_hz) and target_hz > 0.0):
+            raise ValueError(f"target_hz {target_hz!r} must be a positive frequency in Hz, or None to release")
+        monitor_lock(self._st, self._hist, math.nan if target_hz is None else float(target_hz))
+
+    @property
+    def arrays(self) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+        """(configuration, state, history): what :func:`monitor_update` steps, shared, not copied."""
+        return self._cfg, self._st, self._hist
 
     @property
     def target_hz(self) -> float | None:
         """Lock target, Hz (None when unlocked)."""
-        return self._target_hz
-
-    def _push(self, level_db: float, even_db: float, mult3_db: float) -> None:
-        """Append one frame to the history rings."""
-        i = self._hist_pos % self._hist_len
-        self._hist_level[i] = level_db
-        self._hist_even[i] = even_db
-        self._hist_mult3[i] = mult3_db
-        self._hist_steady[i] = self._intact
-        self._hist_pos += 1
-        if self._hist_pos > self._ref_near:
-            j = (self._hist_pos - 1 - self._ref_near) % self._hist_len
-            if self._hist_steady[j] and math.isfinite(self._hist_level[j]):
-                self._steady_level = self._hist_level[j]
-
-    def _reference(self, ring: list[float]) -> float:
-        """Median of a ring over frames ``_ref_far`` .. ``_ref_near`` back (nan if none)."""
-        if self._hist_pos < self._ref_near + 1:
-            return math.nan
-        last = self._hist_pos - 1
-        vals = [ring[(last - b) % self._hist_len] for b in range(self._ref_near, min(self._ref_far, last) + 1)]
-        vals = [v for v in vals if math.isfinite(v)]
-        return statistics.median(vals) if vals else math.nan
-
-    def _start_note(self, f0_hz: float) -> None:
-        """Make ``f0_hz`` the held note."""
-        self._held_hz = f0_hz if self._target_hz is None else self._target_hz
-        self._state, self._jump, self._mode = "steady", None, 1
-        self._pending_hz, self._pending_run = None, 0
-        self._clear_note()
+        t = float(self._st[_S_TARGET])
+        return None if math.isnan(t) else t
 
     def update(self, f0_hz: float | None, evidence_db: Sequence[Sequence[float]], level_dbfs: float) -> RegisterReading:
         """Advance by one frame.
@@ -281,184 +617,15 @@ class RegisterMonitor:
         -------
         RegisterReading
         """
-        if f0_hz is None:
-            self._intact = False
-            self._unvoiced_run += 1
-            if self._state == "jumped":
-                # a jump lasts while the tone does: after a dropout it must be found anew
-                self._state, self._jump, self._mode = "steady", None, 1
-            self._push(level_dbfs, math.nan, math.nan)
-            if self._unvoiced_run >= self._silence_frames and self._held_hz is not None:
-                self._held_hz = self._target_hz
-                self._state, self._jump, self._mode = "steady", None, 1
-                self._clear_note()
-            held = self._held_hz if self._target_hz is None else self._target_hz
-            return RegisterReading(None, None, held, 0)
-        after_silence = self._unvoiced_run >= self._silence_frames
-        self._unvoiced_run = 0
-        ref = self._target_hz if self._target_hz is not None else self._held_hz
-        if ref is None or (after_silence and self._target_hz is None):
-            self._start_note(f0_hz)
-            ref = self._held_hz
-        elif after_silence:
-            self._state, self._jump, self._mode = "steady", None, 1
-            self._clear_note()
-        assert ref is not None
-        ratio = f0_hz / ref
-        m = int(round(ratio))
-        related = 1 <= m <= EVIDENCE_MODES and abs(1200.0 * math.log2(ratio / m)) <= 50.0
-        odd_db, even_db, off3_db, mult3_db = evidence_db[m - 1] if related else evidence_db[0]
-        r2 = odd_db - even_db
-        r3 = off3_db - mult3_db
-        # the held note's odd harmonics intact (no weakening yet): its level is the blowing
-        # level a later jump is compared with
-        self._intact = m == 1 and self._state == "steady" and r2 >= self._base_r2 - 2.0
+        ev = np.ascontiguousarray(evidence_db, dtype=np.float64).reshape(EVIDENCE_MODES, 4)
+        monitor_update(self._cfg, self._st, self._hist, math.nan if f0_hz is None else float(f0_hz), ev, float(level_dbfs))
+        return reading_of(self._st)
 
-        if not related:
-            self._push(level_dbfs, even_db, mult3_db)
-            if self._target_hz is not None:
-                # playing another note than the target: no register judgement to make
-                return RegisterReading("steady", None, self._target_hz, 1)
-            if self._pending_hz is not None and abs(1200.0 * math.log2(f0_hz / self._pending_hz)) <= 50.0:
-                self._pending_run += 1
-            else:
-                self._pending_hz, self._pending_run = f0_hz, 1
-            if self._pending_run >= self._confirm_frames:
-                self._start_note(f0_hz)
-                return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db)
-            # a pitch that is no register of the held note: whatever the held note did is
-            # over (a jump included); the new note is confirmed on the next frames
-            if self._state == "jumped":
-                self._state, self._jump, self._mode = "steady", None, 1
-            return RegisterReading("steady", None, self._held_hz, 1)
-        self._pending_hz, self._pending_run = None, 0
 
-        if self._state == "jumped":
-            self._push(level_dbfs, even_db, mult3_db)
-            base = self._base_r2 if self._mode == 2 else self._base_r3
-            ratio = r2 if self._mode == 2 else r3
-            back = m == 1 and ratio > max(base - self.weaken_db, self.collapsed_ratio_db)
-            self._back_run = self._back_run + 1 if back else 0
-            if self._back_run >= self._weak_frames:  # the held note's own harmonics are back
-                self._state, self._jump, self._mode = "steady", None, 1
-                self._back_run = 0
-                return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db, pushed=True)
-            if self._target_hz is None:
-                self._held_hz = f0_hz / m
-            return RegisterReading("jumped", self._jump, self._held_or_target(), self._mode)
-
-        locked_fresh = self._target_hz is not None and m > 1 and not math.isfinite(self._base_r2)
-        if self._frames_in_note >= self._warmup_frames or locked_fresh:
-            if (
-                self.collapse_db > self._base_r2 - r2
-                and self.collapse_db > self._base_r3 - r3
-                and (self._target_hz is None or math.isfinite(self._base_r2))
-            ):
-                jump_mode = 0  # no collapse to judge: what _jump_mode finds, without the calls
-            else:
-                jump_mode = self._jump_mode(m, r2, r3, even_db, mult3_db)
-            if jump_mode:
-                # against the level the note was blown at while steady (~70 ms and more
-                # back, before any weakening): a weakening phase loses the held note's
-                # strong odd harmonics and with them some level, which is no blowing change
-                ref_level = self._steady_level
-                if not math.isfinite(ref_level):
-                    ref_level = self._reference(self._hist_level)
-                # no reference at all (a locked note that started in the upper register):
-                # blowing too hard is the usual cause (common practice)
-                rise = level_dbfs - ref_level if math.isfinite(ref_level) else math.inf
-                self._state = "jumped"
-                self._mode = jump_mode
-                self._jump = "overblown" if rise >= self.rise_db else "vented"
-                self._push(level_dbfs, even_db, mult3_db)
-                if self._target_hz is None:
-                    self._held_hz = f0_hz / m
-                return RegisterReading("jumped", self._jump, self._held_or_target(), self._mode)
-            if m > 1:
-                # the octave (or twelfth) sounds with no collapse of the held note: a new note
-                self._push(level_dbfs, even_db, mult3_db)
-                if self._target_hz is not None:
-                    return RegisterReading("steady", None, self._target_hz, 1)
-                self._pending_hz = f0_hz if self._pending_hz is None else self._pending_hz
-                self._pending_run += 1
-                if self._pending_run >= 2 * self._confirm_frames:
-                    self._start_note(f0_hz)
-                    return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db)
-                return RegisterReading(self._state, None, self._held_or_target(), 1)
-        return self._steady_update(f0_hz, r2, r3, level_dbfs, even_db, mult3_db, m_related=m)
-
-    def _held_or_target(self) -> float | None:
-        """Held note to report."""
-        return self._target_hz if self._target_hz is not None else self._held_hz
-
-    def _jump_mode(self, m: int, r2: float, r3: float, even_db: float, mult3_db: float) -> int:
-        """Mode the pipe jumped to (2 or 3) on this frame's evidence, else 0."""
-        if self._target_hz is not None and m in (2, 3) and not math.isfinite(self._base_r2):
-            # locked, and the note never sounded in the first register: judge the target's
-            # own harmonics directly, with no baseline
-            ratio = r2 if m == 2 else r3
-            return m if ratio <= self.collapsed_ratio_db - self.collapse_db else 0
-        if m in (1, 2) and self._collapsed(self._base_r2 - r2, r2, even_db, self._hist_even):
-            return 2
-        if m in (1, 3) and self._collapsed(self._base_r3 - r3, r3, mult3_db, self._hist_mult3):
-            return 3
-        return 0
-
-    def _collapsed(self, drop: float, ratio: float, kept_db: float, ring: list[float]) -> bool:
-        """Collapse of the held note's vanishing harmonics (odd ones, or those off the 3s).
-
-        Either they fell ``collapse_db`` under their baseline, sit ``_DOMINATED_DB`` or more
-        under the kept ones (the new mode's) and those rose ``even_rise_db`` -- what a jump
-        does in a reverberant room, where the vanishing ones only decay -- or they fell
-        ``deep_collapse_db`` and sit ``collapsed_ratio_db`` under the kept ones.
-        """
-        if drop < self.collapse_db:
-            return False
-        if drop >= self.deep_collapse_db and ratio <= self.collapsed_ratio_db:
-            return True
-        if ratio > _DOMINATED_DB:
-            return False
-        return kept_db - self._reference(ring) >= self.even_rise_db
-
-    def _steady_update(
-        self,
-        f0_hz: float,
-        r2: float,
-        r3: float,
-        level_dbfs: float,
-        even_db: float,
-        mult3_db: float,
-        *,
-        pushed: bool = False,
-        m_related: int = 1,
-    ) -> RegisterReading:
-        """Steady or weakening frame of the held note: learn baselines."""
-        if not pushed:
-            self._push(level_dbfs, even_db, mult3_db)
-        self._frames_in_note += 1
-        self._mode = 1
-        self._jump = None
-        if m_related > 1:
-            # a foreign register during warm-up: no baseline to learn from it
-            self._state = "steady"
-            return RegisterReading("steady", None, self._held_or_target(), 1)
-        if self._target_hz is None:
-            self._held_hz = f0_hz
-        weak = r2 <= self._base_r2 - self.weaken_db and self._frames_in_note > self._warmup_frames
-        self._weak_run = self._weak_run + 1 if weak else 0
-        if self._weak_run >= self._weak_frames:
-            self._state = "weakening"
-        else:
-            self._state = "steady"
-            if not math.isfinite(self._base_r2) or self._frames_in_note <= self._warmup_frames:
-                # the attack is no reference (a real flute's upper harmonics grow for tens
-                # of ms): follow it directly until the note has settled
-                self._base_r2, self._base_r3 = r2, r3
-            else:
-                # a slow average, not a peak hold: in a reverberant room the harmonics of a
-                # note with vibrato beat by several dB, and a peak hold would read that as
-                # a fall of the odd harmonics
-                a = self._baseline_alpha
-                self._base_r2 += a * (r2 - self._base_r2)
-                self._base_r3 += a * (r3 - self._base_r3)
-        return RegisterReading(self._state, None, self._held_or_target(), 1)
+def reading_of(st: NDArray[np.float64]) -> RegisterReading:
+    """The last reading left in a monitor state vector."""
+    held = float(st[OUT_HELD])
+    return RegisterReading(
+        REGISTER_NAMES[int(st[OUT_REGISTER])], JUMP_NAMES[int(st[OUT_JUMP])], None if math.isnan(held) else held,
+        int(st[OUT_MODE]),
+    )  # fmt: skip
