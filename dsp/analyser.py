@@ -8,15 +8,15 @@ Contract other modules code against::
     an.lock(target_hz)                               # judge register against this note; None releases
     an.reset()                                       # back to the state after construction
 
-Per hop: one real FFT of the newest ``frame_size`` samples (~85 ms) and one of the newest
-half of them, for all the hops a block completes at once; then one compiled pass per frame
-(:mod:`dsp.measure`): Hann spectra, coarse and refined f0 (:mod:`dsp.pitch`), voicing,
-level, clipping, H1..H8 and odd/even balance, and the register evidence. The register
-monitor (:mod:`dsp.register`) is fed the newest half-window's powers at the held note's
-harmonics and the level of the newest quarter window; a sounding note stays voiced on
-weaker evidence (hysteresis). Once a jump is past a frame's centre and the window still
-shows the held note (reverberation), the frame's pitch is measured on the harmonics of
-mode x held note.
+Per hop, for all the hops a block completes at once, one compiled call per chunk of up to 32
+frames (:mod:`dsp.chunk`): one real FFT of the newest ``frame_size`` samples (~85 ms); Hann
+spectra, coarse and refined f0 (:mod:`dsp.pitch`), voicing, level, clipping, H1..H8 and
+odd/even balance, and the register evidence (:mod:`dsp.measure`). The register monitor
+(:mod:`dsp.register`) is fed the newest half window's powers at the held note's harmonics
+(read out of the same FFT) and the level of the newest quarter window; a sounding note stays
+voiced on weaker evidence (hysteresis). Once a jump is past a frame's centre and the window
+still shows the held note (reverberation), the frame's pitch is measured on the harmonics of
+mode x held note. Python only checks the block and builds the Frames.
 
 Known limits: the window's smoothing of a vibrato is taken out only to second order (a 40-cent,
 7 Hz vibrato still reads ~0.35 cent off in the median) and not at all below 12 bins of f0
@@ -42,6 +42,7 @@ from dsp.chunk import CARRY_JUMPED_RUN, CARRY_PREV_F0, analyse_chunk, chunk_para
 from dsp.frame import Frame
 from dsp.measure import MAINS_HZ, MAINS_TOLERANCE
 from dsp.register import JUMP_NAMES, REGISTER_NAMES, RegisterMonitor
+from dsp.spectrum import newest_half_taps
 
 __all__ = ["StreamingAnalyser", "prepare_kernels", "MIN_SAMPLE_RATE", "MAX_SAMPLE_RATE", "FMIN_HZ", "FMAX_HZ"]
 
@@ -158,6 +159,7 @@ class StreamingAnalyser:
             sr, self._lo_bin, self._hi_bin, self._fast_keep, self._limit_hz, self._fmin, self._fmax,
             self._override_frames, _HOLD_CENTS,
         )  # fmt: skip
+        self._half_taps = newest_half_taps(self._n)
         self._carry = np.empty(2)
         c = _CHUNK_FRAMES
         # what one chunk's frames are measured into; views per chunk size in self._work
@@ -294,46 +296,48 @@ class StreamingAnalyser:
 
     def _analyse(self, first: int, first_end: int, n_frames: int) -> list[Frame]:
         """Frames for ``n_frames`` windows, the first at store index ``first`` and ending at ``first_end``."""
+        if n_frames <= _CHUNK_FRAMES:
+            return self._analyse_chunk(first, first_end, n_frames)
         out: list[Frame] = []
+        hop = self._hop
         for s in range(0, n_frames, _CHUNK_FRAMES):  # chunks that stay in cache
-            c = min(_CHUNK_FRAMES, n_frames - s)
-            ends = [first_end + self._hop * (s + i) for i in range(c)]
-            out.extend(self._analyse_chunk(first + s * self._hop, ends))
+            out.extend(self._analyse_chunk(first + s * hop, first_end + s * hop, min(_CHUNK_FRAMES, n_frames - s)))
         return out
 
-    def _analyse_chunk(self, first: int, ends_l: list[int]) -> list[Frame]:
-        """Frames for up to _CHUNK_FRAMES windows, the first at store index ``first``."""
-        c = len(ends_l)
+    def _analyse_chunk(self, first: int, first_end: int, c: int) -> list[Frame]:
+        """Frames for ``c <= _CHUNK_FRAMES`` windows, the first at store index ``first`` ending at ``first_end``."""
         work = self._work.get(c)
         if work is None:
-            work = self._work[c] = tuple(a[:c] for a in self._work_arrays)
-        x32, power, floor, out = work
-        cfg, st, hist = self._monitor.arrays
-        analyse_chunk(
-            self._store, first, self._hop, x32, power, floor, self._params, self._hum_hz, cfg, st, hist, self._carry, out
-        )  # fmt: skip
+            x32, power, floor, out = (a[:c] for a in self._work_arrays)
+            work = self._work[c] = (
+                x32, power, floor, self._params, self._hum_hz, *self._half_taps, *self._monitor.arrays, self._carry, out,
+            )  # fmt: skip
+        analyse_chunk(self._store, first, self._hop, *work)
         sr = self._sr
+        hop = self._hop
+        e = first_end - hop
         half = self._n / 2.0
         frames: list[Frame] = []
-        for e, row in zip(ends_l, out.tolist()):
+        append = frames.append
+        for row in work[-1].tolist():
+            e += hop
             f0 = row[O_F0]
             held = row[O_HELD]
-            voiced = f0 == f0  # not nan
-            frames.append(
-                Frame(
-                    time_s=(e - half) / sr,
-                    ready_s=e / sr,
-                    f0_hz=f0 if voiced else None,
-                    clarity=row[O_CLARITY],
-                    level_dbfs=row[O_LEVEL],
-                    clipped=row[O_CLIP] != 0.0,
-                    harmonics_db=tuple(row[O_H1:]) if voiced else None,
-                    odd_even_db=row[O_ODD_EVEN] if voiced else None,
-                    register=REGISTER_NAMES[int(row[O_REGISTER])],
-                    jump=JUMP_NAMES[int(row[O_JUMP])],
-                    held_f0_hz=held if held == held else None,
+            if f0 == f0:  # voiced (not nan)
+                append(
+                    Frame(
+                        (e - half) / sr, e / sr, f0, row[O_CLARITY], row[O_LEVEL], row[O_CLIP] != 0.0, tuple(row[O_H1:]),
+                        row[O_ODD_EVEN], REGISTER_NAMES[int(row[O_REGISTER])], JUMP_NAMES[int(row[O_JUMP])],
+                        held if held == held else None,
+                    )  # fmt: skip
                 )
-            )
+            else:
+                append(
+                    Frame(
+                        (e - half) / sr, e / sr, None, row[O_CLARITY], row[O_LEVEL], row[O_CLIP] != 0.0, None, None,
+                        None, None, held if held == held else None,
+                    )  # fmt: skip
+                )
         return frames
 
     def _compile(self) -> None:
@@ -348,7 +352,7 @@ class StreamingAnalyser:
         try:
             for dtype in (_F32, _F64):  # the live input's samples and any other float's
                 store_block(np.empty(4), 0, np.zeros(4, dtype=dtype))
-            self._analyse_chunk(0, [self._n + self._hop * i for i in range(8)])
+            self._analyse_chunk(0, self._n, 8)
         finally:
             self.reset()  # the made-up frames leave no trace
         _compiled = True

@@ -2,7 +2,8 @@
 
 :func:`analyse_chunk` takes up to a chunk of frames out of the analyser's sample store, in
 single precision (rounding noise ~1e-7 of the peak, far under any microphone's floor); takes
-their FFTs (pocketfft, called from inside numba through rocket-fft); measures each frame
+their FFTs (pocketfft, called from inside numba through rocket-fft; one per frame, the newest
+half window's spectrum is read out of it); measures each frame
 (:func:`dsp.measure.measure_frames`); keeps a sounding note voiced on weaker evidence
 (hysteresis); steps the register monitor (:func:`dsp.register.monitor_update`); and, once a
 jump is past a frame's centre while the window still shows the held note (reverberation),
@@ -86,6 +87,8 @@ def analyse_chunk(
     floor: NDArray[np.float64],
     params: NDArray[np.float64],
     hum_hz: NDArray[np.float64],
+    half_offsets: NDArray[np.int64],
+    half_weights: NDArray[np.complex128],
     cfg: NDArray[np.float64],
     st: NDArray[np.float64],
     hist: NDArray[np.float64],
@@ -103,6 +106,7 @@ def analyse_chunk(
     params : :func:`chunk_params`
     hum_hz : (2, k), Hz
         Mains bands rejected (lower and upper edges).
+    half_offsets, half_weights : :func:`dsp.spectrum.newest_half_taps` of n
     cfg, st, hist : the register monitor's arrays (:class:`dsp.register.RegisterMonitor`)
     carry : float64 (2,), updated
         Previous frame's f0 and the count of jumped frames, from the last chunk.
@@ -116,7 +120,6 @@ def analyse_chunk(
     hold = params[_P_HOLD]
     copy_frames(store, first, hop, x32)
     rect = scipy.fft.rfft(x32)
-    rect_fast = scipy.fft.rfft(x32[:, n // 2 :])
     f0_a = np.empty(n_frames)
     clarity_a = np.empty(n_frames)
     level_a = np.empty(n_frames)
@@ -128,7 +131,7 @@ def analyse_chunk(
     odd_even_a = np.empty(n_frames)
     evidence_a = np.empty((n_frames, EVIDENCE_MODES, 4))
     measure_frames(
-        store, first, hop, n, rect, rect_fast, sr, int(params[_P_LO_BIN]), int(params[_P_HI_BIN]),
+        store, first, hop, n, rect, half_offsets, half_weights, sr, int(params[_P_LO_BIN]), int(params[_P_HI_BIN]),
         int(params[_P_FAST_KEEP]), limit_hz, params[_P_FMIN], params[_P_FMAX], hum_hz[0], hum_hz[1], power, floor,
         f0_a, clarity_a, level_a, fast_level_a, clip_a, voiced_a, sustain_a, harm_db_a, odd_even_a, evidence_a,
     )  # fmt: skip

@@ -14,7 +14,9 @@ operation), so a frame's result never depends on the block sizes it was fed in. 
    or 180 Hz) rejected; weaker "sustain" evidence for a note already sounding;
 4. level (whole window and newest quarter), clipping, H1..H8 and odd/even balance;
 5. the register monitor's evidence: powers at ``k f0 / m`` (k = 1..8, m = 1..3) in the
-   newest half window, summarised in dB (:func:`dsp.register.summarise_row`).
+   newest half window, read out of the whole window's DFT
+   (:func:`dsp.spectrum.newest_half_power_at`), summarised in dB
+   (:func:`dsp.register.summarise_row`).
 """
 
 from __future__ import annotations
@@ -28,7 +30,7 @@ from numpy.typing import NDArray
 from dsp.harmonics import N_REPORTED, balance_row
 from dsp.pitch import coarse_f0, refine_f0, strongest_peaks
 from dsp.register import EVIDENCE_HARMONICS, EVIDENCE_MODES, summarise_row
-from dsp.spectrum import band_floor, hann_power, hann_power_at
+from dsp.spectrum import band_floor, hann_power, newest_half_power_at
 
 __all__ = ["CLIP_THRESHOLD", "MAINS_HZ", "MAINS_TOLERANCE", "N_FIT_HARMONICS", "FIT_SNR_DB", "CURVATURE_GAIN", "CURVATURE_NOISE", "copy_frames", "measure_frames"]
 
@@ -107,7 +109,8 @@ def measure_frames(
     hop: int,
     n: int,
     rect: NDArray[np.complex64],
-    rect_fast: NDArray[np.complex64],
+    half_offsets: NDArray[np.int64],
+    half_weights: NDArray[np.complex128],
     sample_rate: float,
     lo_bin: int,
     hi_bin: int,
@@ -138,8 +141,10 @@ def measure_frames(
         Samples.
     first, hop, n : samples
         Start of frame 0 in ``store``, frame step, frame size.
-    rect, rect_fast : complex64, (n_frames, >= keep + 1) and (n_frames, >= fast_keep + 1)
-        Rectangular-window DFT bins of each whole frame (n points) and of its newest half.
+    rect : complex64, (n_frames, n/2 + 1)
+        Rectangular-window DFT of each frame (n points).
+    half_offsets, half_weights : :func:`dsp.spectrum.newest_half_taps`
+        What reads the newest half window's Hann spectrum out of ``rect``.
     sample_rate : Hz
     lo_bin, hi_bin : peak search bins ``lo_bin <= k < hi_bin``
     fast_keep : bins of the half-window spectrum used
@@ -159,6 +164,7 @@ def measure_frames(
     bin_hz = sample_rate / n
     half = n // 2
     fast_hz = sample_rate / half
+    half_power = np.empty(fast_keep)  # newest half window's Hann power, -1 until read
     peak_freq = np.empty(_N_PEAKS)
     peak_pow = np.empty(_N_PEAKS)
     amp = np.empty(N_FIT_HARMONICS)
@@ -237,7 +243,7 @@ def measure_frames(
         sustain_out[i] = usable and clarity >= CLARITY_HOLD and snr_db >= PEAK_SNR_HOLD_DB
         odd_even_out[i] = balance_row(amp, harm_db_out[i])
 
-        rf = rect_fast[i]
+        half_power[:] = -1.0
         for m in range(EVIDENCE_MODES):
             for k in range(EVIDENCE_HARMONICS):
                 pos = f0_safe * (k + 1) / (m + 1)
@@ -245,8 +251,11 @@ def measure_frames(
                     ev[m, k] = 0.0
                     continue
                 c = min(max(int(np.rint(pos / fast_hz)), 1), fast_keep - 2)
-                ev[m, k] = max(
-                    hann_power_at(rf, c - 1, half), hann_power_at(rf, c, half), hann_power_at(rf, c + 1, half)
-                )
+                best = 0.0
+                for j in range(c - 1, c + 2):
+                    if half_power[j] < 0.0:  # bins shared by several hypotheses are read once
+                        half_power[j] = newest_half_power_at(r, j, n, half_offsets, half_weights)
+                    best = max(best, half_power[j])
+                ev[m, k] = best
         summarise_row(ev, evidence_out[i])
 

@@ -19,7 +19,7 @@ import numpy as np
 from numba import njit  # type: ignore[import-untyped]
 from numpy.typing import NDArray
 
-__all__ = ["hann_power", "hann_power_at", "band_floor", "hann_reassigned_bin", "hann2_taps", "hann2_reassigned_bin", "hann_gain"]
+__all__ = ["hann_power", "hann_power_at", "band_floor", "newest_half_taps", "newest_half_power_at", "hann_reassigned_bin", "hann2_taps", "hann2_reassigned_bin", "hann_gain"]
 
 _NOISE_SCALE = 1.0 / -math.log(0.8)  # mean of exponential noise over its 20th percentile
 
@@ -175,3 +175,54 @@ def hann3_reassigned_bin(rect: NDArray[np.complex64], b: int) -> float:
         num += w * (off + c)
         den += w
     return b + num / max(den, 1e-300)
+
+
+NEWEST_HALF_REACH = 23
+"""Odd offsets |m| <= this in :func:`newest_half_taps`: the taps left out weigh <= -72 dB of the
+strongest bin (measured here on synthetic flute tones 131-1175 Hz, jumps included)."""
+
+
+def newest_half_taps(n: int, reach: int = NEWEST_HALF_REACH) -> tuple[NDArray[np.int64], NDArray[np.complex128]]:
+    """Offsets and weights that give the newest half window's Hann spectrum from the whole window's DFT.
+
+    The Hann window over samples ``n/2 .. n-1`` of an ``n``-sample frame (zero before) has
+    the DFT ``G``; by the convolution theorem its windowed spectrum at half-window bin ``j``
+    is ``(1/n) sum_m G[m] R[2j - m]``, ``R`` the frame's rectangular DFT. ``G`` is zero at
+    every even ``m`` but 0 and +-2, and falls as ``1/m^3`` at odd ``m``: the sum is kept to
+    those and to odd ``|m| <= reach``. Weights are normalised as :func:`hann_power_at` of the
+    half window's own ``n/2``-point DFT (a sine of amplitude ``a`` reads ``a^2``).
+    """
+    half = n // 2
+    g = np.zeros(n)
+    g[half:] = 0.5 - 0.5 * np.cos(2.0 * np.pi * np.arange(half) / half)
+    big_g = np.fft.fft(g)
+    offsets = np.array([0, 2, -2, *[m for m in range(-reach, reach + 1) if m % 2]], dtype=np.int64)
+    return offsets, big_g[offsets % n] * (4.0 / half) / n
+
+
+@njit(cache=True, nogil=True)
+def newest_half_power_at(
+    rect: NDArray[np.complex64], j: int, n: int, offsets: NDArray[np.int64], weights: NDArray[np.complex128]
+) -> float:
+    """Hann power of bin ``j`` of the newest half window, from the whole window's DFT (0 at ``j <= 0``).
+
+    ``rect``: the ``n``-point rectangular DFT of a real frame, bins ``0 .. n/2``; bins past
+    either end are read by its symmetry. ``offsets``, ``weights``: :func:`newest_half_taps`.
+    """
+    if j <= 0:
+        return 0.0
+    last = n // 2
+    re = 0.0
+    im = 0.0
+    for t in range(offsets.size):
+        i = 2 * j - offsets[t]
+        if i < 0:
+            v = np.conj(rect[-i])
+        elif i > last:
+            v = np.conj(rect[n - i])
+        else:
+            v = rect[i]
+        w = weights[t]
+        re += w.real * v.real - w.imag * v.imag
+        im += w.real * v.imag + w.imag * v.real
+    return re * re + im * im

@@ -199,7 +199,7 @@ def _prepare_analyser() -> None:
 
     from dsp.analyser import prepare_kernels
 
-    notice = threading.Timer(1.0, _say, ("preparing the analyser (the first start after an install takes a few seconds)",))
+    notice = threading.Timer(1.0, _say, ("preparing the analyser (once after an install: about half a minute)",))
     notice.daemon = True
     notice.start()
     try:

@@ -147,6 +147,34 @@ def test_memory_stays_bounded():
     for _ in range(200):
         an.process(block)
     assert an._buf.size <= an.frame_size + 4096  # the internal buffer never grows
+    assert an._store.size == an._store_size  # nor the store it lives in
+    an.process(np.zeros(48000 * 20, dtype=np.float32))  # one long block grows the store ...
+    assert an._store.size == an._store_size  # ... which is given back at once
+
+
+def test_a_rejected_block_changes_nothing(flute_audio):
+    an = StreamingAnalyser(SR)
+    ref = an.process(flute_audio)
+    an2 = StreamingAnalyser(SR)
+    got = an2.process(flute_audio[:30000])
+    bad = flute_audio[30000:31000].copy()
+    bad[500] = np.inf
+    with pytest.raises(ValueError, match="at sample 500"):
+        an2.process(bad)
+    got += an2.process(flute_audio[30000:])
+    a, b = _fields(ref), _fields(got)
+    for name in a:
+        np.testing.assert_array_equal(a[name], b[name], err_msg=name)
+
+
+def test_any_float_layout_reads_the_same(flute_audio):
+    x = flute_audio[:20000].astype(np.float64)
+    ref = _fields(StreamingAnalyser(SR).process(x))
+    strided = np.repeat(x, 2)[::2]  # a non-contiguous view of the same samples
+    for block in (strided, x.astype(np.float32).astype(np.float64), list(x)):
+        got = _fields(StreamingAnalyser(SR).process(block))
+        for name in ref:
+            np.testing.assert_array_equal(ref[name], got[name], err_msg=name)
 
 
 @pytest.mark.parametrize(
