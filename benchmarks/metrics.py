@@ -114,7 +114,8 @@ class Pool:
 class RegisterScore:
     """Register-change figures of our analyser, pooled over items."""
 
-    follow_delays_s: list[float] = field(default_factory=list)
+    follow_delays_s: list[float] = field(default_factory=list)  # time_s of the following frame - change
+    follow_ready_s: list[float] = field(default_factory=list)  # its ready_s - change
     not_followed: int = 0
     true_jumps: dict[str, int] = field(default_factory=lambda: {"overblown": 0, "vented": 0})
     matched: dict[str, int] = field(default_factory=lambda: {"overblown": 0, "vented": 0})
@@ -150,13 +151,19 @@ class RegisterScore:
             tj = start_s + ev.jump_at_s
             kind = str(ev.jump_kind)
             self.true_jumps[kind] += 1
-            ok = (times >= tj - 0.015) & (times < end_s) & np.isfinite(f0) & np.isfinite(after)
-            ok[ok] &= np.abs(1200 * np.log2(f0[ok] / after[ok])) < 50.0
-            idx = np.flatnonzero(ok)
-            if idx.size:
-                self.follow_delays_s.append(float(ready[idx[0]] - tj))
-            else:
+            # followed: the first frame centred at or after the change from which the reported
+            # pitch stays within 50 c of the sounding one for 50 ms (on the track's own time
+            # axis); its ready_s says when a display could first show it
+            span = np.flatnonzero((times >= tj) & (times < min(end_s - ev.release_s, tj + 0.3)) & np.isfinite(after))
+            est = np.where(np.isfinite(f0[span]), f0[span], 1.0)
+            on_new = np.isfinite(f0[span]) & (np.abs(1200 * np.log2(est / after[span])) < 50.0)
+            hold = max(1, int(round(0.05 / max(float(np.median(np.diff(times))), 1e-6))))
+            found = next((j for j in range(on_new.size - hold + 1) if on_new[j : j + hold].all()), None)
+            if found is None:
                 self.not_followed += 1
+            else:
+                self.follow_delays_s.append(float(times[span[found]] - tj))
+                self.follow_ready_s.append(float(ready[span[found]] - tj))
             best = None
             for j, (r, k) in enumerate(onsets):
                 if j in used or k != kind:

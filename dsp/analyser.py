@@ -20,8 +20,9 @@ mode x held note. Python only checks the block and builds the Frames.
 
 Known limits: the window's smoothing of a vibrato is taken out only to second order (a 40-cent,
 7 Hz vibrato still reads ~0.35 cent off in the median) and not at all below 12 bins of f0
-(~140 Hz at 48 kHz); ready_s - time_s is half a window (43 ms at 48 kHz), so a change is
-followed ~28 ms after it by ready_s at best.
+(~140 Hz at 48 kHz). ready_s - time_s is half a window (43 ms at 48 kHz): after a register
+change the track reads the new pitch from frames centred ~9 ms past it, which are ready ~52 ms
+after it; the jump itself is flagged sooner (~25 ms by ready_s), from the newest half window.
 
 Timing: a frame measures the ``frame_size`` samples ending at sample ``e`` (exclusive);
 ``time_s = (e - frame_size / 2) / sample_rate`` (the centre of the symmetric window) and
