@@ -67,16 +67,28 @@ def band_floor(power: NDArray[np.float64], out: NDArray[np.float64], band_bins: 
     low = np.empty(q + 1)  # the q + 1 smallest values of a band, ascending
     for band in range(n_bands):
         s = band * band_bins
-        for i in range(q + 1):
-            low[i] = np.inf
-        for i in range(s, s + band_bins):
-            v = power[i]
-            if v < low[q]:
-                j = q
-                while j > 0 and low[j - 1] > v:
-                    low[j] = low[j - 1]
-                    j -= 1
-                low[j] = v
+        # insertion without branches (a noisy band's order is unpredictable): each place keeps
+        # its value, takes v, or takes its lower neighbour's, whichever lies between
+        if q == 6:  # 32-bin bands, the analyser's: the seven places kept in registers
+            l0 = l1 = l2 = l3 = l4 = l5 = l6 = np.inf
+            for i in range(s, s + band_bins):
+                v = power[i]
+                l6 = min(l6, max(l5, v))
+                l5 = min(l5, max(l4, v))
+                l4 = min(l4, max(l3, v))
+                l3 = min(l3, max(l2, v))
+                l2 = min(l2, max(l1, v))
+                l1 = min(l1, max(l0, v))
+                l0 = min(l0, v)
+            low[q] = l6
+        else:
+            for i in range(q + 1):
+                low[i] = np.inf
+            for i in range(s, s + band_bins):
+                v = power[i]
+                for j in range(q, 0, -1):
+                    low[j] = min(low[j], max(low[j - 1], v))
+                low[0] = min(low[0], v)
         level = low[q] * _NOISE_SCALE
         stop = n_bins if band == n_bands - 1 else s + band_bins
         for k in range(s, stop):

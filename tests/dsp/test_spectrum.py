@@ -66,3 +66,21 @@ def test_fewer_taps_fail_the_bound():
     bins = range(0, 900)
     err = np.abs(np.sqrt(_ours(x, bins, reach=7)) - np.sqrt(_reference(x)[: len(bins)]))
     assert err.max() > 10 ** (-66 / 20) * np.abs(x).max()
+
+
+@pytest.mark.parametrize("band_bins", [32, 20, 50])
+def test_band_floor_is_the_20th_percentile_of_each_band(band_bins):
+    # outside reference: numpy.partition (the order statistic int(0.2 band) of each band), scaled
+    # by 1 / -ln(0.8), the mean of exponentially distributed noise over its 20th percentile
+    from dsp.spectrum import band_floor
+
+    rng = np.random.default_rng(band_bins)
+    power = rng.exponential(size=858) * np.repeat(rng.uniform(0.1, 10.0, size=858 // 10 + 1), 10)[:858]
+    out = np.empty_like(power)
+    band_floor(power, out, band_bins)
+    q = int(0.2 * band_bins)
+    n_bands = power.size // band_bins
+    for b in range(n_bands):
+        stop = power.size if b == n_bands - 1 else (b + 1) * band_bins
+        want = np.partition(power[b * band_bins : (b + 1) * band_bins], q)[q] / -np.log(0.8)
+        np.testing.assert_allclose(out[b * band_bins : stop], want, rtol=1e-14)  # the right order statistic
