@@ -150,6 +150,9 @@ def test_ctrl_c_in_unattended_run_leaves_a_complete_log(tmp_path):
         stderr=subprocess.PIPE,
         text=True,
         env=env,
+        # Ctrl-C as at a terminal: a test run started in the background (nohup, "&") passes
+        # SIGINT on ignored, and a child that inherits that rightly ignores it
+        preexec_fn=_default_sigint,
     )
     try:
         deadline = time.monotonic() + 30
@@ -168,3 +171,8 @@ def test_ctrl_c_in_unattended_run_leaves_a_complete_log(tmp_path):
     rows = read_frame_log(log)
     assert f"interrupted; the log is complete: {log} ({len(rows)} rows)" in err
     assert log.read_bytes().endswith(b"\r\n")  # closed on a whole row
+
+
+def _default_sigint() -> None:
+    """In the child before exec: SIGINT back to its default action."""
+    signal.signal(signal.SIGINT, signal.SIG_DFL)

@@ -56,6 +56,9 @@ def _start(sig: int, tmp_path) -> Child:  # type: ignore[no-untyped-def]
         stderr=subprocess.PIPE,
         text=True,
         env={**os.environ, "PYTHONUNBUFFERED": "1"},
+        # Ctrl-C as at a terminal: a test run started in the background (nohup, "&") passes
+        # SIGINT on ignored, and a child that inherits that rightly ignores it
+        preexec_fn=_default_sigint,
     )
     child = Child(sig, log, proc)
     for stream, sink in ((proc.stdout, child.stdout), (proc.stderr, child.stderr)):
@@ -169,3 +172,8 @@ def test_sigterm_leaves_a_complete_log_and_says_so(children):
     assert child.returncode in (143, 130, 0), _diagnosis(child)
     assert "log" in child.stderr[-1][1], _diagnosis(child)
     _assert_complete_log(child)
+
+
+def _default_sigint() -> None:
+    """In the child before exec: SIGINT back to its default action."""
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
