@@ -143,7 +143,6 @@ class StreamingAnalyser:
         self._hop = int(hop_size)
         self._fmin = float(fmin_hz)
         self._fmax = float(fmax_hz)
-        self._register_options = dict(register_options)
         self._monitor = RegisterMonitor(self._hop / sr, **register_options)
         self._override_frames = int(math.ceil(self._n / 4 / self._hop))
 

@@ -33,6 +33,7 @@ from dsp.register import (
     OUT_MODE,
     OUT_REGISTER,
     UNVOICED,
+    cents_apart,
     monitor_update,
 )
 
@@ -140,7 +141,7 @@ def analyse_chunk(
     jumped_run = carry[CARRY_JUMPED_RUN]
     for i in range(n_frames):
         f0 = f0_a[i] if voiced_a[i] else np.nan
-        if math.isnan(f0) and not math.isnan(prev) and sustain_a[i] and abs(1200.0 * math.log2(f0_a[i] / prev)) <= hold:
+        if math.isnan(f0) and not math.isnan(prev) and sustain_a[i] and cents_apart(f0_a[i], prev) <= hold:
             f0 = f0_a[i]
         monitor_update(cfg, st, hist, f0, evidence_a[i], fast_level_a[i])
         row = out[i]
@@ -155,7 +156,7 @@ def analyse_chunk(
                 mode > 1
                 and not math.isnan(held)
                 and jumped_run > override
-                and abs(1200.0 * math.log2(f0 / (mode * held))) > 50.0
+                and cents_apart(f0, mode * held) > 50.0
             ):
                 # the held note's odd harmonics may linger (reverberation) while the
                 # octave sounds: measure the sounding note at mode x held. Only once the

@@ -40,7 +40,7 @@ from numpy.typing import NDArray
 
 __all__ = [
     "RegisterMonitor", "RegisterReading", "summarise_row", "monitor_update", "monitor_config", "monitor_arrays",
-    "monitor_reset", "monitor_lock", "EVIDENCE_HARMONICS", "EVIDENCE_MODES",
+    "monitor_reset", "monitor_lock", "cents_apart", "EVIDENCE_HARMONICS", "EVIDENCE_MODES",
 ]  # fmt: skip
 
 EVIDENCE_HARMONICS = 8
@@ -247,8 +247,9 @@ def _start_note(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray
 
 
 @njit(cache=True, nogil=True)
-def _cents(a: float, b: float) -> float:
-    return abs(1200.0 * math.log2(a / b))
+def cents_apart(a_hz: float, b_hz: float) -> float:
+    """Distance between two frequencies, cents (>= 0)."""
+    return abs(1200.0 * math.log2(a_hz / b_hz))
 
 
 @njit(cache=True, nogil=True)
@@ -291,7 +292,7 @@ def monitor_update(
         _clear_note(st, hist)
     ratio = f0_hz / ref
     m = int(np.rint(ratio))
-    related = 1 <= m <= EVIDENCE_MODES and _cents(ratio, m) <= 50.0
+    related = 1 <= m <= EVIDENCE_MODES and cents_apart(ratio, m) <= 50.0
     row = m - 1 if related else 0
     odd_db, even_db = evidence_db[row, 0], evidence_db[row, 1]
     off3_db, mult3_db = evidence_db[row, 2], evidence_db[row, 3]
@@ -307,7 +308,7 @@ def monitor_update(
             # playing another note than the target: no register judgement to make
             _emit(st, STEADY, NO_JUMP, st[_S_TARGET], 1)
             return
-        if not math.isnan(st[_S_PENDING]) and _cents(f0_hz, st[_S_PENDING]) <= 50.0:
+        if not math.isnan(st[_S_PENDING]) and cents_apart(f0_hz, st[_S_PENDING]) <= 50.0:
             st[_S_PENDING_RUN] += 1.0
         else:
             st[_S_PENDING] = f0_hz
@@ -569,8 +570,8 @@ class RegisterMonitor:
     """
 
     def __init__(self, hop_s: float, **options: float) -> None:
-        self.hop_s = float(hop_s) if isinstance(hop_s, (int, float)) else hop_s
-        self._cfg = monitor_config(hop_s, **options)
+        self._cfg = monitor_config(hop_s, **options)  # checks hop_s
+        self.hop_s = float(hop_s)
         self._st, self._hist = monitor_arrays(self._cfg)
 
     def reset(self) -> None:
