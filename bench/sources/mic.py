@@ -354,7 +354,7 @@ class MicSource:
     @property
     def dropped_blocks(self) -> int:
         """Input overflows plus blocks that found the ring full, since construction."""
-        return self._overflows + self.full_drops
+        return self.overflows + self.full_drops
 
     @property
     def overflows(self) -> int:

@@ -439,3 +439,16 @@ def test_c_recording_counts_what_a_full_ring_lost_and_records_again():
     # driver overflows come from the callback's counters, fetched about once a second
     rec.pop(2.0)
     assert rec.overflows == 2
+
+
+def test_mic_source_counts_c_callback_overflows_as_dropped_input():
+    # with the C callback in use, the driver's overflows reach the source through the
+    # recording's counters; they are dropped input like ring-full blocks (common practice:
+    # a tuner that hides lost input misleads)
+    from bench.sources.mic import MicSource
+
+    src = MicSource(None, sample_rate=RATE, block_size=16, ring_blocks=2, clock=ManualClock())
+    src._recording = types.SimpleNamespace(overflows=3, full_drops=1)  # noqa: SLF001
+    assert (src.overflows, src.full_drops, src.dropped_blocks) == (3, 1, 4)
+    src._close()  # noqa: SLF001 - a closed stream's counts are kept
+    assert (src.overflows, src.full_drops, src.dropped_blocks) == (3, 1, 4)
