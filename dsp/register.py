@@ -25,6 +25,12 @@ window), not on a smoothed pitch track:
 * a **new note** (held note replaced) on a voiced pitch that is no mode 1..3 of the held
   note for ``confirm_s``, or on the first voiced frame after ``silence_s`` of silence.
   With :meth:`RegisterMonitor.lock`, the target is the held note and never replaced.
+* **no jump** while energy sits *between* the held note's harmonics (at 3/2, 4/3, 5/3 ...
+  of it) within ``new_note_db`` of the harmonics a jump would keep: a note a fifth or a
+  fourth up, slurred, shares some harmonics with the held note, but a register change
+  sounds none between them. And while a note is still in its warm-up, a higher mode of
+  it that persists for ``confirm_s`` becomes the held note (the first reading was a
+  passing one, such as the common sub-multiple of two overlapping notes in a room).
 """
 
 from __future__ import annotations
@@ -108,7 +114,8 @@ def summarise_row(powers: NDArray[np.float64], out: NDArray[np.float64]) -> None
 # configuration (float64 vector)
 _C_COLLAPSE, _C_DEEP, _C_COLLAPSED_RATIO, _C_EVEN_RISE, _C_WEAKEN, _C_RISE = 0, 1, 2, 3, 4, 5
 _C_SILENCE, _C_CONFIRM, _C_WARMUP, _C_ALPHA, _C_WEAK, _C_REF_FAR, _C_REF_NEAR = 6, 7, 8, 9, 10, 11, 12
-_N_CONFIG = 13
+_C_NEW_NOTE, _C_GRID_SPACING = 13, 14
+_N_CONFIG = 15
 # state (float64 vector; nan stands for "none"; counters are whole numbers)
 _S_TARGET, _S_HELD, _S_STATE, _S_JUMP, _S_MODE, _S_UNVOICED, _S_PENDING, _S_PENDING_RUN = 0, 1, 2, 3, 4, 5, 6, 7
 _S_IN_NOTE, _S_BASE_R2, _S_BASE_R3, _S_WEAK_RUN, _S_BACK_RUN, _S_HIST_POS, _S_INTACT, _S_STEADY_LEVEL = (
@@ -296,6 +303,7 @@ def monitor_update(
     row = m - 1 if related else 0
     odd_db, even_db = evidence_db[row, 0], evidence_db[row, 1]
     off3_db, mult3_db = evidence_db[row, 2], evidence_db[row, 3]
+    off_grid_db = _off_grid_db(cfg, f0_hz, m, evidence_db) if related else -np.inf
     r2 = odd_db - even_db
     r3 = off3_db - mult3_db
     # the held note's odd harmonics intact (no weakening yet): its level is the blowing
@@ -323,8 +331,22 @@ def monitor_update(
             _set_register(st, STEADY, NO_JUMP, 1)
         _emit(st, STEADY, NO_JUMP, st[_S_HELD], 1)
         return
-    st[_S_PENDING] = np.nan
-    st[_S_PENDING_RUN] = 0.0
+    if unlocked and m > 1 and st[_S_STATE] != JUMPED and st[_S_IN_NOTE] < cfg[_C_WARMUP]:
+        # a higher mode of a note only just begun: the held reading was a passing one (two
+        # notes overlapping in a legato step in a reverberant room can read as their common
+        # sub-multiple), and the sounding pitch, once confirmed, is the note
+        if not math.isnan(st[_S_PENDING]) and cents_apart(f0_hz, st[_S_PENDING]) <= 50.0:
+            st[_S_PENDING_RUN] += 1.0
+        else:
+            st[_S_PENDING] = f0_hz
+            st[_S_PENDING_RUN] = 1.0
+        if st[_S_PENDING_RUN] >= cfg[_C_CONFIRM]:
+            _start_note(cfg, st, hist, f0_hz)
+            _steady_update(cfg, st, hist, f0_hz, r2, r3, level_dbfs, even_db, mult3_db, False, 1)
+            return
+    else:
+        st[_S_PENDING] = np.nan
+        st[_S_PENDING_RUN] = 0.0
 
     if st[_S_STATE] == JUMPED:
         _push(cfg, st, hist, level_dbfs, even_db, mult3_db)
@@ -353,7 +375,7 @@ def monitor_update(
         ):
             jump_mode = 0  # no collapse to judge: what _jump_mode finds, without the calls
         else:
-            jump_mode = _jump_mode(cfg, st, hist, m, r2, r3, even_db, mult3_db)
+            jump_mode = _jump_mode(cfg, st, hist, m, r2, r3, even_db, mult3_db, off_grid_db)
         if jump_mode:
             # against the level the note was blown at while steady (~70 ms and more
             # back, before any weakening): a weakening phase loses the held note's
@@ -389,17 +411,53 @@ def monitor_update(
 
 
 @njit(cache=True, nogil=True)
+def _off_grid_db(cfg: NDArray[np.float64], f0_hz: float, m: int, evidence_db: NDArray[np.float64]) -> float:
+    """Energy between the held note's harmonics (dB), for a frame sounding its mode ``m``.
+
+    A register change keeps the sounding partials on the held note's harmonics; a note
+    a fifth, fourth or sixth away puts its own fundamental between them (at 3/2, 4/3,
+    5/3 of the held note). The evidence rows hold those places: powers at ``k f0 / 2``
+    and ``k f0 / 3``. For mode 1 the odd k of the first and the k off the 3s of the
+    second lie between the harmonics; for mode 2 the second's k off the 3s (2/3, 4/3 ...
+    of the held note); for mode 3 the first's odd k (3/2, 9/2 ...). Places closer to a
+    harmonic than ``grid_spacing_hz`` are left out: there the short window cannot part
+    them from the harmonic itself.
+    """
+    held_hz = f0_hz / m
+    halves = held_hz / 2.0 >= cfg[_C_GRID_SPACING]
+    thirds = held_hz / 3.0 >= cfg[_C_GRID_SPACING]
+    out = -np.inf
+    if halves and (m == 1 or m == 3):
+        out = evidence_db[1, 0]
+    if thirds and (m == 1 or m == 2):
+        out = max(out, evidence_db[2, 2])
+    return out
+
+
+@njit(cache=True, nogil=True)
 def _jump_mode(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray[np.float64], m: int, r2: float,
-               r3: float, even_db: float, mult3_db: float) -> int:  # fmt: skip
-    """Mode the pipe jumped to (2 or 3) on this frame's evidence, else 0."""
+               r3: float, even_db: float, mult3_db: float, off_grid_db: float) -> int:  # fmt: skip
+    """Mode the pipe jumped to (2 or 3) on this frame's evidence, else 0.
+
+    ``off_grid_db``: :func:`_off_grid_db`; within ``new_note_db`` of the kept harmonics
+    it is another note arriving (a legato step), no jump.
+    """
     if not math.isnan(st[_S_TARGET]) and (m == 2 or m == 3) and not math.isfinite(st[_S_BASE_R2]):
         # locked, and the note never sounded in the first register: judge the target's
         # own harmonics directly, with no baseline
         ratio = r2 if m == 2 else r3
         return m if ratio <= cfg[_C_COLLAPSED_RATIO] - cfg[_C_COLLAPSE] else 0
-    if (m == 1 or m == 2) and _collapsed(cfg, st, st[_S_BASE_R2] - r2, r2, even_db, hist[_H_EVEN]):
+    if (
+        (m == 1 or m == 2)
+        and off_grid_db < even_db - cfg[_C_NEW_NOTE]
+        and _collapsed(cfg, st, st[_S_BASE_R2] - r2, r2, even_db, hist[_H_EVEN])
+    ):
         return 2
-    if (m == 1 or m == 3) and _collapsed(cfg, st, st[_S_BASE_R3] - r3, r3, mult3_db, hist[_H_MULT3]):
+    if (
+        (m == 1 or m == 3)
+        and off_grid_db < mult3_db - cfg[_C_NEW_NOTE]
+        and _collapsed(cfg, st, st[_S_BASE_R3] - r3, r3, mult3_db, hist[_H_MULT3])
+    ):
         return 3
     return 0
 
@@ -474,6 +532,8 @@ REGISTER_DEFAULTS = {
     "warmup_s": 0.1,
     "baseline_s": 0.15,
     "weaken_hold_s": 0.02,
+    "new_note_db": 10.0,
+    "grid_spacing_hz": 60.0,
 }
 """Default thresholds of :class:`RegisterMonitor` (dB, seconds)."""
 
@@ -506,6 +566,8 @@ def monitor_config(hop_s: float, **options: float) -> NDArray[np.float64]:
     cfg[_C_WARMUP] = int(round(o["warmup_s"] / hop_s))
     cfg[_C_ALPHA] = 1.0 - math.exp(-hop_s / o["baseline_s"])
     cfg[_C_WEAK] = max(1, int(round(o["weaken_hold_s"] / hop_s)))
+    cfg[_C_NEW_NOTE] = o["new_note_db"]
+    cfg[_C_GRID_SPACING] = o["grid_spacing_hz"]
     # reference span for rises: frames 150..70 ms before now
     cfg[_C_REF_FAR] = max(2, int(round(0.15 / hop_s)))
     cfg[_C_REF_NEAR] = max(1, int(round(0.07 / hop_s)))
@@ -559,6 +621,14 @@ class RegisterMonitor:
     weaken_hold_s : float > 0, seconds
         Time the odd/even ratio must stay ``weaken_db`` under its baseline before
         "weakening" is reported.
+    new_note_db : float > 0, dB
+        Energy between the held note's harmonics (at 3/2, 4/3, 5/3 ... f0) within this of
+        the harmonics a jump would keep marks a new note arriving (a legato step up a
+        fifth, fourth or sixth), not a register change.
+    grid_spacing_hz : float > 0, Hz
+        Closest spacing (f0/2, f0/3) at which the in-between energy is judged. The
+        analyser's short window is 43 ms long at 48 kHz: its Hann main lobe reaches
+        47 Hz either side, so 60 Hz leaves the harmonics' own skirts out.
 
     Examples
     --------
