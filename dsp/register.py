@@ -254,6 +254,17 @@ def _start_note(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray
 
 
 @njit(cache=True, nogil=True)
+def _pending_confirmed(cfg: NDArray[np.float64], st: NDArray[np.float64], f0_hz: float) -> bool:
+    """Count ``f0_hz`` toward a new held note; True once it has persisted ``confirm_s``."""
+    if not math.isnan(st[_S_PENDING]) and cents_apart(f0_hz, st[_S_PENDING]) <= 50.0:
+        st[_S_PENDING_RUN] += 1.0
+    else:
+        st[_S_PENDING] = f0_hz
+        st[_S_PENDING_RUN] = 1.0
+    return st[_S_PENDING_RUN] >= cfg[_C_CONFIRM]
+
+
+@njit(cache=True, nogil=True)
 def cents_apart(a_hz: float, b_hz: float) -> float:
     """Distance between two frequencies, cents (>= 0)."""
     return abs(1200.0 * math.log2(a_hz / b_hz))
@@ -316,12 +327,7 @@ def monitor_update(
             # playing another note than the target: no register judgement to make
             _emit(st, STEADY, NO_JUMP, st[_S_TARGET], 1)
             return
-        if not math.isnan(st[_S_PENDING]) and cents_apart(f0_hz, st[_S_PENDING]) <= 50.0:
-            st[_S_PENDING_RUN] += 1.0
-        else:
-            st[_S_PENDING] = f0_hz
-            st[_S_PENDING_RUN] = 1.0
-        if st[_S_PENDING_RUN] >= cfg[_C_CONFIRM]:
+        if _pending_confirmed(cfg, st, f0_hz):
             _start_note(cfg, st, hist, f0_hz)
             _steady_update(cfg, st, hist, f0_hz, r2, r3, level_dbfs, even_db, mult3_db, False, 1)
             return
@@ -335,12 +341,7 @@ def monitor_update(
         # a higher mode of a note only just begun: the held reading was a passing one (two
         # notes overlapping in a legato step in a reverberant room can read as their common
         # sub-multiple), and the sounding pitch, once confirmed, is the note
-        if not math.isnan(st[_S_PENDING]) and cents_apart(f0_hz, st[_S_PENDING]) <= 50.0:
-            st[_S_PENDING_RUN] += 1.0
-        else:
-            st[_S_PENDING] = f0_hz
-            st[_S_PENDING_RUN] = 1.0
-        if st[_S_PENDING_RUN] >= cfg[_C_CONFIRM]:
+        if _pending_confirmed(cfg, st, f0_hz):
             _start_note(cfg, st, hist, f0_hz)
             _steady_update(cfg, st, hist, f0_hz, r2, r3, level_dbfs, even_db, mult3_db, False, 1)
             return
