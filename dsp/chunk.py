@@ -156,12 +156,13 @@ def analyse_chunk(
                 mode > 1
                 and not math.isnan(held)
                 and jumped_run > override
-                and cents_apart(f0, mode * held) > 50.0
+                and cents_apart(f0, held) <= 50.0
             ):
                 # the held note's odd harmonics may linger (reverberation) while the
-                # octave sounds: measure the sounding note at mode x held. Only once the
-                # change is past this frame's centre: the monitor judges the newest half
-                # window, whose centre leads this frame's by a quarter window
+                # octave sounds, and the pitch reads the held note: measure the sounding
+                # note at mode x held. Only once the change is past this frame's centre:
+                # the monitor judges the newest half window, whose centre leads this
+                # frame's by a quarter window
                 f0, _ = refine_f0(
                     rect[i], power[i], floor[i], mode * held, sr / n, n, limit_hz, amp, FIT_SNR_DB, CURVATURE_GAIN,
                     CURVATURE_NOISE,

@@ -311,15 +311,20 @@ def monitor_update(
     ratio = f0_hz / ref
     m = int(np.rint(ratio))
     related = 1 <= m <= EVIDENCE_MODES and cents_apart(ratio, m) <= 50.0
+    if related and unlocked and st[_S_STATE] == JUMPED and m > 1 and m != st[_S_MODE]:
+        # jumped, and now another upper mode sounds: a new note (in a room, a note's tail
+        # can carry the held note into the next one), not the same jump
+        related = False
     row = m - 1 if related else 0
     odd_db, even_db = evidence_db[row, 0], evidence_db[row, 1]
     off3_db, mult3_db = evidence_db[row, 2], evidence_db[row, 3]
     off_grid_db = _off_grid_db(cfg, f0_hz, m, evidence_db) if related else -np.inf
     r2 = odd_db - even_db
     r3 = off3_db - mult3_db
-    # the held note's odd harmonics intact (no weakening yet): its level is the blowing
-    # level a later jump is compared with
-    st[_S_INTACT] = 1.0 if (m == 1 and st[_S_STATE] == STEADY and r2 >= st[_S_BASE_R2] - 2.0) else 0.0
+    # the held note's harmonics intact (neither its odd ones nor those off the 3s weaker
+    # yet): its level is the blowing level a later jump is compared with
+    intact = m == 1 and st[_S_STATE] == STEADY and r2 >= st[_S_BASE_R2] - 2.0 and r3 >= st[_S_BASE_R3] - 2.0
+    st[_S_INTACT] = 1.0 if intact else 0.0
 
     if not related:
         _push(cfg, st, hist, level_dbfs, even_db, mult3_db)
@@ -331,10 +336,12 @@ def monitor_update(
             _start_note(cfg, st, hist, f0_hz)
             _steady_update(cfg, st, hist, f0_hz, r2, r3, level_dbfs, even_db, mult3_db, False, 1)
             return
-        # a pitch that is no register of the held note: whatever the held note did is
-        # over (a jump included); the new note is confirmed on the next frames
+        # a pitch that is no register of the held note, not yet confirmed as a new note:
+        # a jump holds through it (one stray reading in a note's reverberant tail would
+        # otherwise end the jump and report it again on the next frame)
         if st[_S_STATE] == JUMPED:
-            _set_register(st, STEADY, NO_JUMP, 1)
+            _emit(st, JUMPED, int(st[_S_JUMP]), st[_S_HELD], int(st[_S_MODE]))
+            return
         _emit(st, STEADY, NO_JUMP, st[_S_HELD], 1)
         return
     if unlocked and m > 1 and st[_S_STATE] != JUMPED and st[_S_IN_NOTE] < cfg[_C_WARMUP]:

@@ -228,3 +228,47 @@ def test_monitor_alone_tells_a_slurred_fifth_from_a_twelfth():
         r = mon.update(440.0, _evidence(new, 440.0), -20.0)
         outcomes.append((r.register, r.jump, r.mode))
     assert outcomes == [("jumped", "vented", 3), ("steady", None, 1)]
+
+
+def test_a_note_after_a_jumped_one_in_a_room_reads_its_own_pitch():
+    # A reverberant tail keeps the jumped note voiced across the gap; the next note, an
+    # octave above the first one's fingering, is a new note in its first register, not a
+    # continued twelfth: its pitch and register are its own (synthetic truth, exact).
+    notes = [
+        NoteEvent(261.63, 0.8, jump_at_s=0.45, jump_kind="overblown", jump_mode=3, gap_s=0.15),
+        NoteEvent(523.25, 0.8),
+    ]
+    r = render(notes, SR, seed=7, reverb_s=0.5, breath_noise_db=-25.0, room_noise_dbfs=-55.0)
+    frames = StreamingAnalyser(SR).process(r.audio)
+    start_s, end_s, _ = r.notes[1]
+    inside = [f for f in frames if start_s + 0.1 < f.time_s < end_s - 0.1 and f.f0_hz is not None]
+    truth = r.truth(np.array([f.time_s for f in inside])).sounding_f0_hz
+    cents = 1200 * np.log2(np.array([f.f0_hz for f in inside]) / truth)
+    assert len(inside) > 100 and np.max(np.abs(cents)) < 5.0
+    assert all(f.register != "jumped" for f in inside)
+
+
+@pytest.mark.parametrize("f0_hz", [261.63, 523.25, 880.0])
+def test_a_vented_twelfth_after_weakening_is_told_vented(f0_hz):
+    # before a twelfth the harmonics off the multiples of 3 fade (the fundamental with
+    # them, so the level sinks); the blowing level the jump is judged against is the one
+    # from before that fade, so a jump at the same blowing level reads vented
+    r = render([NoteEvent(f0_hz, 0.8, jump_at_s=0.5, jump_kind="vented", jump_mode=3, weaken_s=0.1)], SR, seed=11)
+    frames = StreamingAnalyser(SR).process(r.audio)
+    assert _score(r.jumps, _onsets(frames)) == (1, 1, 0)
+
+
+def test_a_jump_holds_through_one_stray_reading():
+    # in a note's reverberant tail one frame can read another pitch (here twice the
+    # sounding octave); that is no new note until confirmed, so the jump goes on, with
+    # its kind, instead of ending and being reported again
+    mon = RegisterMonitor(0.005)
+    first = _evidence({440.0 * j: p for j, p in enumerate([1.0, 0.2, 0.1, 0.05, 0.03, 0.02, 0.01, 0.005], 1)}, 440.0)
+    octave_partials = {880.0 * j: p for j, p in enumerate([1.0, 0.1, 0.03, 0.01], 1)}
+    octave, stray = _evidence(octave_partials, 880.0), _evidence(octave_partials, 1760.0)
+    for _ in range(60):
+        mon.update(440.0, first, -20.0)
+    readings = [mon.update(880.0, octave, -12.0) for _ in range(10)]  # overblown: +8 dB
+    readings.append(mon.update(1760.0, stray, -16.0))
+    readings += [mon.update(880.0, octave, -16.0) for _ in range(10)]  # the tail fades
+    assert [(r.register, r.jump) for r in readings] == [("jumped", "overblown")] * 21
