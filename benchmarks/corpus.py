@@ -14,6 +14,8 @@ phrases       scales on an alto in F, legato and detached, one overblow
 jumps         overblown octave changes (half with a weakening phase)
 vents         vented octave changes
 silence-hum   digital silence, mains hum 50/60 Hz, room noise: never voiced
+room-jumps    overblown and vented octaves and twelfths in a room: T60 0.5-0.7 s, breath -25 dB,
+              room noise -55 dBFS (scored apart from the dry jumps and vents)
 ============  ===============================================================
 """
 
@@ -32,6 +34,7 @@ from dsp.synth import NoteEvent, Rendering, Score, plan, render  # noqa: E402
 
 CATEGORIES = (
     "steady-clean", "steady", "vibrato", "low", "high", "noisy", "phrases", "jumps", "vents", "silence-hum",
+    "room-jumps",
 )
 
 
@@ -73,6 +76,19 @@ def _jump_notes(rng: np.random.Generator, n: int, kind: str) -> list[NoteEvent]:
 
 
 _ALTO_F_SCALE_HZ = (349.228, 391.995, 440.0, 466.164, 523.251, 587.330, 659.255, 698.456)
+
+
+def _room_jump_notes(rng: np.random.Generator, n: int) -> list[NoteEvent]:
+    out = []
+    for i, f in enumerate(_log_uniform(rng, 250.0, 1100.0, n)):
+        out.append(
+            NoteEvent(
+                float(f), 0.9, level_dbfs=float(rng.uniform(-26, -16)), jump_at_s=float(rng.uniform(0.4, 0.55)),
+                jump_kind=("overblown", "vented")[i % 2], jump_mode=int(rng.choice([2, 2, 3])),  # type: ignore[arg-type]
+                weaken_s=float(rng.choice([0.0, 0.1])), vibrato_cents=float(rng.uniform(0, 10)), gap_s=0.15,
+            )
+        )
+    return out
 
 
 def _phrase(rng: np.random.Generator, n_notes: int) -> list[NoteEvent]:
@@ -137,6 +153,10 @@ def build_corpus(quick: bool, sample_rate: int = 48000, seed: int = 1) -> list[I
         add("silence-hum", _rest(rest_s), 50, 2500, hum_hz=hum_hz, hum_dbfs=hum_dbfs, room_noise_dbfs=-70.0,
             breath_noise_db=-np.inf, _never_voiced=True)
     add("silence-hum", _rest(rest_s), 50, 2500, room_noise_dbfs=-45.0, breath_noise_db=-np.inf, _never_voiced=True)
+    # last, so that the items above stay as they were
+    for _ in range(1 if quick else 3):
+        add("room-jumps", _room_jump_notes(rng, n // 2 + 2), 200, 3500, reverb_s=float(rng.uniform(0.5, 0.7)),
+            breath_noise_db=-25.0, room_noise_dbfs=-55.0)
     return items
 
 

@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 import mir_eval
 import numpy as np
 
+from bench.engine import EVENT_GAP_S
 from corpus import Item
 from methods import Track
 
@@ -135,12 +136,19 @@ class RegisterScore:
         f0 = track.f0_hz
         kinds = [fr.jump for fr in frames]
         regs = [fr.register for fr in frames]
+        # a detection: a jump kind beginning on a voiced frame after one with no jump or
+        # another kind; unvoiced frames are skipped when the last voiced one is under
+        # EVENT_GAP_S back (0.1 s), as the live screen's event list counts them
         onsets: list[tuple[float, str]] = []
-        prev = None
+        prev, last_voiced_s = None, -np.inf
         for fr, k in zip(frames, kinds):
+            if fr.f0_hz is None:
+                continue
+            if fr.time_s - last_voiced_s > EVENT_GAP_S:
+                prev = None
             if k is not None and k != prev:
                 onsets.append((fr.ready_s, k))
-            prev = k
+            prev, last_voiced_s = k, fr.time_s
         for _, k in onsets:
             self.detections[k] = self.detections.get(k, 0) + 1
         used: set[int] = set()

@@ -114,8 +114,8 @@ def summarise_row(powers: NDArray[np.float64], out: NDArray[np.float64]) -> None
 # configuration (float64 vector)
 _C_COLLAPSE, _C_DEEP, _C_COLLAPSED_RATIO, _C_EVEN_RISE, _C_WEAKEN, _C_RISE = 0, 1, 2, 3, 4, 5
 _C_SILENCE, _C_CONFIRM, _C_WARMUP, _C_ALPHA, _C_WEAK, _C_REF_FAR, _C_REF_NEAR = 6, 7, 8, 9, 10, 11, 12
-_C_NEW_NOTE, _C_GRID_SPACING = 13, 14
-_N_CONFIG = 15
+_C_NEW_NOTE, _C_GRID_SPACING, _C_KIND_WAIT, _C_RISING, _C_FADE_SPAN, _C_FADE_DB = 13, 14, 15, 16, 17, 18
+_N_CONFIG = 19
 # state (float64 vector; nan stands for "none"; counters are whole numbers)
 _S_TARGET, _S_HELD, _S_STATE, _S_JUMP, _S_MODE, _S_UNVOICED, _S_PENDING, _S_PENDING_RUN = 0, 1, 2, 3, 4, 5, 6, 7
 _S_IN_NOTE, _S_BASE_R2, _S_BASE_R3, _S_WEAK_RUN, _S_BACK_RUN, _S_HIST_POS, _S_INTACT, _S_STEADY_LEVEL = (
@@ -123,7 +123,8 @@ _S_IN_NOTE, _S_BASE_R2, _S_BASE_R3, _S_WEAK_RUN, _S_BACK_RUN, _S_HIST_POS, _S_IN
 )
 # the last reading: register code, jump code, held note (Hz, nan none), mode
 OUT_REGISTER, OUT_JUMP, OUT_HELD, OUT_MODE = 16, 17, 18, 19
-N_STATE = 20
+_S_KIND_WAITED = 20  # frames a jump's report waited for a still-rising level
+N_STATE = 21
 # history rings, one row each: short-window level, energy on the evens, on the 3s, intact flag
 _H_LEVEL, _H_EVEN, _H_MULT3, _H_STEADY = 0, 1, 2, 3
 
@@ -153,6 +154,7 @@ def _clear_note(st: NDArray[np.float64], hist: NDArray[np.float64]) -> None:
     st[_S_HIST_POS] = 0.0
     st[_S_INTACT] = 0.0
     st[_S_STEADY_LEVEL] = np.nan  # level of the last steady stretch, >= 70 ms back
+    st[_S_KIND_WAITED] = 0.0
 
 
 @njit(cache=True, nogil=True)
@@ -289,9 +291,8 @@ def monitor_update(
     if math.isnan(f0_hz):
         st[_S_INTACT] = 0.0
         st[_S_UNVOICED] += 1.0
-        if st[_S_STATE] == JUMPED:
-            # a jump lasts while the tone does: after a dropout it must be found anew
-            _set_register(st, STEADY, NO_JUMP, 1)
+        # a jump lasts while the tone does: through a dropout shorter than silence_s (a
+        # frame lost in the change itself, or in a reverberant tail), and no longer
         _push(cfg, st, hist, level_dbfs, np.nan, np.nan)
         if st[_S_UNVOICED] >= cfg[_C_SILENCE] and not math.isnan(st[_S_HELD]):
             st[_S_HELD] = st[_S_TARGET]
@@ -324,6 +325,14 @@ def monitor_update(
     # the held note's harmonics intact (neither its odd ones nor those off the 3s weaker
     # yet): its level is the blowing level a later jump is compared with
     intact = m == 1 and st[_S_STATE] == STEADY and r2 >= st[_S_BASE_R2] - 2.0 and r3 >= st[_S_BASE_R3] - 2.0
+    if intact:
+        # nor its level sinking fast (a fade begins in the level before it shows in the
+        # ratios); a diminuendo sinks far slower than 40 dB/s
+        back = int(cfg[_C_FADE_SPAN])
+        pos = int(st[_S_HIST_POS])
+        if pos > back:
+            then = hist[_H_LEVEL, (pos - 1 - back) % hist.shape[1]]
+            intact = not (math.isfinite(then) and level_dbfs - then < -cfg[_C_FADE_DB])
     st[_S_INTACT] = 1.0 if intact else 0.0
 
     if not related:
@@ -394,12 +403,23 @@ def monitor_update(
             # no reference at all (a locked note that started in the upper register):
             # blowing too hard is the usual cause (common practice)
             rise = level_dbfs - ref_level if math.isfinite(ref_level) else np.inf
+            last_level = hist[_H_LEVEL, (int(st[_S_HIST_POS]) - 1) % hist.shape[1]]
+            rising = math.isfinite(last_level) and level_dbfs - last_level >= cfg[_C_RISING]
+            if rise < cfg[_C_RISE] and rising and st[_S_KIND_WAITED] < cfg[_C_KIND_WAIT]:
+                # the level still climbing: an overblown change caught early has not yet
+                # reached its new level (a weakening first lowers it); report a frame later
+                st[_S_KIND_WAITED] += 1.0
+                _push(cfg, st, hist, level_dbfs, even_db, mult3_db)
+                _emit(st, int(st[_S_STATE]), NO_JUMP, _held_or_target(st), 1)
+                return
+            st[_S_KIND_WAITED] = 0.0
             _set_register(st, JUMPED, OVERBLOWN if rise >= cfg[_C_RISE] else VENTED, jump_mode)
             _push(cfg, st, hist, level_dbfs, even_db, mult3_db)
             if unlocked:
                 st[_S_HELD] = f0_hz / m
             _emit(st, JUMPED, int(st[_S_JUMP]), _held_or_target(st), jump_mode)
             return
+        st[_S_KIND_WAITED] = 0.0
         if m > 1:
             # the octave (or twelfth) sounds with no collapse of the held note: a new note
             _push(cfg, st, hist, level_dbfs, even_db, mult3_db)
@@ -542,6 +562,8 @@ REGISTER_DEFAULTS = {
     "weaken_hold_s": 0.02,
     "new_note_db": 10.0,
     "grid_spacing_hz": 60.0,
+    "kind_wait_s": 0.02,
+    "rising_db_per_s": 100.0,
 }
 """Default thresholds of :class:`RegisterMonitor` (dB, seconds)."""
 
@@ -576,6 +598,10 @@ def monitor_config(hop_s: float, **options: float) -> NDArray[np.float64]:
     cfg[_C_WEAK] = max(1, int(round(o["weaken_hold_s"] / hop_s)))
     cfg[_C_NEW_NOTE] = o["new_note_db"]
     cfg[_C_GRID_SPACING] = o["grid_spacing_hz"]
+    cfg[_C_KIND_WAIT] = int(round(o["kind_wait_s"] / hop_s))
+    cfg[_C_RISING] = o["rising_db_per_s"] * hop_s
+    cfg[_C_FADE_SPAN] = max(1, int(round(0.05 / hop_s)))  # 50 ms, within the history ring
+    cfg[_C_FADE_DB] = 2.0  # over 50 ms: 40 dB/s
     # reference span for rises: frames 150..70 ms before now
     cfg[_C_REF_FAR] = max(2, int(round(0.15 / hop_s)))
     cfg[_C_REF_NEAR] = max(1, int(round(0.07 / hop_s)))
@@ -637,6 +663,12 @@ class RegisterMonitor:
         Closest spacing (f0/2, f0/3) at which the in-between energy is judged. The
         analyser's short window is 43 ms long at 48 kHz: its Hann main lobe reaches
         47 Hz either side, so 60 Hz leaves the harmonics' own skirts out.
+    kind_wait_s : float >= 0, seconds
+        Longest a found jump's report waits while the level still climbs faster than
+        ``rising_db_per_s`` and has not yet risen ``rise_db``: caught early, an overblown
+        change has not reached its new level.
+    rising_db_per_s : float > 0, dB/s
+        Climb of the short-window level that counts as still rising.
 
     Examples
     --------

@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from bench.engine import EVENT_GAP_S
 from dsp.analyser import StreamingAnalyser
 from dsp.register import RegisterMonitor, summarise_row
 from dsp.synth import NoteEvent, render
@@ -21,13 +22,21 @@ SR = 48000
 
 
 def _onsets(frames):
-    """(ready_s, jump kind) of each frame where 'jumped' begins."""
+    """(ready_s, jump kind) of each frame where 'jumped' begins.
+
+    Unvoiced frames are passed over when the last voiced one is under EVENT_GAP_S back, as
+    the live screen's event list counts jumps: a frame lost inside a tone is no new jump.
+    """
     out = []
-    prev = None
+    prev, last_voiced_s = None, -np.inf
     for f in frames:
+        if f.f0_hz is None:
+            continue
+        if f.time_s - last_voiced_s > EVENT_GAP_S:
+            prev = None
         if f.register == "jumped" and prev != "jumped":
             out.append((f.ready_s, f.jump))
-        prev = f.register
+        prev, last_voiced_s = f.register, f.time_s
     return out
 
 
@@ -174,8 +183,9 @@ def test_jumps_in_a_reverberant_room():
     r = render(notes, SR, seed=6, reverb_s=0.5)
     frames = StreamingAnalyser(SR).process(r.audio)
     hits, kinds, false = _score(r.jumps, _onsets(frames))
-    # measured here: 8/8 found, kinds right, no false onset; over a larger mixed set with
-    # vibrato and weakening (T60 0.5 s) recall 0.94 and precision 0.88 (target 0.95 not met)
+    # measured here: 8/8 found, kinds right, no false onset; the benchmark's room-jumps
+    # (octaves and twelfths, weakening, breath and room noise, T60 0.5-0.7 s) print the
+    # figures over a larger set
     assert hits >= 7
     assert kinds >= 7
     assert false <= 1
@@ -272,3 +282,37 @@ def test_a_jump_holds_through_one_stray_reading():
     readings.append(mon.update(1760.0, stray, -16.0))
     readings += [mon.update(880.0, octave, -16.0) for _ in range(10)]  # the tail fades
     assert [(r.register, r.jump) for r in readings] == [("jumped", "overblown")] * 21
+
+
+def test_jump_kinds_after_a_weakening_in_a_room():
+    # a weakening lowers the level (the held note's strong odd harmonics fade), and in a
+    # room an overblown change caught early has not reached its new level yet; its kind
+    # waits while the level still climbs. Overblown = the level rose at the change
+    # (common practice; the synth steps +8 dB), vented = kept.
+    notes = [
+        NoteEvent(f, 0.9, jump_at_s=0.5, jump_kind=kind, weaken_s=0.1, gap_s=0.15)
+        for f in (262.0, 330.0, 392.0, 494.0, 587.0, 698.0, 784.0, 880.0)
+        for kind in ("overblown", "vented")
+    ]
+    r = render(notes, SR, seed=0, reverb_s=0.6, breath_noise_db=-25.0, room_noise_dbfs=-55.0)
+    hits, kinds, false = _score(r.jumps, _onsets(StreamingAnalyser(SR).process(r.audio)))
+    assert (hits, false) == (16, 0)
+    assert kinds >= 15  # measured: 15 of 16
+    # judged at once instead, the same audio gives 12 of 16: the test can fail
+    _, kinds_at_once, _ = _score(r.jumps, _onsets(StreamingAnalyser(SR, kind_wait_s=0.0).process(r.audio)))
+    assert kinds_at_once < kinds
+
+
+def test_a_jump_holds_through_a_lost_frame():
+    # a frame lost inside the tone (unvoiced for one hop) is no end of the jump: it goes
+    # on with its kind, although the level has since sunk (a reverberant tail)
+    mon = RegisterMonitor(0.005)
+    first = _evidence({440.0 * j: p for j, p in enumerate([1.0, 0.2, 0.1, 0.05, 0.03, 0.02, 0.01, 0.005], 1)}, 440.0)
+    octave = _evidence({880.0 * j: p for j, p in enumerate([1.0, 0.1, 0.03, 0.01], 1)}, 880.0)
+    for _ in range(60):
+        mon.update(440.0, first, -20.0)
+    before = [mon.update(880.0, octave, -12.0) for _ in range(10)]
+    lost = mon.update(None, octave, -30.0)
+    after = [mon.update(880.0, octave, -18.0) for _ in range(10)]
+    assert lost.register is None
+    assert {(r.register, r.jump) for r in before + after} == {("jumped", "overblown")}
