@@ -24,14 +24,19 @@ GUARD_S = 0.03
 
 
 def _boundaries(item: Item) -> tuple[np.ndarray, np.ndarray, list[tuple[float, float]]]:
-    """Voicing boundary times, register-change times, and reverberant-tail spans."""
+    """Voicing boundary times, register-change times, and reverberant-tail spans.
+
+    A tail span runs from a note's end for ``tail_guard_s``, or to the next note's start.
+    """
     vb, tails = [], []
-    for start_s, end_s, ev in item.rendering.notes:
+    notes = item.rendering.notes
+    for i, (start_s, end_s, ev) in enumerate(notes):
         if ev.level_dbfs < -150:
             continue
         vb += [start_s + ev.attack_s, end_s - ev.release_s]
         if item.tail_guard_s:
-            tails.append((end_s, end_s + item.tail_guard_s))
+            next_s = notes[i + 1][0] if i + 1 < len(notes) else np.inf
+            tails.append((end_s, min(end_s + item.tail_guard_s, next_s)))
     jumps = [t for t, _, _ in item.rendering.jumps]
     return np.array(vb), np.array(jumps), tails
 
