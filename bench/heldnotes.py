@@ -4,9 +4,10 @@
 
 from __future__ import annotations
 
+
 import math
 import statistics
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from bench.tuning import NoteMapping, TuningSettings, map_frequency
 from dsp.frame import Frame
@@ -124,6 +125,10 @@ class HeldNoteTracker:
         if frame.register == "jumped":
             if note.last_register != "jumped":
                 note.events.append(RegisterEvent(frame.time_s, frame.jump or "jump", mapping.note))
+            elif note.events[-1].sounding_note == held_note != mapping.note:
+                # a jump is often seen before the pitch has moved (it is judged on the
+                # newest half window): name the note it went to once the pitch reads it
+                note.events[-1] = replace(note.events[-1], sounding_note=mapping.note)
         elif frame.register == "weakening":
             # one early warning per approach to a jump: flicker in a live room is not news
             if not note.events or note.events[-1].kind != "weakening":

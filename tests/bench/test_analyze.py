@@ -113,6 +113,12 @@ def test_phrase_summary_lists_notes_and_register_events():
         assert expected in held
     kinds = [e.kind for n in result.notes for e in n.events if e.kind != "weakening"]
     assert kinds == [j["kind"] for j in truth["jumps"]]
+    # each jump names the note it went to: the fixture's truth sounds 783.99 Hz and
+    # 1046.50 Hz after them, G5 and C6 in equal temperament at A4 = 440 Hz (MIDI 79 and 84
+    # in f = A4 2^((m - 69)/12), REFERENCES section 1), not the fingered G4 and C5
+    sounding = [e.sounding_note for n in result.notes for e in n.events if e.kind != "weakening"]
+    assert [j["sounding_f0_after_hz"] for j in truth["jumps"]] == [783.99, 1046.502]
+    assert sounding == ["G5", "C6"]
 
 
 def test_folder_with_bad_files_analyses_the_good_and_lists_the_bad(tmp_path, capsys):
