@@ -61,6 +61,9 @@ RETRY_DELAYS_S = (0.5, 1.0, 2.0, 4.0)
 EVENT_GAP_S = 0.1
 """Unvoiced time after which a register state counts as new (fewer repeated events), seconds."""
 
+JUMP_NAME_WAIT_S = 0.06
+"""Longest a jump event waits for the pitch to name the note it went to, seconds."""
+
 MAX_SOURCE_ERRORS = 20
 """Consecutive non-device errors from a source before the engine may give up on it..."""
 
@@ -236,6 +239,7 @@ class Engine:
         self._max_latency_s = 0.0
         self._source_errors = 0
         self._last_register: str | None = None
+        self._pending_jump: Frame | None = None  # a jump seen before its pitch moved
         self._last_voiced_s = -1e9
         self._samples_fed = 0
         self._nonfinite_blocks = 0
@@ -462,6 +466,7 @@ class Engine:
 
     def _finish(self) -> None:
         """Close the log and the source (thread gone, or never started)."""
+        self._flush_pending_jump()
         with self._log_lock:
             log, self._log = self._log, None
         if log is not None:
@@ -518,6 +523,7 @@ class Engine:
                     self._flush_log_if_idle()
                     if self._source.ended:
                         self._state = "ended"
+                        self._flush_pending_jump()
                         self._emit("source_ended", f"{self._source.description}: end of input")
                         break
                     continue
@@ -702,6 +708,7 @@ class Engine:
                 self._emit("source_error", "reading consumer failed; it was detached")
 
     def _check_events(self, frame: Frame, mapping: NoteMapping | None) -> None:
+        self._name_pending_jump(frame)
         register = frame.register
         if register is None:
             return  # an unvoiced frame inside a note is no new event; a real gap resets below
@@ -712,10 +719,34 @@ class Engine:
         if register == previous:
             return
         if register == "jumped":
-            self._emit("jump", _jump_message(frame, self._settings), frame.time_s)
+            if _sounding_moved(frame, self._settings):
+                self._emit("jump", _jump_message(frame, self._settings), frame.time_s)
+            else:
+                self._pending_jump = frame
         elif register == "weakening" and previous == "steady":
             note = mapping.note if mapping is not None else "note"
             self._emit("weakening", f"{note}: register weakening, about to jump", frame.time_s)
+
+    def _name_pending_jump(self, frame: Frame) -> None:
+        """Report a jump seen before its pitch moved, once the pitch names where it went.
+
+        The register monitor judges the newest half window, so a jump is often found while
+        the frame's pitch still reads the fingered note; the event waits for the note it
+        went to, JUMP_NAME_WAIT_S at most.
+        """
+        pending = self._pending_jump
+        if pending is None:
+            return
+        named = frame.register == "jumped" and _sounding_moved(frame, self._settings)
+        ended = frame.register not in ("jumped", None)  # a lost frame does not end it
+        if named or ended or frame.time_s - pending.time_s > JUMP_NAME_WAIT_S:
+            self._pending_jump = None
+            self._emit("jump", _jump_message(frame if named else pending, self._settings), pending.time_s)
+
+    def _flush_pending_jump(self) -> None:
+        pending, self._pending_jump = self._pending_jump, None
+        if pending is not None:
+            self._emit("jump", _jump_message(pending, self._settings), pending.time_s)
 
     def _emit(self, kind: EventKind, message: str, time_s: float | None = None) -> None:
         if time_s is None:
@@ -728,6 +759,12 @@ class Engine:
             callback(EngineEvent(kind, message, float(time_s)))
         except Exception:  # noqa: BLE001 - a UI bug must not stop measuring
             pass
+
+
+def _sounding_moved(frame: Frame, settings: TuningSettings) -> bool:
+    """The frame's pitch names another note than the held one."""
+    held = _note_of(frame.held_f0_hz, settings)
+    return held is None or _note_of(frame.f0_hz, settings) != held
 
 
 def _jump_message(frame: Frame, settings: TuningSettings) -> str:

@@ -332,3 +332,17 @@ def test_a_rate_the_analyser_refuses_is_one_line():
     with pytest.raises(SettingsError, match=r"^cannot analyse scripted test source: sample_rate 8000 Hz is below"):
         engine.start()
     assert not engine.running
+
+
+def test_jump_events_name_the_note_the_pipe_went_to():
+    # The register monitor often finds a jump while the frame's pitch still reads the
+    # fingered note; the event waits (60 ms at most) to name where it went. The fixture's
+    # truth: G4 overblown to 783.99 Hz and C5 vented to 1046.50 Hz, G5 and C6 in equal
+    # temperament at A4 = 440 Hz (MIDI 79 and 84, REFERENCES section 1).
+    audio = Path(__file__).resolve().parents[2] / "test_audio" / "phrase_wren_48k_24bit.wav"
+    events: list[EngineEvent] = []
+    engine = Engine(WavFileSource(audio, block_size=512, realtime=False), TuningSettings(), on_event=events.append)
+    _run_to_end(engine)
+    jumps = [e for e in events if e.kind == "jump"]
+    assert [e.message for e in jumps] == ["G4 overblown: sounding G5", "C5 vented: sounding C6"]
+    assert [round(e.time_s, 1) for e in jumps] == [0.9, 2.8]  # the onsets, not when named
