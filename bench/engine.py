@@ -737,11 +737,11 @@ class Engine:
         pending = self._pending_jump
         if pending is None:
             return
-        named = frame.register == "jumped" and _sounding_moved(frame, self._settings)
-        ended = frame.register not in ("jumped", None)  # a lost frame does not end it
-        if named or ended or frame.time_s - pending.time_s > JUMP_NAME_WAIT_S:
+        if frame.register == "jumped" and _sounding_moved(frame, self._settings):
             self._pending_jump = None
-            self._emit("jump", _jump_message(frame if named else pending, self._settings), pending.time_s)
+            self._emit("jump", _jump_message(frame, self._settings), pending.time_s)
+        elif frame.register not in ("jumped", None) or frame.time_s - pending.time_s > JUMP_NAME_WAIT_S:
+            self._flush_pending_jump()  # over, or waited long enough (a lost frame ends nothing)
 
     def _flush_pending_jump(self) -> None:
         pending, self._pending_jump = self._pending_jump, None

@@ -4,7 +4,6 @@
 
 from __future__ import annotations
 
-
 import math
 import statistics
 from dataclasses import dataclass, field, replace

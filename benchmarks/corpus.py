@@ -156,7 +156,7 @@ def build_corpus(quick: bool, sample_rate: int = 48000, seed: int = 1) -> list[I
     # last, so that the items above stay as they were
     for _ in range(1 if quick else 3):
         t60 = float(rng.uniform(0.5, 0.7))
-        # the tail fills the gaps: voicing is scored only after it, as in "noisy"
+        # the tail fills the gaps: they are left out of the voicing score (tail guard)
         add("room-jumps", _room_jump_notes(rng, n // 2 + 2), 200, 3500, reverb_s=t60,
             breath_noise_db=-25.0, room_noise_dbfs=-55.0, _tail_guard_s=t60)
     return items

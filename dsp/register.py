@@ -16,7 +16,10 @@ window), not on a smoothed pitch track:
   ``collapse_db`` below its baseline *and* either the energy on the multiples of m rose by
   ``even_rise_db`` against ~100 ms earlier (the new mode's fundamental takes over; this
   holds in a reverberant room, where the held note's odd harmonics decay only slowly) or
-  the collapse is total (``deep_collapse_db``). It is reported at the first such frame.
+  the collapse is total (``deep_collapse_db``). It is reported at the first such frame,
+  or up to ``kind_wait_s`` later while the level still climbs (see kind, below). A jump
+  holds through a lost frame and through a stray reading not yet confirmed as a new note;
+  another upper mode after it is a new note.
 * kind: **overblown** when the short-window level rose at least ``rise_db`` against
   ~100 ms before the change (blowing harder: common practice), else **vented** (thumb hole
   cracked open, level kept). Level alone is not trusted to find the jump.
@@ -225,6 +228,15 @@ def _push(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray[np.fl
 
 
 @njit(cache=True, nogil=True)
+def _level_ago(st: NDArray[np.float64], hist: NDArray[np.float64], frames: int) -> float:
+    """Short-window level (dBFS) ``frames`` before the last one pushed; nan when not held."""
+    pos = int(st[_S_HIST_POS])
+    if pos <= frames or frames >= hist.shape[1]:
+        return np.nan
+    return hist[_H_LEVEL, (pos - 1 - frames) % hist.shape[1]]
+
+
+@njit(cache=True, nogil=True)
 def _reference(cfg: NDArray[np.float64], st: NDArray[np.float64], ring: NDArray[np.float64]) -> float:
     """Median of a ring over frames ``ref_far`` .. ``ref_near`` back (nan if none)."""
     near, far, pos = int(cfg[_C_REF_NEAR]), int(cfg[_C_REF_FAR]), int(st[_S_HIST_POS])
@@ -325,14 +337,10 @@ def monitor_update(
     # the held note's harmonics intact (neither its odd ones nor those off the 3s weaker
     # yet): its level is the blowing level a later jump is compared with
     intact = m == 1 and st[_S_STATE] == STEADY and r2 >= st[_S_BASE_R2] - 2.0 and r3 >= st[_S_BASE_R3] - 2.0
-    if intact:
-        # nor its level sinking fast (a fade begins in the level before it shows in the
-        # ratios); a diminuendo sinks far slower than 40 dB/s
-        back = int(cfg[_C_FADE_SPAN])
-        pos = int(st[_S_HIST_POS])
-        if pos > back:
-            then = hist[_H_LEVEL, (pos - 1 - back) % hist.shape[1]]
-            intact = not (math.isfinite(then) and level_dbfs - then < -cfg[_C_FADE_DB])
+    # nor its level sinking fast (a fade begins in the level before it shows in the
+    # ratios); a diminuendo sinks far slower than 40 dB/s
+    if intact and level_dbfs - _level_ago(st, hist, int(cfg[_C_FADE_SPAN])) < -cfg[_C_FADE_DB]:
+        intact = False
     st[_S_INTACT] = 1.0 if intact else 0.0
 
     if not related:
@@ -403,8 +411,7 @@ def monitor_update(
             # no reference at all (a locked note that started in the upper register):
             # blowing too hard is the usual cause (common practice)
             rise = level_dbfs - ref_level if math.isfinite(ref_level) else np.inf
-            last_level = hist[_H_LEVEL, (int(st[_S_HIST_POS]) - 1) % hist.shape[1]]
-            rising = math.isfinite(last_level) and level_dbfs - last_level >= cfg[_C_RISING]
+            rising = level_dbfs - _level_ago(st, hist, 0) >= cfg[_C_RISING]
             if rise < cfg[_C_RISE] and rising and st[_S_KIND_WAITED] < cfg[_C_KIND_WAIT]:
                 # the level still climbing: an overblown change caught early has not yet
                 # reached its new level (a weakening first lowers it); report a frame later
