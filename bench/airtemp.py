@@ -7,7 +7,6 @@ way the value is degrees Celsius and replaces ``temp_c`` in the engine's setting
 
 from __future__ import annotations
 
-import dataclasses
 import re
 import shlex
 import subprocess
@@ -133,7 +132,7 @@ class AirTemperatureFollower:
     Parameters
     ----------
     source : AirTemperatureSource
-    engine : object with ``settings`` and ``set_settings``
+    engine : object with ``settings`` and ``update_settings`` (a :class:`bench.engine.Engine`)
     interval_s : float > 0, seconds
     on_error : callable(str), optional
     """
@@ -166,9 +165,8 @@ class AirTemperatureFollower:
             return None
         self._failing = False
         self.last_temp_c = temp_c
-        settings = self.engine.settings
-        if settings.temp_c != temp_c:
-            self.engine.set_settings(dataclasses.replace(settings, temp_c=temp_c))
+        if self.engine.settings.temp_c != temp_c:
+            self.engine.update_settings(temp_c=temp_c)  # atomic: a change on the screen is kept
         return temp_c
 
     def start(self) -> None:

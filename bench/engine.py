@@ -1,12 +1,19 @@
-"""The engine: source -> analyser -> tuning -> log, in a thread of its own.
+"""The engine: source -> analyser -> mapping -> Reading -> consumers, in a thread of its own.
 
 The engine thread reads blocks from an :class:`~bench.sources.base.AudioSource`, feeds
-them to the streaming analyser, maps each voiced frame onto the tuning in force (or onto
-the locked note), writes a session-log row per frame with the settings it was measured
-under, and publishes the newest :class:`~bench.reading.Reading` by swapping one
-reference. The screen polls :meth:`Engine.latest` and :meth:`Engine.history`; rare
-events (register jump, source ended, device lost...) go to the ``on_event`` callback,
-called from the engine thread (the screen turns them into messages without waiting).
+them to the streaming analyser, maps each frame onto the tuning in force (or onto the locked
+note) with :func:`bench.reading.make_reading`, writes a session-log row per reading, hands
+every reading to the attached consumers (held notes, captures, blowing curve: anything with
+``take`` and ``close``, see :class:`ReadingConsumer`) and publishes the newest
+:class:`~bench.reading.Reading` by swapping one reference. The screen polls
+:meth:`Engine.latest` and :meth:`Engine.history` and sends commands
+(:meth:`Engine.update_settings`, :meth:`Engine.lock`, :meth:`Engine.start_log`); rare events
+(register jump, source ended, device lost...) go to the ``on_event`` callback, called from the
+engine thread (the screen turns them into messages without waiting).
+
+Threads: the engine thread owns the analyser, the lock state and its generation, and runs
+the consumers; :meth:`update_settings` and :meth:`lock` may be called from any thread (the
+screen, a temperature sensor) and are atomic.
 
 The engine never imports textual or sounddevice.
 """
@@ -14,21 +21,22 @@ The engine never imports textual or sounddevice.
 from __future__ import annotations
 
 import collections
+import dataclasses
 import threading
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Literal, Protocol
+from typing import Literal, Protocol
 
 import numpy as np
 from numpy.typing import NDArray
 
 from bench.errors import DeviceError, LogError, SettingsError
 from bench.framelog import CsvFrameLog, new_log_path
-from bench.reading import Reading
+from bench.reading import Reading, make_reading, map_or_none
 from bench.sources.base import AudioSource, Clock
-from bench.tuning import NoteMapping, TuningSettings, map_frequency
+from bench.tuning import TuningSettings, map_frequency
 from bench.tuning.mapping import target_hz_at_air
 from dsp.frame import Frame
 
@@ -42,6 +50,7 @@ EventKind = Literal[
     "log_error",
     "log_started",
     "log_stopped",
+    "consumer_error",
 ]
 EngineState = Literal["idle", "running", "device_lost", "ended", "stopped", "error"]
 
@@ -138,6 +147,31 @@ class EngineStats:
     wall_s: float = 0.0
 
 
+class ReadingConsumer(Protocol):
+    """Something fed every reading on the engine thread: a held-note summary, the session
+    workflow (captures, blowing curve, margins)... ``take`` must return quickly (it runs
+    between two analyser calls) and never wait on the screen; ``close`` is called once when
+    the engine stops (end of input, stop, or an error)."""
+
+    def take(self, reading: Reading) -> None: ...
+
+    def close(self) -> None: ...
+
+
+class ReadingCallback:
+    """A consumer made of one function (``take``) and nothing to close: for benchmarks, tests
+    and small hooks."""
+
+    def __init__(self, take: Callable[[Reading], object]) -> None:
+        self._take = take
+
+    def take(self, reading: Reading) -> None:
+        self._take(reading)
+
+    def close(self) -> None:
+        """Nothing to close."""
+
+
 class Analyser(Protocol):
     """What the engine needs of :class:`dsp.analyser.StreamingAnalyser`."""
 
@@ -158,6 +192,7 @@ class Analyser(Protocol):
 
 
 def _default_analyser_factory(sample_rate: int) -> Analyser:
+    """The project's streaming analyser at ``sample_rate``."""
     from dsp.analyser import StreamingAnalyser
 
     return StreamingAnalyser(sample_rate)
@@ -174,15 +209,19 @@ class Engine:
     settings : TuningSettings
         Settings in force at the start.
     log_path : Path, optional
-        Session log file to write from the start (must not exist yet).
+        Session log file to write from the start (must not exist yet, unless
+        ``log_overwrite``).
+    log_overwrite : bool
+        Replace an existing file at ``log_path`` (``bench analyze`` run again).
     log_rows_per_s : float > 0 or None
         Rows per second written to the log; None writes every frame.
     on_event : callable(EngineEvent), optional
         Called from the engine thread for rare events; must not block.
     analyser_factory : callable(sample_rate) -> analyser
         Builds the streaming analyser; :class:`dsp.analyser.StreamingAnalyser` by default.
-    on_reading : callable(Reading), optional
-        Called from the engine thread with every reading (unattended logging summaries).
+    consumers : sequence of ReadingConsumer
+        Fed every reading on the engine thread, in this order, and closed when the engine
+        stops; more can be attached with :meth:`add_consumer`.
     clock : Clock, optional
         Used for back-off waits and latency; the system clock by default.
     """
@@ -193,10 +232,11 @@ class Engine:
         settings: TuningSettings,
         *,
         log_path: Path | None = None,
+        log_overwrite: bool = False,
         log_rows_per_s: float | None = None,
         on_event: Callable[[EngineEvent], None] | None = None,
-        analyser_factory: Callable[[int], Any] | None = None,
-        on_reading: Callable[[Reading], None] | None = None,
+        analyser_factory: Callable[[int], Analyser] | None = None,
+        consumers: Sequence[ReadingConsumer] = (),
         clock: Clock | None = None,
         batch_s: float = BATCH_S,
     ) -> None:
@@ -207,20 +247,23 @@ class Engine:
         self._source = source
         self._settings = settings
         self._initial_log_path = Path(log_path) if log_path is not None else None
+        self._log_overwrite = bool(log_overwrite)
         self._log_interval_s = None if log_rows_per_s is None else 1.0 / float(log_rows_per_s)
         self._on_event = on_event
-        self._on_reading = on_reading
+        self._consumers: tuple[ReadingConsumer, ...] = tuple(consumers)
+        self._consumers_lock = threading.Lock()
         self._analyser_factory = analyser_factory or _default_analyser_factory
         self._clock = clock
-        self._analyser: Any = None
+        self._analyser: Analyser | None = None
+        self._settings_lock = threading.Lock()
 
         self._latest: Reading | None = None
         self._history: collections.deque[Reading] = collections.deque()
         self._history_lock = threading.Lock()
 
-        self._locked_midi: int | None = None
+        self._locked_midi: int | None = None  # as applied by the engine thread
         self._locked_note: str | None = None
-        self._lock_generation = 0
+        self._lock_request: tuple[int | None] | None = None  # set by lock(), taken by the engine thread
         self._analyser_target_hz: float | None = None
 
         self._log: CsvFrameLog | None = None
@@ -238,9 +281,7 @@ class Engine:
         self._latency_s: float | None = None
         self._max_latency_s = 0.0
         self._source_errors = 0
-        self._last_register: str | None = None
-        self._pending_jump: Frame | None = None  # a jump seen before its pitch moved
-        self._last_voiced_s = -1e9
+        self._jumps = _JumpEvents(self._emit)
         self._samples_fed = 0
         self._nonfinite_blocks = 0
         self._batch_s = max(0.0, float(batch_s))
@@ -274,25 +315,53 @@ class Engine:
         """Settings in force (an immutable object)."""
         return self._settings
 
-    def set_settings(self, s: TuningSettings) -> None:
-        """Replace the settings; the engine picks them up at its next frame."""
-        if not isinstance(s, TuningSettings):
-            raise TypeError(f"settings must be TuningSettings, not {type(s).__name__}")
-        self._settings = s
+    def update_settings(self, **changes: object) -> TuningSettings:
+        """Change some settings in one atomic step; returns the settings now in force.
+
+        Safe from any thread: two callers (the screen and a temperature sensor) never
+        overwrite each other's change. The engine picks the new settings up at its next frame.
+
+        Raises
+        ------
+        SettingsError
+            A value is refused (the settings stay as they were).
+        TypeError
+            An unknown setting name.
+        """
+        with self._settings_lock:
+            new = dataclasses.replace(self._settings, **changes)  # type: ignore[arg-type]
+            self._settings = new
+        return new
 
     def lock(self, midi: int | None) -> None:
-        """Lock the reading to target note ``midi`` (MIDI number), or release with None."""
+        """Lock the reading to target note ``midi`` (MIDI number), or release with None.
+
+        The engine thread applies it before its next frame; :attr:`locked_midi` tells the
+        request at once.
+        """
         if midi is not None:
             midi = int(midi)
             if not 0 <= midi <= 127:
                 raise ValueError(f"MIDI note {midi} is out of range; use 0-127")
-        self._locked_midi = midi
-        self._lock_generation += 1
+        self._lock_request = (midi,)
+        if self._thread is None:  # not running yet: nothing to race with
+            self._take_lock_request()
 
     @property
     def locked_midi(self) -> int | None:
-        """Target note the reading is locked to, or None."""
-        return self._locked_midi
+        """Target note the reading is locked to (or asked to be), or None."""
+        request = self._lock_request
+        return request[0] if request is not None else self._locked_midi
+
+    def add_consumer(self, consumer: ReadingConsumer) -> None:
+        """Feed ``consumer`` every reading from the next frame on (any thread)."""
+        with self._consumers_lock:
+            self._consumers = (*self._consumers, consumer)
+
+    def remove_consumer(self, consumer: ReadingConsumer) -> None:
+        """Stop feeding ``consumer`` (it is not closed: the caller owns it now)."""
+        with self._consumers_lock:
+            self._consumers = tuple(c for c in self._consumers if c is not consumer)
 
     @property
     def log_path(self) -> Path | None:
@@ -398,7 +467,7 @@ class Engine:
                 raise
         if self._initial_log_path is not None:
             try:
-                self._swap_log(CsvFrameLog(self._initial_log_path))
+                self._swap_log(CsvFrameLog(self._initial_log_path, overwrite=self._log_overwrite))
                 self._emit("log_started", f"logging to {self._initial_log_path}")
             except LogError as exc:
                 self._emit("log_error", f"{exc}; measuring goes on without a log")
@@ -407,7 +476,7 @@ class Engine:
         self._thread = threading.Thread(target=self._run, name="bench-engine", daemon=True)
         self._thread.start()
 
-    def _build_analyser(self) -> Any:
+    def _build_analyser(self) -> Analyser:
         """The analyser for the source's rate; a rate it refuses is one SettingsError line."""
         rate = int(self._source.sample_rate)
         try:
@@ -465,8 +534,15 @@ class Engine:
                 self._emit("log_error", f"closing the log {log.path} failed: {exc}")
 
     def _finish(self) -> None:
-        """Close the log and the source (thread gone, or never started)."""
-        self._flush_pending_jump()
+        """Close the consumers, the log and the source (thread gone, or never started)."""
+        self._jumps.flush()
+        with self._consumers_lock:
+            consumers, self._consumers = self._consumers, ()
+        for consumer in consumers:
+            try:
+                consumer.close()
+            except Exception as exc:  # noqa: BLE001 - one consumer's fault must not lose the log
+                self._emit("consumer_error", f"closing {type(consumer).__name__} failed: {exc}")
         with self._log_lock:
             log, self._log = self._log, None
         if log is not None:
@@ -483,14 +559,15 @@ class Engine:
 
     def _run(self) -> None:
         cpu0_s = time.thread_time()
-        applied_generation, applied_settings = -1, None
+        applied_settings: TuningSettings | None = None
         consecutive_errors, error_wait_s = 0, 0.0
         try:
             while not self._stop_event.is_set():
                 settings = self._settings
-                if self._lock_generation != applied_generation or settings is not applied_settings:
+                if self._lock_request is not None or settings is not applied_settings:
                     # the analyser is told in this thread only (it is not thread-safe)
-                    applied_generation, applied_settings = self._lock_generation, settings
+                    self._take_lock_request()
+                    applied_settings = settings
                     self._apply_lock(settings)
                 try:
                     block = self._source.read(READ_TIMEOUT_S)
@@ -523,7 +600,7 @@ class Engine:
                     self._flush_log_if_idle()
                     if self._source.ended:
                         self._state = "ended"
-                        self._flush_pending_jump()
+                        self._jumps.flush()
                         self._emit("source_ended", f"{self._source.description}: end of input")
                         break
                     continue
@@ -552,7 +629,14 @@ class Engine:
         self._clock.sleep(seconds)
         return self._stop_event.is_set()
 
+    def _take_lock_request(self) -> None:
+        """Apply the newest lock request (engine thread, or before it starts)."""
+        request, self._lock_request = self._lock_request, None
+        if request is not None:
+            self._locked_midi = request[0]
+
     def _apply_lock(self, settings: TuningSettings) -> None:
+        assert self._analyser is not None
         midi = self._locked_midi
         target_hz = None
         if midi is not None:
@@ -566,9 +650,9 @@ class Engine:
         try:
             self._analyser.lock(target_hz)
         except ValueError as exc:
+            name = self._locked_note or str(midi)
             self._locked_midi, self._locked_note = None, None
-            self._lock_generation += 1
-            self._emit("source_error", f"cannot lock to {target.note}: {exc}")
+            self._emit("source_error", f"cannot lock to {name}: {exc}")
             return
         self._analyser_target_hz = target_hz
 
@@ -620,6 +704,7 @@ class Engine:
         self._process_block(block, self._now())
 
     def _process_block(self, block: NDArray[np.float32], arrival_s: float) -> None:
+        assert self._analyser is not None
         if not np.isfinite(block).all():
             # a driver glitch or a damaged file: silence the bad samples (dsp refuses them)
             block = np.where(np.isfinite(block), block, np.float32(0.0)).astype(np.float32)
@@ -637,7 +722,7 @@ class Engine:
             return
         sample_rate = float(self._analyser.sample_rate)
         block_end_s = self._samples_fed / sample_rate
-        input_latency_s = float(getattr(self._source, "input_latency_s", 0.0) or 0.0)
+        input_latency_s = self._source.input_latency_s
         dropped = int(self._source.dropped_blocks)
         with self._log_lock:
             log = self._log
@@ -645,25 +730,23 @@ class Engine:
             for frame in frames:
                 settings = self._settings  # read once per frame
                 locked = self._locked_midi
-                mapping = self._map(frame, settings, locked)
-                reading = Reading(
-                    frame=frame,
-                    mapping=mapping,
-                    settings=settings,
+                reading = make_reading(
+                    frame,
+                    settings,
                     locked_midi=locked,
-                    stream_time_s=frame.time_s,
+                    locked_note=self._locked_note if locked is not None else None,
                     dropped_blocks=dropped,
                     log_path=log_path,
                 )
                 if log is not None and self._log_due(frame.time_s):
                     try:
-                        log.write(frame, mapping, settings, self._locked_note if locked is not None else None)
+                        log.write(reading)
                         self._log_rows += 1
                     except (OSError, LogError) as exc:
                         self._log_failed(log, exc)
                         log, log_path = None, None
                 self._publish(reading)
-                self._check_events(frame, mapping)
+                self._jumps.take(reading)
         now_s = self._now()
         for frame in frames[-1:]:
             heard_s = arrival_s - (block_end_s - frame.time_s)
@@ -683,15 +766,6 @@ class Engine:
             return True
         return False
 
-    @staticmethod
-    def _map(frame: Frame, settings: TuningSettings, locked: int | None) -> NoteMapping | None:
-        if frame.f0_hz is None or not frame.f0_hz > 0:
-            return None
-        try:
-            return map_frequency(frame.f0_hz, settings, locked)
-        except (ValueError, ArithmeticError):
-            return None
-
     def _publish(self, reading: Reading) -> None:
         self._frames += 1
         with self._history_lock:
@@ -700,58 +774,18 @@ class Engine:
             while self._history[0].stream_time_s < oldest_s:
                 self._history.popleft()
         self._latest = reading  # one reference swap: readers never wait
-        if self._on_reading is not None:
+        for consumer in self._consumers:
             try:
-                self._on_reading(reading)
-            except Exception:  # noqa: BLE001 - a consumer's bug must not stop measuring
-                self._on_reading = None
-                self._emit("source_error", "reading consumer failed; it was detached")
-
-    def _check_events(self, frame: Frame, mapping: NoteMapping | None) -> None:
-        self._name_pending_jump(frame)
-        register = frame.register
-        if register is None:
-            return  # an unvoiced frame inside a note is no new event; a real gap resets below
-        previous = self._last_register
-        if frame.time_s - self._last_voiced_s > EVENT_GAP_S:
-            previous = None
-        self._last_register, self._last_voiced_s = register, frame.time_s
-        if register == previous:
-            return
-        if register == "jumped":
-            if _sounding_moved(frame, self._settings):
-                self._emit("jump", _jump_message(frame, self._settings), frame.time_s)
-            else:
-                self._pending_jump = frame
-        elif register == "weakening" and previous == "steady":
-            note = mapping.note if mapping is not None else "note"
-            self._emit("weakening", f"{note}: register weakening, about to jump", frame.time_s)
-
-    def _name_pending_jump(self, frame: Frame) -> None:
-        """Report a jump seen before its pitch moved, once the pitch names where it went.
-
-        The register monitor judges the newest half window, so a jump is often found while
-        the frame's pitch still reads the fingered note; the event waits for the note it
-        went to, JUMP_NAME_WAIT_S at most.
-        """
-        pending = self._pending_jump
-        if pending is None:
-            return
-        if frame.register == "jumped" and _sounding_moved(frame, self._settings):
-            self._pending_jump = None
-            self._emit("jump", _jump_message(frame, self._settings), pending.time_s)
-        elif frame.register not in ("jumped", None) or frame.time_s - pending.time_s > JUMP_NAME_WAIT_S:
-            self._flush_pending_jump()  # over, or waited long enough (a lost frame ends nothing)
-
-    def _flush_pending_jump(self) -> None:
-        pending, self._pending_jump = self._pending_jump, None
-        if pending is not None:
-            self._emit("jump", _jump_message(pending, self._settings), pending.time_s)
+                consumer.take(reading)
+            except Exception as exc:  # noqa: BLE001 - a consumer's bug must not stop measuring
+                self.remove_consumer(consumer)
+                self._emit(
+                    "consumer_error", f"{type(consumer).__name__} failed and was detached: {type(exc).__name__}: {exc}"
+                )
 
     def _emit(self, kind: EventKind, message: str, time_s: float | None = None) -> None:
         if time_s is None:
-            rate = max(int(getattr(self._source, "sample_rate", 1) or 1), 1)
-            time_s = self._samples_fed / rate
+            time_s = self._samples_fed / max(int(self._source.sample_rate), 1)
         callback = self._on_event
         if callback is None:
             return
@@ -761,25 +795,76 @@ class Engine:
             pass
 
 
-def _sounding_moved(frame: Frame, settings: TuningSettings) -> bool:
-    """The frame's pitch names another note than the held one."""
-    held = _note_of(frame.held_f0_hz, settings)
-    return held is None or _note_of(frame.f0_hz, settings) != held
+class _JumpEvents:
+    """Names register events for the event list: a consumer of readings on the engine thread.
+
+    A jump is reported once per change of register state (unvoiced time under
+    :data:`EVENT_GAP_S` is no change), named "<fingered> <kind>: sounding <note>". The register
+    monitor judges the newest half window, so a jump is often found while the reading's pitch
+    still names the fingered note: the event then waits for the note it went to,
+    :data:`JUMP_NAME_WAIT_S` at most.
+    """
+
+    def __init__(self, emit: Callable[[EventKind, str, float | None], None]) -> None:
+        self._emit = emit
+        self._last_register: str | None = None
+        self._last_voiced_s = -1e9
+        self._pending: Reading | None = None  # a jump seen before its pitch moved
+
+    def take(self, reading: Reading) -> None:
+        self._name_pending(reading)
+        register = reading.frame.register if reading.voiced else None
+        if register is None:
+            return  # an unvoiced frame inside a note is no new event; a real gap resets below
+        time_s = reading.time_s
+        previous = self._last_register
+        if time_s - self._last_voiced_s > EVENT_GAP_S:
+            previous = None
+        self._last_register, self._last_voiced_s = register, time_s
+        if register == previous:
+            return
+        if register == "jumped":
+            if _sounding_moved(reading):
+                self._emit("jump", _jump_message(reading), time_s)
+            else:
+                self._pending = reading
+        elif register == "weakening" and previous == "steady":
+            self._emit("weakening", f"{reading.note or 'note'}: register weakening, about to jump", time_s)
+
+    def _name_pending(self, reading: Reading) -> None:
+        pending = self._pending
+        if pending is None:
+            return
+        register = reading.frame.register if reading.voiced else None
+        if register == "jumped" and _sounding_moved(reading):
+            self._pending = None
+            self._emit("jump", _jump_message(reading), pending.time_s)
+        elif register not in ("jumped", None) or reading.time_s - pending.time_s > JUMP_NAME_WAIT_S:
+            self.flush()  # over, or waited long enough (a lost frame ends nothing)
+
+    def flush(self) -> None:
+        """Report a jump still waiting for its name (end of input)."""
+        pending, self._pending = self._pending, None
+        if pending is not None:
+            self._emit("jump", _jump_message(pending), pending.time_s)
 
 
-def _jump_message(frame: Frame, settings: TuningSettings) -> str:
+def _sounding_moved(reading: Reading) -> bool:
+    """The reading's pitch names another note than the held one."""
+    held = _note_of(reading.frame.held_f0_hz, reading.settings)
+    return held is None or _note_of(reading.frame.f0_hz, reading.settings) != held
+
+
+def _jump_message(reading: Reading) -> str:
+    frame = reading.frame
     kind = frame.jump or "register jump"
-    sounding = _note_of(frame.f0_hz, settings)
-    held = _note_of(frame.held_f0_hz, settings)
+    sounding = _note_of(frame.f0_hz, reading.settings)
+    held = _note_of(frame.held_f0_hz, reading.settings)
     if held and sounding and held != sounding:
         return f"{held} {kind}: sounding {sounding}"
     return f"{sounding or 'note'} {kind}"
 
 
 def _note_of(freq_hz: float | None, settings: TuningSettings) -> str | None:
-    if freq_hz is None or not freq_hz > 0:
-        return None
-    try:
-        return map_frequency(freq_hz, settings).note
-    except (ValueError, ArithmeticError):
-        return None
+    mapping = map_or_none(freq_hz, settings)
+    return mapping.note if mapping is not None else None

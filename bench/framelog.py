@@ -9,17 +9,20 @@ columns empty. Every row carries the settings in force when it was measured.
 from __future__ import annotations
 
 import csv
+import functools
 import io
 import math
 import os
 import time
-from collections.abc import Iterator
+from collections.abc import Callable, Iterable, Iterator, Mapping
 from datetime import datetime
 from pathlib import Path
 
-from bench.errors import LogError
-from bench.tuning import NoteMapping, TuningSettings
-from dsp.frame import Frame
+from bench.errors import LogError, SettingsError
+from bench.reading import Reading, make_reading
+from bench.tuning import NoteMapping, Temperament, TuningSettings
+from bench.tuning.notes import parse_note
+from dsp.frame import Frame, JumpKind, RegisterState
 
 FRAME_LOG_COLUMNS: tuple[str, ...] = (
     "time_s", "ready_s", "f0_hz", "clarity", "level_dbfs", "note", "target_hz",
@@ -29,7 +32,7 @@ FRAME_LOG_COLUMNS: tuple[str, ...] = (
 )  # fmt: skip
 """Columns every frame log starts with, in this order."""
 
-EXTRA_COLUMNS: tuple[str, ...] = ("clipped", "held_f0_hz", "locked_note", "rh_percent")
+EXTRA_COLUMNS: tuple[str, ...] = ("clipped", "held_f0_hz", "locked_note", "rh_percent", "held_note")
 """Columns that follow, in this order (more may be added at the end)."""
 
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
@@ -62,15 +65,11 @@ def number_cell(value: float | None, digits: int) -> str:
     return f"{value:.{digits}f}"
 
 
-def frame_row(
-    frame: Frame,
-    mapping: NoteMapping | None,
-    settings: TuningSettings,
-    locked_note: str | None = None,
-) -> list[str]:
-    """One CSV row (all cells as text) for a frame, its mapping and the settings in force."""
-    voiced = frame.f0_hz is not None and mapping is not None
-    harm = frame.harmonics_db if voiced and frame.harmonics_db is not None else (None,) * 8
+def frame_row(reading: Reading) -> list[str]:
+    """One CSV row (all cells as text) for a reading: its frame, note and settings."""
+    frame, mapping, settings = reading.frame, reading.mapping, reading.settings
+    voiced = reading.voiced
+    harm = reading.harmonics_db
     row = [
         number_cell(frame.time_s, 6),
         number_cell(frame.ready_s, 6),
@@ -81,8 +80,8 @@ def frame_row(
         number_cell(mapping.target_hz, 4) if voiced and mapping else "",
         number_cell(mapping.cents_raw, 3) if voiced and mapping else "",
         number_cell(mapping.cents, 3) if voiced and mapping else "",
-        (frame.register or "") if voiced else "",
-        (frame.jump or "") if voiced and frame.register == "jumped" else "",
+        reading.register_state,
+        reading.jump,
         number_cell(frame.odd_even_db, 2) if voiced else "",
         *(number_cell(h, 2) if h is not None else "" for h in harm),
         safe_cell(str(settings.temperament)),
@@ -92,8 +91,9 @@ def frame_row(
         number_cell(settings.ref_temp_c, 2),
         "1" if frame.clipped else "0",
         number_cell(frame.held_f0_hz, 4) if voiced else "",
-        safe_cell(locked_note or ""),
+        safe_cell(reading.locked_note or "") if reading.locked_midi is not None else "",
         number_cell(settings.rh_percent, 1) if settings.rh_percent is not None else "",
+        safe_cell(reading.held_note) if voiced else "",
     ]
     return row
 
@@ -140,7 +140,7 @@ class CsvFrameLog:
         flush_interval_s: float = 0.5,
         fsync: bool = False,
         overwrite: bool = False,
-        clock=time.monotonic,
+        clock: Callable[[], float] = time.monotonic,
     ) -> None:
         self.path = Path(path)
         self.flush_interval_s = float(flush_interval_s)
@@ -167,15 +167,9 @@ class CsvFrameLog:
     def closed(self) -> bool:
         return self._file is None
 
-    def write(
-        self,
-        frame: Frame,
-        mapping: NoteMapping | None,
-        settings: TuningSettings,
-        locked_note: str | None = None,
-    ) -> None:
-        """Append one row; flushes when the interval has passed. Raises LogError on failure."""
-        self.write_row(frame_row(frame, mapping, settings, locked_note))
+    def write(self, reading: Reading) -> None:
+        """Append one reading's row; flushes when the interval has passed. Raises LogError on failure."""
+        self.write_row(frame_row(reading))
 
     def write_row(self, row: list[str]) -> None:
         """Append one prepared row (see :func:`frame_row`)."""
@@ -285,3 +279,124 @@ def iter_frame_log(path: Path | str) -> Iterator[dict[str, str]]:
 def read_frame_log(path: Path | str) -> list[dict[str, str]]:
     """All rows of a frame log; see :func:`iter_frame_log`."""
     return list(iter_frame_log(path))
+
+
+# --- reading a log back as readings -----------------------------------------------------------
+
+_REGISTER_STATES: dict[str, RegisterState] = {"steady": "steady", "weakening": "weakening", "jumped": "jumped"}
+_JUMP_KINDS: dict[str, JumpKind] = {"overblown": "overblown", "vented": "vented"}
+
+
+def _num(text: str | None) -> float | None:
+    text = (text or "").strip()
+    if not text:
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        return None
+    return None if math.isnan(value) else value
+
+
+def _unquote(text: str | None) -> str:
+    """Undo :func:`safe_cell` on a read cell."""
+    text = text or ""
+    if len(text) > 1 and text[0] == "'" and text[1] in "=+-@\t\r":
+        return text[1:]
+    return text
+
+
+def _midi_or_none(name: str) -> int | None:
+    if not name:
+        return None
+    try:
+        return parse_note(name)
+    except (SettingsError, ValueError):
+        return None
+
+
+@functools.lru_cache(maxsize=64)
+def _settings_of(temperament: str, tonic: str, a4_hz: float, temp_c: float, ref_temp_c: float,
+                 rh_percent: float | None) -> TuningSettings:  # fmt: skip
+    """The settings a row was written under. A temperament this installation does not know
+    (one read from a file at the time) stands in with no offsets: the row's own note, target
+    and cents are what was measured, and they are kept as written."""
+    try:
+        return TuningSettings(a4_hz, temperament, tonic, temp_c, ref_temp_c, rh_percent)
+    except SettingsError:
+        stand_in = Temperament(temperament, temperament, "recorded in a frame log; offsets not known here", (0.0,) * 12)
+        return TuningSettings(a4_hz, temperament, tonic, temp_c, ref_temp_c, rh_percent,
+                              custom_temperament=stand_in)  # fmt: skip
+
+
+def reading_from_row(row: Mapping[str, str]) -> Reading:
+    """The :class:`~bench.reading.Reading` a frame-log row was written from.
+
+    The note, target and cents are taken as written (they are what was measured under the
+    row's settings); the held note likewise when the log has the ``held_note`` column, else it
+    is mapped from ``held_f0_hz`` under the row's settings.
+
+    Raises
+    ------
+    LogError
+        The row's settings are not valid (an edited log); the message names the value.
+    """
+    f0 = _num(row.get("f0_hz"))
+    note = _unquote(row.get("note")).strip()
+    midi = _midi_or_none(note)
+    target, cents_raw, cents = _num(row.get("target_hz")), _num(row.get("cents_raw")), _num(row.get("cents"))
+    voiced = f0 is not None and midi is not None and target is not None and cents is not None
+    harm = tuple(_num(row.get(f"h{k}_db")) for k in range(1, 9))
+    level = _num(row.get("level_dbfs"))
+    frame = Frame(
+        time_s=_num(row.get("time_s")) or 0.0,
+        ready_s=_num(row.get("ready_s")) or 0.0,
+        f0_hz=f0 if voiced else None,
+        clarity=_num(row.get("clarity")) or 0.0,
+        level_dbfs=level if level is not None else -math.inf,
+        clipped=(row.get("clipped") or "0").strip() == "1",
+        harmonics_db=tuple(h if h is not None else -math.inf for h in harm) if voiced and harm[0] is not None else None,
+        odd_even_db=_num(row.get("odd_even_db")) if voiced else None,
+        register=_REGISTER_STATES.get((row.get("register") or "").strip()) if voiced else None,
+        jump=_JUMP_KINDS.get((row.get("jump") or "").strip()) if voiced else None,
+        held_f0_hz=_num(row.get("held_f0_hz")) if voiced else None,
+    )
+    rh = _num(row.get("rh_percent"))
+    try:
+        settings = _settings_of(
+            _unquote(row.get("temperament")) or "equal", _unquote(row.get("tonic")) or "C",
+            _num(row.get("a4_hz")) or 440.0, _num(row.get("temp_c")) or 20.0,
+            _num(row.get("ref_temp_c")) or 20.0, rh,
+        )  # fmt: skip
+    except SettingsError as exc:
+        raise LogError(f"a frame-log row at {frame.time_s:.3f} s holds settings bench does not take: {exc}") from None
+    locked_note = _unquote(row.get("locked_note")).strip() or None
+    locked_midi = _midi_or_none(locked_note or "")
+    mapping = None
+    if voiced:
+        assert midi is not None and target is not None and cents is not None
+        mapping = NoteMapping(midi, note, target, cents_raw if cents_raw is not None else cents, cents)
+    reading = make_reading(frame, settings, locked_midi=locked_midi, locked_note=locked_note)
+    held = reading.held
+    held_name = _unquote(row.get("held_note")).strip()
+    held_midi = _midi_or_none(held_name)
+    if mapping is not None and held_midi is not None and (held is None or held.midi != held_midi):
+        held = NoteMapping(held_midi, held_name, held.target_hz if held else target, held.cents_raw if held else 0.0,
+                           held.cents if held else 0.0)  # fmt: skip
+    if mapping is not None and (frame.held_f0_hz is None or frame.held_f0_hz == f0) and held_midi is None:
+        held = mapping
+    return Reading(
+        frame=frame, mapping=mapping, held=held if mapping is not None else None, settings=settings,
+        key=reading.key, locked_midi=locked_midi, locked_note=locked_note,
+    )  # fmt: skip
+
+
+def readings_from_rows(rows: Iterable[Mapping[str, str]]) -> Iterator[Reading]:
+    """:func:`reading_from_row` over rows (as :func:`iter_frame_log` gives them)."""
+    for row in rows:
+        yield reading_from_row(row)
+
+
+def iter_readings(path: Path | str) -> Iterator[Reading]:
+    """The readings of a frame log, one at a time (see :func:`iter_frame_log`)."""
+    return readings_from_rows(iter_frame_log(path))

@@ -1,22 +1,17 @@
-"""Group analysed frames into held notes, for the per-note summaries of
-``bench analyze`` and unattended logging.
+"""Held-note summaries for ``bench analyze`` and unattended runs: one line per held note
+(cut by :class:`bench.segment.NoteSegmenter`) with its median cents, spread, level and register
+events.
 """
 
 from __future__ import annotations
 
 import math
 import statistics
+from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 
-from bench.tuning import NoteMapping, TuningSettings, map_frequency
-from dsp.frame import Frame
-
-ATTACK_SKIP_S = 0.06
-"""Start of a note left out of its cents statistics (the attack transient), seconds."""
-MIN_NOTE_S = 0.08
-"""Voiced stretches shorter than this are blips, not notes, seconds."""
-GAP_S = 0.05
-"""Unvoiced time that ends a note, seconds."""
+from bench.reading import Reading
+from bench.segment import ATTACK_S, MIN_NOTE_S, NoteSegmenter
 
 
 @dataclass(frozen=True, slots=True)
@@ -38,7 +33,7 @@ class HeldNote:
     note : str
         The held (fingered) note.
     median_cents : float or None, cents
-        Median corrected offset over the note's first-register frames after the attack.
+        Median corrected offset over the note's first-register readings after the attack.
     spread_cents : float or None, cents
         Half the interquartile range of the same frames.
     level_dbfs : float, dBFS
@@ -78,67 +73,65 @@ class _Open:
     start_s: float
     last_voiced_s: float
     cents: list[float] = field(default_factory=list)
+    attack_cents: list[float] = field(default_factory=list)
     levels: list[float] = field(default_factory=list)
     events: list[RegisterEvent] = field(default_factory=list)
     last_register: str | None = None
 
 
 class HeldNoteTracker:
-    """Fed (frame, mapping, settings) one frame at a time; returns each held note when it ends."""
+    """Fed one reading at a time; returns each held note when it ends.
+
+    Notes start and end as :class:`bench.segment.NoteSegmenter` says; a note's cents are its
+    first-register readings after the attack (:data:`bench.segment.ATTACK_S`), or all of them
+    for a note too short to have any after it.
+    """
 
     def __init__(self) -> None:
+        self._segmenter = NoteSegmenter()
         self._open: _Open | None = None
 
     def reset(self) -> None:
+        """Back to the state after construction."""
+        self._segmenter.reset()
         self._open = None
 
-    def push(
-        self, frame: Frame, mapping: NoteMapping | None, settings: TuningSettings
-    ) -> HeldNote | None:
-        """Add a frame; return the note that this frame ended, if any."""
-        voiced = frame.f0_hz is not None and mapping is not None
-        finished: HeldNote | None = None
-        if not voiced:
-            if self._open is not None and frame.time_s - self._open.last_voiced_s > GAP_S:
-                finished = self._close()
+    def push(self, reading: Reading) -> HeldNote | None:
+        """Add a reading; return the note that this reading ended, if any."""
+        step = self._segmenter.push(reading)
+        finished = self._close() if step.ended else None
+        if step.note_id is None or reading.mapping is None:
             return finished
-        assert mapping is not None
-        held_hz = frame.held_f0_hz or frame.f0_hz
-        assert held_hz is not None
-        held_note = mapping.note
-        if held_hz != frame.f0_hz:
-            try:
-                held_note = map_frequency(held_hz, settings).note
-            except (ValueError, ArithmeticError):  # a held pitch that names no note: keep the sounding one
-                pass
-        if self._open is not None and (
-            held_note != self._open.note or frame.time_s - self._open.last_voiced_s > GAP_S
-        ):
-            finished = self._close()
-        if self._open is None:
-            self._open = _Open(held_note, frame.time_s, frame.time_s)
+        if step.started or self._open is None:
+            self._open = _Open(reading.held_note, step.start_s, reading.time_s)
         note = self._open
-        note.last_voiced_s = frame.time_s
-        if math.isfinite(frame.level_dbfs):
-            note.levels.append(frame.level_dbfs)
-        if frame.register == "jumped":
+        note.last_voiced_s = reading.time_s
+        sounding = reading.note
+        if math.isfinite(reading.level_dbfs):
+            note.levels.append(reading.level_dbfs)
+        register = reading.register_state
+        if register == "jumped":
             if note.last_register != "jumped":
-                note.events.append(RegisterEvent(frame.time_s, frame.jump or "jump", mapping.note))
-            elif note.events[-1].sounding_note == held_note != mapping.note:
+                note.events.append(RegisterEvent(reading.time_s, reading.jump or "jump", sounding))
+            elif note.events[-1].sounding_note == note.note != sounding:
                 # a jump is often seen before the pitch has moved (it is judged on the
                 # newest half window): name the note it went to once the pitch reads it
-                note.events[-1] = replace(note.events[-1], sounding_note=mapping.note)
-        elif frame.register == "weakening":
-            # one early warning per approach to a jump: flicker in a live room is not news
-            if not note.events or note.events[-1].kind != "weakening":
-                note.events.append(RegisterEvent(frame.time_s, "weakening", mapping.note))
-        if frame.register != "jumped" and frame.time_s - note.start_s >= ATTACK_SKIP_S:
-            note.cents.append(mapping.cents)
-        note.last_register = frame.register
+                note.events[-1] = replace(note.events[-1], sounding_note=sounding)
+        else:
+            if register == "weakening" and (not note.events or note.events[-1].kind != "weakening"):
+                # one early warning per approach to a jump: flicker in a live room is not news
+                note.events.append(RegisterEvent(reading.time_s, "weakening", sounding))
+            assert reading.cents is not None
+            if reading.time_s - note.start_s >= ATTACK_S:
+                note.cents.append(reading.cents)
+            else:
+                note.attack_cents.append(reading.cents)
+        note.last_register = register
         return finished
 
     def finish(self) -> HeldNote | None:
         """End of input: the note still open, if any."""
+        self._segmenter.finish()
         return self._close()
 
     def _close(self) -> HeldNote | None:
@@ -148,13 +141,44 @@ class HeldNoteTracker:
         duration = note.last_voiced_s - note.start_s
         if duration < MIN_NOTE_S:
             return None
+        cents = note.cents or note.attack_cents
         median = spread = None
-        if note.cents:
-            median = statistics.median(note.cents)
-            if len(note.cents) >= 4:
-                q1, _, q3 = statistics.quantiles(note.cents, n=4)
+        if cents:
+            median = statistics.median(cents)
+            if len(cents) >= 4:
+                q1, _, q3 = statistics.quantiles(cents, n=4)
                 spread = (q3 - q1) / 2
             else:
                 spread = 0.0
         level = statistics.median(note.levels) if note.levels else -math.inf
         return HeldNote(note.start_s, duration, note.note, median, spread, level, tuple(note.events))
+
+
+class HeldNoteCollector:
+    """A consumer of the engine's readings that keeps every held note (``bench analyze``,
+    unattended runs).
+
+    Parameters
+    ----------
+    on_note : callable(HeldNote), optional
+        Called (on the feeding thread) with each held note as it ends.
+    """
+
+    def __init__(self, on_note: Callable[[HeldNote], None] | None = None) -> None:
+        self._tracker = HeldNoteTracker()
+        self.on_note = on_note
+        self.notes: list[HeldNote] = []
+
+    def take(self, reading: Reading) -> None:
+        """Feed one reading."""
+        self._keep(self._tracker.push(reading))
+
+    def close(self) -> None:
+        """End of the stream: the note still sounding is kept too."""
+        self._keep(self._tracker.finish())
+
+    def _keep(self, note: HeldNote | None) -> None:
+        if note is not None:
+            self.notes.append(note)
+            if self.on_note is not None:
+                self.on_note(note)

@@ -57,7 +57,7 @@ def analyser_alone_cpu_per_audio_s(audio: np.ndarray, sample_rate: int, block_si
 
 
 def run_demo(duration_s: float, block_size: int, sample_rate: int) -> dict:
-    from bench.engine import Engine
+    from bench.engine import Engine, ReadingCallback
     from bench.sources.demo import DemoSource
     from bench.tuning import TuningSettings
 
@@ -73,7 +73,7 @@ def run_demo(duration_s: float, block_size: int, sample_rate: int) -> dict:
 
     with tempfile.TemporaryDirectory() as tmp:
         log = Path(tmp) / "bench.csv"
-        engine = Engine(source, TuningSettings(), log_path=log, on_reading=on_reading)
+        engine = Engine(source, TuningSettings(), log_path=log, consumers=[ReadingCallback(on_reading)])
         engine.start()
         t0_s = source._pacer._t0_s  # noqa: SLF001 - wall time the demo's first sample "sounded"
         time.sleep(duration_s)

@@ -42,13 +42,12 @@ from dsp.chunk import N_OUT, O_CLARITY, O_CLIP, O_F0, O_H1, O_HELD, O_JUMP, O_LE
 from dsp.chunk import CARRY_JUMPED_RUN, CARRY_PREV_F0, analyse_chunk, chunk_params, store_block
 from dsp.frame import Frame
 from dsp.measure import MAINS_HZ, MAINS_TOLERANCE
+from dsp.rates import MAX_SAMPLE_RATE, MIN_SAMPLE_RATE
 from dsp.register import JUMP_NAMES, REGISTER_NAMES, RegisterMonitor
 from dsp.spectrum import newest_half_taps
 
 __all__ = ["StreamingAnalyser", "prepare_kernels", "MIN_SAMPLE_RATE", "MAX_SAMPLE_RATE", "FMIN_HZ", "FMAX_HZ"]
 
-MIN_SAMPLE_RATE = 16000
-MAX_SAMPLE_RATE = 96000
 FMIN_HZ = 60.0
 """Lowest fundamental reported, Hz."""
 FMAX_HZ = 4500.0

@@ -75,10 +75,10 @@ def run_chart(args: argparse.Namespace) -> int:
         )
     print(f"captures: {session.captures_from} ({len(session.captures)})")
     print(format_text_chart(chart), end="")
-    curves = find_blowing_curves(session.rows) if session.rows is not None else []
+    curves = find_blowing_curves(session.readings) if session.readings is not None else []
     for curve in curves:
         print(curve.describe())
-    if args.save_captures and session.rows is not None and session.captures_from.startswith("computed"):
+    if args.save_captures and session.readings is not None and session.captures_from.startswith("computed"):
         side = write_captures(captures_path_for(args.session), session.captures)
         print(f"captures written to {side}")
     if args.summary:

@@ -23,8 +23,6 @@ from bench.tuning import TuningSettings
 
 if TYPE_CHECKING:
     from bench.engine import EngineEvent
-    from bench.heldnotes import HeldNoteTracker
-    from bench.reading import Reading
 
 INPUT_HELP = "mic (default for run), demo (the built-in instrument), or an audio FILE"
 TEMP_INTERVAL_S = 5.0
@@ -63,7 +61,7 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
             metavar="FILE|cmd:COMMAND",
             help=f"re-read the air temperature (degC) from FILE or a command every {TEMP_INTERVAL_S:g} s",
         )
-        work = p.add_argument_group("session workflow (the screen)")
+        work = p.add_argument_group("session workflow (captures; beside the log with --no-ui)")
         work.add_argument(
             "--profile", default=None, metavar="NAME|FILE",
             help="instrument: sopranino, soprano, alto (default), tenor, bass, ... or a .toml profile",
@@ -153,8 +151,6 @@ def run_command(args: argparse.Namespace) -> int:
     if duration_s is not None and not args.no_ui:
         raise SettingsError("--duration applies to --no-ui runs; add --no-ui or leave it out")
     log_rate = _positive("--log-rate", args.log_rate, "rows a second, e.g. 20")
-    if args.no_ui and (args.profile is not None or args.label):
-        raise SettingsError("--profile and --label apply to the screen; leave them out with --no-ui")
     if args.profile is not None:
         from bench.workflow.profiles import get_profile
 
@@ -280,15 +276,14 @@ def _run_unattended(
     duration_s: float | None,
 ) -> int:
     from bench.engine import Engine
-    from bench.heldnotes import HeldNoteTracker
+    from bench.heldnotes import HeldNoteCollector
+    from bench.workflow.live import LiveWorkflow
 
     lines: queue.SimpleQueue[tuple[str, str]] = queue.SimpleQueue()
-    tracker = HeldNoteTracker()
-
-    def on_reading(reading: Reading) -> None:  # engine thread
-        note = tracker.push(reading.frame, reading.mapping, reading.settings)
-        if note is not None:
-            lines.put(("out", note.describe()))
+    # consumers of the engine's readings, fed on its thread: the held-note lines, and the
+    # captures written beside the frame log (as on the screen)
+    held_notes = HeldNoteCollector(on_note=lambda note: lines.put(("out", note.describe())))
+    workflow = LiveWorkflow(profile=args.profile, log_path=None, label=args.label or "")
 
     log_failed: list[str] = []
 
@@ -321,7 +316,12 @@ def _run_unattended(
 
     engine, fallback = _start_engine(
         lambda src: Engine(
-            src, settings, log_path=log_path, log_rows_per_s=log_rate, on_event=on_event, on_reading=on_reading
+            src,
+            settings,
+            log_path=log_path,
+            log_rows_per_s=log_rate,
+            on_event=on_event,
+            consumers=[held_notes, workflow],
         ),
         source,
         args,
@@ -342,23 +342,24 @@ def _run_unattended(
                     break
             time.sleep(0.02)
     except (KeyboardInterrupt, _Terminated) as exc:
-        engine.stop()
+        engine.stop()  # closes the consumers: the last held note and capture
         if follower is not None:
             follower.stop()
-        _finish_notes(tracker, lines)
         drain()
         word = "terminated" if isinstance(exc, _Terminated) else "interrupted"
         _say(f"{word}; {log_line(closing=True)}")
         return 143 if isinstance(exc, _Terminated) else 130
     finally:
         _restore_sigterm(previous_term)
-    engine.stop()
+    engine.stop()  # closes the consumers: the last held note and capture
     if follower is not None:
         follower.stop()
-    _finish_notes(tracker, lines)
     drain()
     stats = engine.stats
-    _say(f"{stats.frames} frames, {stats.dropped_blocks} dropped blocks; {log_line()}")
+    captures = f"; {len(workflow.captures())} captures in {workflow.captures_path}" if workflow.captures_path else ""
+    if workflow.file_error:
+        captures = f"; captures not saved: {workflow.file_error}"
+    _say(f"{stats.frames} frames, {stats.dropped_blocks} dropped blocks; {log_line()}{captures}")
     return 0 if stats.state != "error" else 1
 
 
@@ -400,8 +401,3 @@ def _is_live(engine: Any) -> bool:
     """True for a microphone or a real-time paced source (wall time counts too)."""
     return bool(getattr(engine.source, "realtime", True))
 
-
-def _finish_notes(tracker: HeldNoteTracker, lines: queue.SimpleQueue[tuple[str, str]]) -> None:
-    note = tracker.finish()
-    if note is not None:
-        lines.put(("out", note.describe()))

@@ -39,12 +39,16 @@ class AudioSource(Protocol):
         True once a finite source (file) has handed out its last block.
     description : str
         One line naming the source, e.g. ``"microphone 'USB Audio' (ALSA), 48000 Hz"``.
+    input_latency_s : float >= 0, seconds
+        Delay the driver reports between sound reaching the input and its block being
+        handed out (0 for a file or the demo).
     """
 
     sample_rate: int
     dropped_blocks: int
     ended: bool
     description: str
+    input_latency_s: float
 
     def start(self) -> None:
         """Open the source and begin delivering blocks; raises ``DeviceError`` or

@@ -130,6 +130,7 @@ class DemoSource:
         self.realtime = bool(realtime)
         self.loops = loops
         self.dropped_blocks = 0
+        self.input_latency_s = 0.0
         self.ended = False
         self.description = f"demo: {INSTRUMENT}, {self.sample_rate} Hz"
         self._pacer = PacedBlocks(

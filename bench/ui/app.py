@@ -57,6 +57,7 @@ from bench.ui.trail import PitchTrail
 from bench.ui.tuning_map import TuningMap
 from bench.ui.workflow_screens import BlowingScreen, ChartScreen, WorkflowView
 from bench.workflow.chart import TuningChart
+from bench.workflow.captures import Capture
 from bench.workflow.live import LiveWorkflow
 from bench.workflow.profiles import InstrumentProfile, get_profile
 
@@ -71,9 +72,6 @@ _LOAD_SPAN_S = 3.0  # the analysis load shown is averaged over this long, second
 _TRAIL_EVERY = 3  # polls between reads of engine.history (10 Hz at 30 Hz)
 _EARLY_EVENTS = 64  # events kept while the app is not yet listening
 _BLOWING_EVERY = 3  # polls between blowing-curve updates on its view (10 Hz at 30 Hz)
-FEED_WINDOW_S = 2.0
-"""Seconds of ``engine.history`` offered to the workflow each poll (readings already fed are
-skipped): a poll late by less than this loses no frame."""
 LABEL_MAX_CHARS = 80
 """Longest session label, characters."""
 DEFAULT_PROFILE = "alto"
@@ -219,6 +217,20 @@ class BenchApp(App[int]):
         Binding("ctrl+c", "quit", "quit", show=False, priority=True, tooltip=CONTROLS[-1].description)
     ]
 
+    class CaptureTaken(Message):
+        """The workflow took or updated a capture (posted from the engine thread)."""
+
+        def __init__(self, capture: Capture) -> None:
+            super().__init__()
+            self.capture = capture
+
+    class CaptureRefused(Message):
+        """A requested capture could not be taken (posted from the engine thread)."""
+
+        def __init__(self, text: str) -> None:
+            super().__init__()
+            self.text = text
+
     class EngineReported(Message):
         """The engine reported a rare event (register jump, source ended, device lost, log...)."""
 
@@ -285,7 +297,7 @@ class BenchApp(App[int]):
         """Captures, chart and blowing curve of the session (built on mount)."""
         self.chart: TuningChart | None = None
         """Tuning chart of the captures so far."""
-        self._workflow_log: Path | None = None
+        self._captures_file_shown: tuple[Path | None, str | None] = (None, None)
         self._seen_captures: set[int] = set()
         self._last_capture: Any = None
         self._blowing_line = ""
@@ -362,6 +374,8 @@ class BenchApp(App[int]):
             screen.set_class(self.size.width >= 120, "-wide")
 
     def on_unmount(self) -> None:
+        if self.workflow is not None:  # the screen is going: no notes to show
+            self.workflow.on_capture = self.workflow.on_refusal = None
         self._stop_engine()
         self._close_workflow()
         if getattr(self, "_froze_gc", False):
@@ -392,7 +406,6 @@ class BenchApp(App[int]):
 
     def _poll(self) -> None:
         self._polls += 1
-        self._feed_workflow()  # also while held: measuring and capturing go on
         if self._polls % _STATS_EVERY == 0:
             self._refresh_session()
         top = self._top_screen()
@@ -434,8 +447,7 @@ class BenchApp(App[int]):
         bar.analysis_load_pct = self._analysis_load_pct(getattr(stats, "cpu_s", None))
         log_path = self.engine.log_path
         bar.log_path = None if log_path is None else str(log_path)
-        if self.workflow is not None and log_path != self._workflow_log:
-            self._follow_log(log_path)
+        self._tell_captures_file()
 
     def _analysis_load_pct(self, cpu_s: float | None) -> float | None:
         """Analysis-thread CPU seconds per wall second over the last ~3 s, percent (None: unknown yet)."""
@@ -550,9 +562,8 @@ class BenchApp(App[int]):
 
         Returns False (after a one-line error) when the engine refuses the new settings.
         """
-        new = dataclasses.replace(self.engine.settings, **changes)
         try:
-            self.engine.set_settings(new)
+            self.engine.update_settings(**changes)
         except (BenchError, ValueError, TypeError) as exc:
             self.notify(str(exc), severity="error")
             return False
@@ -758,60 +769,82 @@ class BenchApp(App[int]):
     # -- session workflow: captures, label, chart and blowing views ----------------------------
 
     def _start_workflow(self) -> None:
+        """Build the session workflow and attach it to the engine: the engine thread feeds it
+        every reading and it writes the captures beside the session log."""
         log_path = self.engine.log_path
         try:
-            self.workflow = LiveWorkflow(
+            workflow = LiveWorkflow(
                 profile=self.profile,
                 log_path=log_path,
                 label=self.session_label,
                 auto=True,
-                on_capture=self._on_capture,
+                on_capture=self._capture_from_engine,
+                on_refusal=self._refusal_from_engine,
             )
         except BenchError as exc:  # the captures file cannot be written: capture in memory
-            self.workflow = LiveWorkflow(
-                profile=self.profile, log_path=None, label=self.session_label, auto=True, on_capture=self._on_capture
+            workflow = LiveWorkflow(
+                profile=self.profile,
+                log_path=None,
+                label=self.session_label,
+                auto=True,
+                on_capture=self._capture_from_engine,
+                on_refusal=self._refusal_from_engine,
             )
-            self.workflow.file_error = str(exc)
-            self.notify(f"captures kept in memory only: {exc}", severity="error", timeout=8)
-        self._workflow_log = log_path
-        self._seen_captures = {c.index for c in self.workflow.captures()}
-        self.chart = self.workflow.chart()
+            workflow.file_error = str(exc)
+        self.workflow = workflow
+        self._seen_captures = {c.index for c in workflow.captures()}
+        self.chart = workflow.chart()
+        self.engine.add_consumer(workflow)
+        self._tell_captures_file()
         self._show_workflow()
 
     def _close_workflow(self) -> None:
         workflow, self.workflow = self.workflow, None
         if workflow is None:
             return
-        workflow.on_capture = None  # the screen is going: no notes to show
+        self.engine.remove_consumer(workflow)
         try:
             workflow.close()
         except BenchError:
             pass
+
+    def _capture_from_engine(self, cap: Capture) -> None:
+        """The workflow's ``on_capture``: called on the engine thread, posts and returns."""
+        self.post_message(self.CaptureTaken(cap))
+
+    def _refusal_from_engine(self, text: str) -> None:
+        """The workflow's ``on_refusal``: called on the engine thread, posts and returns."""
+        self.post_message(self.CaptureRefused(text))
+
+    def on_bench_app_capture_taken(self, message: CaptureTaken) -> None:
+        self._on_capture(message.capture)
+
+    def on_bench_app_capture_refused(self, message: CaptureRefused) -> None:
+        self.notify(message.text, severity="warning")
 
     def _top_screen(self) -> Any:
         """The screen on top, or None while the app is closing."""
         stack = self.screen_stack
         return stack[-1] if stack else None
 
-    def _feed_workflow(self) -> None:
-        if self.workflow is not None:
-            self.workflow.push_new(self.engine.history(FEED_WINDOW_S))
-
-    def _follow_log(self, log_path: Path | None) -> None:
-        """The session log started, moved or stopped: captures follow it."""
-        self._workflow_log = log_path
+    def _tell_captures_file(self) -> None:
+        """Say where captures go when that changed (the workflow follows the session log
+        on the engine thread)."""
         workflow = self.workflow
         if workflow is None:
             return
-        workflow.set_log_path(log_path)
+        shown = (workflow.captures_path, workflow.file_error)
+        if shown == self._captures_file_shown:
+            return
+        self._captures_file_shown = shown
         if workflow.file_error is not None:
             self.notify(f"captures kept in memory only: {workflow.file_error}", severity="error", timeout=8)
         elif workflow.captures_path is not None:
             self.notify(f"captures go to {workflow.captures_path.name}", timeout=4)
         self._show_workflow()
 
-    def _on_capture(self, cap: Any) -> None:
-        """A capture was taken or updated (called in the UI thread, from the poll or a key)."""
+    def _on_capture(self, cap: Capture) -> None:
+        """A capture was taken or updated (in the UI thread, from the engine's message)."""
         new = cap.index not in self._seen_captures
         self._seen_captures.add(cap.index)
         last = self._last_capture
@@ -914,8 +947,9 @@ class BenchApp(App[int]):
     def action_capture(self) -> None:
         if self.workflow is None:
             return
-        self._feed_workflow()  # the newest frames count too
-        if self.workflow.capture_now() is None:
+        if self.engine.running:
+            self.workflow.request_capture()  # taken on the engine thread with the newest readings
+        elif self.workflow.capture_now() is None:  # input over: the last note there was
             self.notify("nothing is sounding to capture; play the note and press g while it sounds", severity="warning")
 
     def action_auto_capture(self) -> None:

@@ -7,10 +7,9 @@ the top of its usable dynamic range.
 
 Method
 ------
-* The frames of one *held note* (the fingered note the analyser follows; the sounding note
-  when the log has no held note) under one set of settings form a run; a gap over
-  ``dropout_s`` ends it.
-* The first ``attack_s`` of the run are left out, and so are the last :data:`GUARD_S` (60 ms)
+* The readings of one *held note* (cut by :class:`bench.segment.NoteSegmenter`, the rule every
+  note-by-note consumer follows) form a run.
+* The first :data:`bench.segment.ATTACK_S` of the run are left out, and so are the last :data:`GUARD_S` (60 ms)
   before the first frame whose register state is "jumped" (the change itself) or before the
   note ends (the release), and everything after the jump.
 * Ordinary least squares of corrected cents against level (dBFS) over the frames that remain:
@@ -33,10 +32,10 @@ import statistics
 from collections import deque
 from collections.abc import Iterable
 from dataclasses import dataclass
-from typing import Any
 
-from bench.workflow.notenames import note_name
-from bench.workflow.points import FramePoint, SettingsKey, as_point
+from bench.reading import Reading, SettingsKey
+from bench.segment import ATTACK_S, NoteSegmenter
+from bench.tuning.notes import note_name
 
 __all__ = [
     "BlowingCurve",
@@ -304,21 +303,18 @@ class _Run:
 
 
 class BlowingCurveTracker:
-    """Build blowing curves from frames fed one at a time (live or from a log).
-
-    Parameters
-    ----------
-    attack_s : float >= 0, seconds
-        Start of each held note left out of the fit.
-    dropout_s : float >= 0, seconds
-        Longest unvoiced gap that does not end the held note.
+    """Build blowing curves from readings fed one at a time (live or from a log).
 
     Examples
     --------
-    >>> from bench.workflow.points import FramePoint, SettingsKey
+    >>> from bench.reading import make_reading
+    >>> from bench.tuning import TuningSettings
+    >>> from dsp.frame import Frame
     >>> def pt(t, level, cents, reg="steady"):
-    ...     return FramePoint(t, True, 440.0, 69, "A4", 440.0, cents, cents, level, reg, "",
-    ...                       None, (None,) * 8, 440.0, SettingsKey())
+    ...     f0 = 440.0 * 2 ** (cents / 1200)
+    ...     jump = "overblown" if reg == "jumped" else None
+    ...     frame = Frame(t, t, f0, 0.99, level, False, None, None, reg, jump, 440.0)
+    ...     return make_reading(frame, TuningSettings())
     >>> tr = BlowingCurveTracker()
     >>> for i in range(300):
     ...     lvl = -30.0 + 0.05 * i
@@ -328,16 +324,13 @@ class BlowingCurveTracker:
     (0.6, -15.35)
     """
 
-    def __init__(self, *, attack_s: float = 0.15, dropout_s: float = 0.06) -> None:
-        self.attack_s = float(attack_s)
-        self.dropout_s = float(dropout_s)
+    def __init__(self) -> None:
         self.reset()
 
     def reset(self) -> None:
         """Back to the state after construction."""
+        self._segmenter = NoteSegmenter()
         self._run: _Run | None = None
-        self._last_voiced_s = -math.inf
-        self._prev_time_s = math.inf
         self.finished: list[BlowingCurve] = []
 
     def current(self) -> BlowingCurve | None:
@@ -346,35 +339,27 @@ class BlowingCurveTracker:
             return self._run.curve()
         return self.finished[-1] if self.finished else None
 
-    def push(self, item: Any, mapping: Any | None = None, settings: Any | None = None) -> BlowingCurve | None:
-        """Feed one frame (as :meth:`CaptureDetector.push` accepts).
+    def push(self, p: Reading) -> BlowingCurve | None:
+        """Feed one reading.
 
         Returns
         -------
         BlowingCurve or None
-            The curve up to the break when this frame is the first "jumped" frame of the
+            The curve up to the break when this reading is the first "jumped" one of the
             held note; None otherwise.
         """
-        p = as_point(item, mapping, settings)
-        if not p.voiced:
-            self._prev_time_s = p.time_s
-            if p.time_s - self._last_voiced_s > self.dropout_s:
-                self._close()
+        step = self._segmenter.push(p)
+        if step.ended:
+            self._close()
+        if step.note_id is None:
             return None
-        step = max(0.0, p.time_s - self._prev_time_s)  # beyond the frame spacing itself
-        self._prev_time_s = p.time_s
-        gap = p.time_s - self._last_voiced_s > self.dropout_s + step
-        self._last_voiced_s = p.time_s
         run = self._run
+        if step.started or run is None:
+            held = p.held_midi
+            assert held is not None
+            run = self._run = _Run((held, p.key), p.held_note, step.start_s)
+        run.end_s = p.time_s
         if p.register_state == "jumped":
-            same = run is not None and not gap and (
-                p.held_f0_hz is None or (p.held_midi, p.settings) == run.key
-            )
-            if not same:
-                self._close()
-                return None
-            assert run is not None
-            run.end_s = p.time_s
             if run.broken:
                 return None
             run.broken = True
@@ -385,18 +370,10 @@ class BlowingCurveTracker:
             run.jumped_level = p.level_dbfs
             run.jump_kind = p.jump
             return run.curve()
-        held = p.held_midi if p.held_f0_hz else p.midi
-        assert held is not None
-        key = (held, p.settings)
-        if run is None or gap or key != run.key:
-            self._close()
-            name = p.note if p.midi == held else note_name(held, flats="b" in p.note)
-            run = self._run = _Run(key, name, p.time_s)
-        run.end_s = p.time_s
         if run.broken or p.cents is None or not math.isfinite(p.level_dbfs):
             return None
         run.history.add(p.time_s, p.level_dbfs)
-        if p.time_s - run.start_s < self.attack_s - 1e-9:
+        if p.time_s - run.start_s < ATTACK_S - 1e-9:
             return None
         run.offer(p.time_s, p.level_dbfs, p.cents)
         return None
@@ -414,21 +391,19 @@ class BlowingCurveTracker:
             self._run = None
 
 
-def _all_curves(rows: Iterable[Any], attack_s: float, dropout_s: float) -> list[BlowingCurve]:
-    tr = BlowingCurveTracker(attack_s=attack_s, dropout_s=dropout_s)
-    for row in rows:
-        tr.push(row)
+def _all_curves(readings: Iterable[Reading]) -> list[BlowingCurve]:
+    tr = BlowingCurveTracker()
+    for reading in readings:
+        tr.push(reading)
     tr.finish()
     return tr.finished
 
 
 def find_blowing_curves(
-    rows: Iterable[Any],
+    readings: Iterable[Reading],
     *,
     min_range_db: float = 6.0,
     min_frames: int = 20,
-    attack_s: float = 0.15,
-    dropout_s: float = 0.06,
 ) -> list[BlowingCurve]:
     """Blowing curves of every held note that changed level by ``min_range_db`` or more,
     or rose by ``MIN_SLOPE_SPAN_DB`` and broke into the next register (a crescendo), in
@@ -436,7 +411,7 @@ def find_blowing_curves(
 
     Parameters
     ----------
-    rows : iterable of frame-log rows, readings or FramePoint
+    readings : iterable of Reading (live, or ``bench.framelog.iter_readings``)
     min_range_db : float, dB
         Smallest level span that counts as a crescendo.
     min_frames : int
@@ -444,7 +419,7 @@ def find_blowing_curves(
     """
     return [
         c
-        for c in _all_curves(rows, attack_s, dropout_s)
+        for c in _all_curves(readings)
         if c.n >= min_frames
         and (
             c.level_range_db >= min_range_db
@@ -454,17 +429,14 @@ def find_blowing_curves(
 
 
 def blowing_curve(
-    rows: Iterable[Any],
+    readings: Iterable[Reading],
     note: str | int | None = None,
-    *,
-    attack_s: float = 0.15,
-    dropout_s: float = 0.06,
 ) -> BlowingCurve | None:
     """The blowing curve of one note.
 
     Parameters
     ----------
-    rows : iterable of frame-log rows, readings or FramePoint
+    readings : iterable of Reading (live, or ``bench.framelog.iter_readings``)
     note : str, int or None
         Held note (name or MIDI). All its runs under the first settings it was played with
         are pooled (a series of dynamics); the break is the first one seen. None: the held
@@ -475,13 +447,13 @@ def blowing_curve(
     BlowingCurve or None
         None when the note was not played.
     """
-    curves = [c for c in _all_curves(rows, attack_s, dropout_s) if c.n > 0 or c.break_level_dbfs is not None]
+    curves = [c for c in _all_curves(readings) if c.n > 0 or c.break_level_dbfs is not None]
     if not curves:
         return None
     if note is None:
         return max(curves, key=lambda c: (c.level_range_db, c.n))
     if isinstance(note, str):
-        from bench.workflow.notenames import parse_note
+        from bench.tuning.notes import parse_note
 
         midi = parse_note(note)
     else:

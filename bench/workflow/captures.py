@@ -6,16 +6,17 @@ much louder it could be blown before it broke into the next register (when that 
 
 When is a note settled?  (defaults of :class:`CaptureThresholds`)
 
-* a *run* is a sequence of voiced frames mapped to the same note, in the same sounding mode
-  and under the same settings, with no gap longer than ``dropout_s`` (60 ms) beyond the
-  spacing of the frames (so a frame log thinned to a few rows a second still works);
-* the first ``attack_s`` (150 ms) of a run are the attack and are never used;
+* a *run* is a sequence of voiced readings mapped to the same note, in the same sounding mode
+  and under the same settings, cut by the held-note rule of :mod:`bench.segment` (a gap over
+  :data:`~bench.segment.GAP_S`, 60 ms, beyond the spacing of the readings, or another note
+  lasting :data:`~bench.segment.STRAY_S`; shorter strays are skipped);
+* the first :data:`~bench.segment.ATTACK_S` (150 ms) of a run are the attack and are never used;
 * the run is *settled* once every frame of the last ``settle_s`` (300 ms) lies within
   ``tolerance_cents`` (±3 c) of those frames' median; that median is the stretch's reference;
 * the steady stretch goes on while frames stay within ±3 c of the reference (stray frames,
-  off in pitch or even on another note such as an octave slip, are skipped for up to
-  ``dropout_s``); it ends when frames stay outside for ``dropout_s``, when the note, mode or
-  settings change for that long, or when the sound stops. Its frames make one capture.
+  off in pitch, are skipped for up to :data:`~bench.segment.GAP_S`); it ends when frames stay
+  outside for that long, when the run ends, or when the sound stops. Its frames make one
+  capture.
 
 Spread is the scaled median absolute deviation of the stretch's corrected cents,
 ``1.4826 * median(|c - median(c)|)``: a robust estimate of the frame-to-frame standard
@@ -55,12 +56,13 @@ from collections import deque
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Any, Literal
+from typing import Literal
 
 from bench.errors import LogError
 from bench.framelog import number_cell, safe_cell
 from bench.workflow.blowing import LevelHistory, fit_line
-from bench.workflow.points import FramePoint, SettingsKey, as_point
+from bench.reading import Reading, SettingsKey
+from bench.segment import ATTACK_S, GAP_S, NoteSegmenter
 from bench.workflow.profiles import InstrumentProfile
 
 __all__ = [
@@ -71,7 +73,7 @@ __all__ = [
     "CaptureThresholds",
     "capture_from_points",
     "capture_row",
-    "captures_from_rows",
+    "captures_from_readings",
     "captures_path_for",
     "read_captures",
     "scaled_mad",
@@ -109,31 +111,22 @@ class CaptureThresholds:
 
     Attributes
     ----------
-    attack_s : float >= 0, seconds
-        Start of each run left out as the attack (150 ms).
     settle_s : float > 0, seconds
         How long the note must stay within ``tolerance_cents`` before it counts (300 ms).
     tolerance_cents : float > 0, cents
         Half-width of the steadiness band (3 c).
-    dropout_s : float >= 0, seconds
-        Longest gap (unvoiced frames, or frames out of the band) that does not end a stretch.
     manual_s : float > 0, seconds
         Default span of :meth:`CaptureDetector.capture_now` (the last 0.5 s).
     max_level_drift_db_per_s : float > 0, dB/s
         Automatic captures skip stretches whose level changes faster (a crescendo).
     """
 
-    attack_s: float = 0.15
     settle_s: float = 0.30
     tolerance_cents: float = 3.0
-    dropout_s: float = 0.06
     manual_s: float = 0.5
     max_level_drift_db_per_s: float = 2.0
 
     def __post_init__(self) -> None:
-        for name in ("attack_s", "dropout_s"):
-            if not getattr(self, name) >= 0:
-                raise ValueError(f"{name} {getattr(self, name)!r} must be >= 0 seconds")
         for name in ("settle_s", "tolerance_cents", "manual_s", "max_level_drift_db_per_s"):
             if not getattr(self, name) > 0:
                 raise ValueError(f"{name} {getattr(self, name)!r} must be > 0")
@@ -205,7 +198,7 @@ def _median_or_none(values: Iterable[float | None]) -> float | None:
     return statistics.median(got) if got else None
 
 
-def _register_for(point: FramePoint, profile: InstrumentProfile | None) -> int:
+def _register_for(point: Reading, profile: InstrumentProfile | None) -> int:
     mode = point.mode
     if point.register_state == "jumped" and mode is not None and mode > 1:
         return mode
@@ -215,7 +208,7 @@ def _register_for(point: FramePoint, profile: InstrumentProfile | None) -> int:
 
 
 def capture_from_points(
-    points: Sequence[FramePoint],
+    points: Sequence[Reading],
     *,
     index: int,
     label: str = "",
@@ -227,7 +220,7 @@ def capture_from_points(
 
     Parameters
     ----------
-    points : sequence of FramePoint
+    points : sequence of Reading
         Voiced frames of one note (the first one gives note, mode and settings).
     index : int
         Capture number within the session.
@@ -257,7 +250,7 @@ def capture_from_points(
     margin = None
     if break_level_dbfs is not None and not jumped and math.isfinite(level):
         margin = break_level_dbfs - level
-    s = first.settings
+    s = first.key
     return Capture(
         index=index,
         label=label,
@@ -291,9 +284,11 @@ def capture_from_points(
     )
 
 
-def _run_key_of(p: FramePoint) -> tuple[Any, ...]:
-    """Frames of one run share note, mode, jumped state and settings."""
-    return (p.midi, p.mode, p.register_state == "jumped", p.settings)
+def _run_key_of(p: Reading) -> tuple[int, int | None, bool, SettingsKey] | None:
+    """Readings of one run share note, mode, jumped state and settings (None: unvoiced)."""
+    if not p.voiced or p.midi is None:
+        return None
+    return (p.midi, p.mode, p.register_state == "jumped", p.key)
 
 
 class CaptureDetector:
@@ -321,10 +316,13 @@ class CaptureDetector:
 
     Examples
     --------
-    >>> from bench.workflow.points import FramePoint, SettingsKey
+    >>> from bench.reading import make_reading
+    >>> from bench.tuning import TuningSettings
+    >>> from dsp.frame import Frame
     >>> def pt(t, c):
-    ...     return FramePoint(t, True, 440.0, 69, "A4", 440.0, c, c, -20.0, "steady", "",
-    ...                       3.0, (0.0,) * 8, 440.0, SettingsKey())
+    ...     f0 = 440.0 * 2 ** (c / 1200)
+    ...     frame = Frame(t, t, f0, 0.99, -20.0, False, (0.0,) * 8, 3.0, "steady", None, f0)
+    ...     return make_reading(frame, TuningSettings())
     >>> det = CaptureDetector()
     >>> got = [det.push(pt(i * 0.01, 2.0 + 0.1 * (i % 3))) for i in range(100)]
     >>> cap = det.finish()
@@ -356,20 +354,18 @@ class CaptureDetector:
         self._next_index = self._first_index
         self._updates: list[Capture] = []
         self._breaks: dict[tuple[int, SettingsKey], float] = {}
-        self._recent: deque[FramePoint] = deque()
+        self._recent: deque[Reading] = deque()
         self._held_levels = LevelHistory()
-        # settle run
-        self._run_key: tuple[Any, ...] | None = None
-        self._foreign: list[FramePoint] = []
+        # settle run: the held note cut further by sounding note, mode and jumped state
+        self._runs = NoteSegmenter(key=_run_key_of)
         self._run_start_s = 0.0
-        self._last_voiced_s = -math.inf
-        self._prev_time_s = math.inf
-        self._window: list[FramePoint] = []
+        self._window: list[Reading] = []
         self._post_attack_s: float | None = None
-        self._steady: list[FramePoint] = []
+        self._steady: list[Reading] = []
         self._ref_cents: float | None = None
-        self._outliers: list[FramePoint] = []
-        # held-note run (for register margins)
+        self._outliers: list[Reading] = []
+        # held note (for register margins)
+        self._held = NoteSegmenter()
         self._held_key: tuple[int, SettingsKey] | None = None
         self._held_broken = False
         self._capture_held: dict[int, tuple[int, SettingsKey]] = {}
@@ -389,64 +385,40 @@ class CaptureDetector:
 
     # -- feeding -----------------------------------------------------------------------------
 
-    def push(self, item: Any, mapping: Any | None = None, settings: Any | None = None) -> Capture | None:
-        """Feed one frame; return a capture when a steady stretch has just ended.
+    def push(self, p: Reading) -> Capture | None:
+        """Feed one reading; return a capture when a steady stretch has just ended.
 
         Parameters
         ----------
-        item : FramePoint, frame-log row (dict), Reading, or Frame
-            With a bare ``Frame`` give its ``mapping`` (NoteMapping or None) and ``settings``.
+        p : Reading
+            The next reading (live, or read back from a frame log).
 
         Returns
         -------
         Capture or None
             The new automatic capture (only when :attr:`auto` is on).
         """
-        p = as_point(item, mapping, settings)
         th = self.thresholds
         if p.voiced:
             self._recent.append(p)
             while self._recent and self._recent[0].time_s < p.time_s - max(th.manual_s, 5.0):
                 self._recent.popleft()
         self._track_held(p)
-        if not p.voiced:
-            self._prev_time_s = p.time_s
-            if p.time_s - self._last_voiced_s > th.dropout_s:
-                return self._end_run()
-            return None
-        # a gap is judged beyond the frame spacing itself (a log thinned to 10 rows/s has
-        # 100 ms between rows and no gap)
-        step = max(0.0, p.time_s - self._prev_time_s)
-        self._prev_time_s = p.time_s
-        gap = p.time_s - self._last_voiced_s > th.dropout_s + step
-        self._last_voiced_s = p.time_s
-        key = _run_key_of(p)
-        if gap or self._run_key is None:
-            result = self._end_run()
-            return self._feed(p, key) or result
-        if key != self._run_key:
-            # another note: a stray frame (an octave slip, a cracked frame) is waited out; a
-            # change that lasts dropout_s ends the run, and the new note starts at its first frame
-            self._foreign.append(p)
-            if p.time_s - self._foreign[0].time_s < th.dropout_s - 1e-9:
-                return None
-            foreign = self._foreign
-            result = self._end_run()
-            for q in foreign:
-                result = self._feed(q, _run_key_of(q)) or result
+        step = self._runs.push(p)
+        result = self._end_run() if step.ended else None
+        if step.note_id is None:
             return result
-        self._foreign = []
-        return self._feed(p, key)
+        if step.started:
+            if not step.ended:
+                result = self._end_run() or result
+            self._run_start_s = step.start_s
+        return self._feed(p) or result
 
-    def _feed(self, p: FramePoint, key: tuple[Any, ...]) -> Capture | None:
-        """Advance the run with a voiced frame of ``key`` (a new key starts a new run)."""
+    def _feed(self, p: Reading) -> Capture | None:
+        """Advance the run with one of its voiced readings."""
         th = self.thresholds
         result: Capture | None = None
-        if key != self._run_key:
-            result = self._end_run()
-            self._run_key = key
-            self._run_start_s = p.time_s
-        if p.time_s - self._run_start_s < th.attack_s - 1e-9:
+        if p.time_s - self._run_start_s < ATTACK_S - 1e-9:
             return result
         if self._post_attack_s is None:
             self._post_attack_s = p.time_s
@@ -459,7 +431,7 @@ class CaptureDetector:
             self._outliers = []
             return result
         self._outliers.append(p)
-        if p.time_s - self._outliers[0].time_s >= th.dropout_s:
+        if p.time_s - self._outliers[0].time_s >= GAP_S:
             ended = self._emit_stretch()
             outliers = self._outliers
             self._outliers = []
@@ -471,6 +443,9 @@ class CaptureDetector:
 
     def finish(self) -> Capture | None:
         """End of the stream: close the current stretch; return its capture if any."""
+        self._runs.finish()
+        self._held.finish()
+        self._held_key = None
         return self._end_run()
 
     def capture_now(self, last_s: float | None = None, *, last_frames: int | None = None) -> Capture | None:
@@ -491,7 +466,7 @@ class CaptureDetector:
         newest = self._recent[-1]
         key_of = _run_key_of
         key = key_of(newest)
-        picked: list[FramePoint] = []
+        picked: list[Reading] = []
         for q in reversed(self._recent):
             if q.time_s < newest.time_s - span or key_of(q) != key:
                 break
@@ -503,7 +478,7 @@ class CaptureDetector:
 
     # -- internals ---------------------------------------------------------------------------
 
-    def _settle(self, p: FramePoint) -> None:
+    def _settle(self, p: Reading) -> None:
         """Add a post-attack frame to the settling window; mark settled when steady."""
         th = self.thresholds
         self._window.append(p)
@@ -532,20 +507,18 @@ class CaptureDetector:
 
     def _end_run(self) -> Capture | None:
         cap = self._emit_stretch() if self._ref_cents is not None else None
-        self._foreign = []
-        self._run_key = None
         self._post_attack_s = None
         self._window, self._outliers = [], []
         return cap
 
-    def _make(self, points: Sequence[FramePoint], source: CaptureSource) -> Capture | None:
+    def _make(self, points: Sequence[Reading], source: CaptureSource) -> Capture | None:
         if not points:
             return None
         first = points[0]
         held = first.held_midi
         brk = None
         if held is not None and first.register_state != "jumped":
-            brk = self._breaks.get((held, first.settings))
+            brk = self._breaks.get((held, first.key))
         cap = capture_from_points(
             points,
             index=self._next_index,
@@ -557,33 +530,30 @@ class CaptureDetector:
         self._next_index += 1
         self.captures.append(cap)
         if held is not None and not cap.jump:
-            self._capture_held[cap.index] = (held, first.settings)
+            self._capture_held[cap.index] = (held, first.key)
         return cap
 
-    def _track_held(self, p: FramePoint) -> None:
+    def _track_held(self, p: Reading) -> None:
         """Follow the held note; on its first jump record the break and fill margins."""
-        if not p.voiced:
-            if p.time_s - self._last_voiced_s > self.thresholds.dropout_s:
-                self._held_key = None
+        step = self._held.push(p)
+        if step.ended:
+            self._held_key = None
+        if step.note_id is None:
             return
-        if p.register_state == "jumped":
+        if step.started or self._held_key is None:
             held = p.held_midi
-            key = self._held_key if p.held_f0_hz is None or held is None else (held, p.settings)
-            if key is not None and key == self._held_key and not self._held_broken:
+            assert held is not None
+            self._held_key = (held, p.key)
+            self._held_broken = False
+            self._held_levels.clear()
+        if p.register_state == "jumped":
+            if not self._held_broken:
                 brk = self._held_levels.break_level(p.time_s)
                 level = brk if brk is not None else p.level_dbfs
                 self._held_broken = True
-                self._breaks[key] = level
-                self._fill_margins(key, level)
+                self._breaks[self._held_key] = level
+                self._fill_margins(self._held_key, level)
             return
-        held_now = p.held_midi if p.held_f0_hz else p.midi
-        if held_now is None:
-            return
-        key = (held_now, p.settings)
-        if key != self._held_key:
-            self._held_key = key
-            self._held_broken = False
-            self._held_levels.clear()
         self._held_levels.add(p.time_s, p.level_dbfs)
 
     def _fill_margins(self, key: tuple[int, SettingsKey], break_level_dbfs: float) -> None:
@@ -599,20 +569,21 @@ class CaptureDetector:
                 self._updates.append(new)
 
 
-def captures_from_rows(
-    rows: Iterable[Any],
+def captures_from_readings(
+    readings: Iterable[Reading],
     *,
     profile: InstrumentProfile | None = None,
     label: str = "",
     thresholds: CaptureThresholds | None = None,
 ) -> list[Capture]:
-    """Automatic captures of a whole recording (frame-log rows, readings or points).
+    """Automatic captures of a whole recording's readings (live, or
+    :func:`bench.framelog.iter_readings` of a frame log).
 
     Register margins learnt from a later break are filled in. See :class:`CaptureDetector`.
     """
     det = CaptureDetector(profile=profile, label=label, thresholds=thresholds)
-    for row in rows:
-        det.push(row)
+    for reading in readings:
+        det.push(reading)
     det.finish()
     return list(det.captures)
 

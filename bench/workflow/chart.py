@@ -28,8 +28,8 @@ from typing import TYPE_CHECKING, Any, Literal
 from bench.errors import BenchError, LogError
 from bench.framelog import number_cell, safe_cell
 from bench.workflow.captures import Capture
-from bench.workflow.notenames import note_name
-from bench.workflow.points import SettingsKey
+from bench.tuning.notes import note_name
+from bench.reading import SettingsKey
 from bench.workflow.profiles import InstrumentProfile
 
 if TYPE_CHECKING:

@@ -32,7 +32,7 @@ from bench.errors import BenchError, LogError
 from bench.framelog import number_cell, safe_cell
 from bench.workflow.captures import Capture
 from bench.workflow.chart import GUIDE_CENTS, build_chart, check_picture_path, agg_pyplot
-from bench.workflow.points import SettingsKey
+from bench.reading import SettingsKey
 from bench.workflow.profiles import InstrumentProfile
 
 __all__ = [

@@ -2,10 +2,14 @@
 reading at a time.
 
 :class:`LiveWorkflow` bundles a :class:`~bench.workflow.captures.CaptureDetector`, a
-:class:`~bench.workflow.blowing.BlowingCurveTracker` and the session's captures file. It is
-fed from the engine thread (``Engine(on_reading=workflow.push)``) or from the UI thread (new
-readings of ``engine.history(...)``); every public method takes a lock, so the UI may read
-from its own thread while the engine feeds. Nothing here waits on audio or the screen.
+:class:`~bench.workflow.blowing.BlowingCurveTracker` and the session's captures file. It is a
+consumer of the engine (``engine.add_consumer(workflow)``, or ``Engine(consumers=[...])``):
+the engine thread feeds it every reading with :meth:`LiveWorkflow.take`, and it follows the
+session log the readings name, writing ``<log stem>.captures.csv`` beside it -- on the live
+screen, in an unattended run and in ``bench analyze`` alike. Every public method takes a lock,
+so the screen may read from its own thread while the engine feeds; the capture key is a request
+the engine thread carries out (:meth:`LiveWorkflow.request_capture`), so the captures file is
+only ever written on the engine thread. Nothing here waits on audio or the screen.
 """
 
 from __future__ import annotations
@@ -13,9 +17,8 @@ from __future__ import annotations
 import threading
 from collections.abc import Callable, Iterable
 from pathlib import Path
-from typing import Any
-
 from bench.errors import LogError
+from bench.reading import Reading
 from bench.workflow.blowing import BlowingCurve, BlowingCurveTracker
 from bench.workflow.captures import (
     Capture,
@@ -48,8 +51,11 @@ class LiveWorkflow:
         Automatic capture of settled notes.
     thresholds : CaptureThresholds or None
     on_capture : callable(Capture), optional
-        Called (in the feeding thread) with each new or updated capture; a UI wraps it with
-        ``post_message``.
+        Called (in the feeding thread: the engine's) with each new or updated capture; a
+        screen wraps it with ``post_message``.
+    on_refusal : callable(str), optional
+        Called (in the feeding thread) with one line when a requested capture could not be
+        taken (nothing sounding).
 
     Raises
     ------
@@ -66,8 +72,12 @@ class LiveWorkflow:
         auto: bool = True,
         thresholds: CaptureThresholds | None = None,
         on_capture: Callable[[Capture], None] | None = None,
+        on_refusal: Callable[[str], None] | None = None,
     ) -> None:
         self._lock = threading.Lock()
+        self.on_refusal = on_refusal
+        self._capture_requested = False
+        self._log_path = str(log_path) if log_path is not None else None
         self.profile = get_profile(profile) if isinstance(profile, str) else (profile or get_profile("alto"))
         self.on_capture = on_capture
         self._file: CaptureFile | None = None
@@ -90,7 +100,6 @@ class LiveWorkflow:
         )
         self._blowing = BlowingCurveTracker()
         self._last_break: BlowingCurve | None = None
-        self._last_time_s = float("-inf")
 
     # -- switches ----------------------------------------------------------------------------
 
@@ -116,17 +125,22 @@ class LiveWorkflow:
 
     # -- feeding -----------------------------------------------------------------------------
 
-    def push(self, reading: Any) -> list[Capture]:
-        """Feed one reading (``bench.reading.Reading``, a frame-log row or a FramePoint).
+    def take(self, reading: Reading) -> None:
+        """Feed one reading (the engine's consumer call; see :meth:`push`)."""
+        if reading.log_path != self._log_path:
+            self.set_log_path(reading.log_path)
+        self.push(reading)
+        if self._capture_requested:
+            self._capture_requested = False
+            if self.capture_now() is None and self.on_refusal is not None:
+                self.on_refusal("nothing is sounding to capture; play the note and press g while it sounds")
 
-        Returns the captures that are new or were updated (same index, a register margin
-        learnt from a break); each has been written to the captures file already.
-        """
+    def push(self, reading: Reading) -> list[Capture]:
+        """Feed one reading; returns the captures that are new or were updated (same index,
+        a register margin learnt from a break); each has been written to the captures file
+        already."""
         with self._lock:
             out: list[Capture] = []
-            time_s = getattr(reading, "stream_time_s", None)
-            if time_s is not None:
-                self._last_time_s = max(self._last_time_s, float(time_s))
             cap = self._detector.push(reading)
             if cap is not None:
                 out.append(cap)
@@ -138,22 +152,16 @@ class LiveWorkflow:
         self._tell(out)
         return out
 
-    def push_new(self, readings: Iterable[Any]) -> list[Capture]:
-        """Feed only the readings newer than any fed before (by ``stream_time_s``).
-
-        For a screen that polls ``engine.history(seconds)`` at display rate: pass the whole
-        window each time; readings already seen are skipped.
-        """
-        out: list[Capture] = []
-        for reading in readings:
-            if float(reading.stream_time_s) > self._last_time_s:
-                out += self.push(reading)
-        return out
+    def request_capture(self) -> None:
+        """The capture key, from any thread: the feeding thread captures the note sounding
+        at its next reading (:meth:`capture_now`) and tells ``on_capture`` or ``on_refusal``."""
+        self._capture_requested = True
 
     def set_log_path(self, log_path: str | Path | None) -> None:
         """The session log moved to a new file (or stopped): captures from now on go beside
         the new log. Captures so far stay in memory and keep their numbers."""
         with self._lock:
+            self._log_path = str(log_path) if log_path is not None else None
             if self._file is not None:
                 self._file.close()
                 self._file = None

@@ -40,7 +40,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from bench.errors import SettingsError
-from bench.workflow.notenames import freq_of_midi, note_name, parse_note
+from bench.tuning.notes import note_name, parse_note
 
 __all__ = [
     "InstrumentProfile",
@@ -98,7 +98,7 @@ class InstrumentProfile:
     @property
     def lowest_hz(self) -> float:
         """Equal-tempered frequency of the lowest note at A4 = 440 Hz, Hz."""
-        return freq_of_midi(self.lowest_midi)
+        return float(440.0 * 2.0 ** ((self.lowest_midi - 69) / 12))
 
     @property
     def register_count(self) -> int:

@@ -8,8 +8,9 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from bench.errors import LogError
-from bench.framelog import FRAME_LOG_COLUMNS, read_frame_log
-from bench.workflow.captures import CAPTURE_COLUMNS, Capture, captures_from_rows, captures_path_for, read_captures
+from bench.framelog import FRAME_LOG_COLUMNS, iter_readings
+from bench.reading import Reading
+from bench.workflow.captures import CAPTURE_COLUMNS, Capture, captures_from_readings, captures_path_for, read_captures
 from bench.workflow.profiles import InstrumentProfile, get_profile, guess_profile
 
 __all__ = ["Session", "load_session"]
@@ -26,8 +27,8 @@ class Session:
     captures : list of Capture
     captures_from : str
         Where the captures came from: the captures file's path, or "computed from the frame log".
-    rows : list of dict or None
-        Frame-log rows (None when only a captures file was given).
+    readings : list of Reading or None
+        The frame log's readings (None when only a captures file was given).
     profile : InstrumentProfile
         The profile asked for, or the family member that best fits the notes played.
     """
@@ -35,7 +36,7 @@ class Session:
     path: Path
     captures: list[Capture]
     captures_from: str
-    rows: list[dict[str, str]] | None
+    readings: list[Reading] | None
     profile: InstrumentProfile
 
 
@@ -69,12 +70,12 @@ def load_session(path: str | Path, profile: str | Path | InstrumentProfile | Non
         raise LogError(f"{path} is a folder; give a session's frame log (.csv)")
     prof = get_profile(profile) if isinstance(profile, (str, Path)) else profile
     header = _header(path)
-    rows: list[dict[str, str]] | None = None
+    rows: list[Reading] | None = None
     if tuple(header) == CAPTURE_COLUMNS:
         caps = read_captures(path)
         source = str(path)
     elif tuple(header[: len(FRAME_LOG_COLUMNS)]) == FRAME_LOG_COLUMNS:
-        rows = read_frame_log(path)
+        rows = list(iter_readings(path))
         side = captures_path_for(path)
         if side.exists():
             caps = read_captures(side)
@@ -87,8 +88,8 @@ def load_session(path: str | Path, profile: str | Path | InstrumentProfile | Non
     if prof is None:
         prof = guess_profile([c.midi for c in caps if c.mode in (None, 1)])
     if rows is not None and not caps:
-        caps = captures_from_rows(rows, profile=prof)
+        caps = captures_from_readings(rows, profile=prof)
         if prof is not None and profile is None:  # refine the guess on what was found
             prof = guess_profile([c.midi for c in caps if c.mode in (None, 1)])
-            caps = captures_from_rows(rows, profile=prof)
+            caps = captures_from_readings(rows, profile=prof)
     return Session(path, caps, source, rows, prof)

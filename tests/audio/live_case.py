@@ -180,7 +180,7 @@ def main() -> int:
     ap.add_argument("--kill-after", type=float, default=1.5, metavar="S")
     args = ap.parse_args()
 
-    from bench.engine import Engine
+    from bench.engine import Engine, ReadingCallback
     from bench.sources.mic import MicSource
     from bench.tuning import TuningSettings
 
@@ -199,7 +199,7 @@ def main() -> int:
         TuningSettings(),
         log_path=args.log,
         on_event=lambda e: events.append({"kind": e.kind, "message": e.message, "time_s": e.time_s}),
-        on_reading=on_reading,
+        consumers=[ReadingCallback(on_reading)],
         analyser_factory=AubioAnalyser if args.analyser == "aubio" else None,
     )
     feeder = None

@@ -72,6 +72,8 @@ class ScriptedSource:
     ``"drop"`` (counts one dropped block before handing the block out).
     """
 
+    input_latency_s = 0.0
+
     def __init__(self, blocks, sample_rate: int = 48000, script=None) -> None:
         self.sample_rate = sample_rate
         self.dropped_blocks = 0

@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-from bench.engine import Engine, EngineEvent
+from bench.engine import Engine, EngineEvent, ReadingCallback
 from bench.errors import LogError
 from bench.framelog import read_frame_log
 from bench.sources.base import ManualClock, frame_blocks
@@ -71,9 +71,9 @@ def test_settings_change_mid_stream_shows_in_the_following_rows(tmp_path):
     def on_reading(reading):  # engine thread, like a UI change landing between frames
         if not changed_at and reading.stream_time_s >= 0.5:
             changed_at.append(reading.stream_time_s)
-            engine.set_settings(baroque)
+            engine.update_settings(a4_hz=415.0)
 
-    engine = Engine(source, TuningSettings(), log_path=log, on_reading=on_reading, analyser_factory=FakeAnalyser)
+    engine = Engine(source, TuningSettings(), log_path=log, consumers=[ReadingCallback(on_reading)], analyser_factory=FakeAnalyser)
     _run_to_end(engine)
     rows = read_frame_log(log)
     before = [r for r in rows if float(r["time_s"]) <= changed_at[0] + 1e-9]
@@ -93,7 +93,7 @@ def test_stop_joins_the_thread_and_closes_the_log(tmp_path):
     source = DemoSource(RATE, realtime=False)  # loops forever
     engine = Engine(source, TuningSettings(), log_path=log, analyser_factory=FakeAnalyser)
     seen = threading.Event()
-    engine._on_reading = lambda r: seen.set() if r.stream_time_s > 1.0 else None  # noqa: SLF001
+    engine.add_consumer(ReadingCallback(lambda r: seen.set() if r.stream_time_s > 1.0 else None))
     engine.start()
     assert seen.wait(30)
     engine.stop(timeout_s=5.0)
@@ -135,7 +135,7 @@ def test_dropped_blocks_reach_the_readings():
     source = ScriptedSource(blocks, script={5: "drop", 6: "drop", 30: "drop"})
     drops: list[tuple[float, int]] = []
     engine = Engine(
-        source, TuningSettings(), analyser_factory=FakeAnalyser, on_reading=lambda r: drops.append((r.stream_time_s, r.dropped_blocks))
+        source, TuningSettings(), analyser_factory=FakeAnalyser, consumers=[ReadingCallback(lambda r: drops.append((r.stream_time_s, r.dropped_blocks)))]
     )
     _run_to_end(engine)
     assert engine.latest().dropped_blocks == 3
@@ -199,7 +199,7 @@ def test_start_and_stop_log_while_running(tmp_path):
     source = DemoSource(RATE, realtime=False)
     engine = Engine(source, TuningSettings(), analyser_factory=FakeAnalyser)
     got = threading.Event()
-    engine._on_reading = lambda r: got.set() if r.log_path else None  # noqa: SLF001
+    engine.add_consumer(ReadingCallback(lambda r: got.set() if r.log_path else None))
     engine.start()
     try:
         path = engine.start_log(tmp_path / "logs")

@@ -7,6 +7,7 @@ import csv
 import pytest
 
 from bench.errors import LogError
+from bench.reading import make_reading
 from bench.framelog import (
     FRAME_LOG_COLUMNS,
     CsvFrameLog,
@@ -14,7 +15,7 @@ from bench.framelog import (
     read_frame_log,
     safe_cell,
 )
-from bench.tuning import TuningSettings, map_frequency
+from bench.tuning import TuningSettings
 from dsp.frame import Frame
 
 HARM = (0.0, -4.0, -9.0, -12.0, -15.0, -20.0, -24.0, -30.0)
@@ -32,7 +33,7 @@ def test_header_is_the_documented_column_order(tmp_path):
     # The column list and order are the project's published format (README "Frame log").
     path = tmp_path / "log.csv"
     with CsvFrameLog(path) as log:
-        log.write(_voiced(0.0), map_frequency(441.0, TuningSettings()), TuningSettings())
+        log.write(make_reading(_voiced(0.0), TuningSettings()))
     header = next(csv.reader(path.open(encoding="utf-8", newline="")))
     assert tuple(header[: len(FRAME_LOG_COLUMNS)]) == (
         "time_s", "ready_s", "f0_hz", "clarity", "level_dbfs", "note", "target_hz",
@@ -47,8 +48,8 @@ def test_rfc4180_line_ends_and_unvoiced_rows_leave_pitch_empty(tmp_path):
     path = tmp_path / "log.csv"
     s = TuningSettings()
     with CsvFrameLog(path) as log:
-        log.write(_voiced(0.0), map_frequency(441.0, s), s)
-        log.write(_unvoiced(0.01), None, s)
+        log.write(make_reading(_voiced(0.0), s))
+        log.write(make_reading(_unvoiced(0.01), s))
     raw = path.read_bytes()
     assert raw.count(b"\r\n") == 3
     rows = read_frame_log(path)
@@ -63,7 +64,7 @@ def test_torn_last_line_is_dropped_not_fatal(tmp_path):
     s = TuningSettings()
     with CsvFrameLog(path) as log:
         for i in range(5):
-            log.write(_voiced(i * 0.01), map_frequency(441.0, s), s)
+            log.write(make_reading(_voiced(i * 0.01), s))
     data = path.read_bytes()
     path.write_bytes(data[:-20])  # a writer killed mid-row
     rows = read_frame_log(path)
@@ -92,9 +93,9 @@ def test_rows_reach_the_os_within_the_flush_interval(tmp_path):
     path = tmp_path / "log.csv"
     s = TuningSettings()
     log = CsvFrameLog(path, flush_interval_s=1.0, clock=lambda: now[0])
-    log.write(_voiced(0.0), map_frequency(441.0, s), s)
+    log.write(make_reading(_voiced(0.0), s))
     now[0] = 1.5
-    log.write(_voiced(0.01), map_frequency(441.0, s), s)
+    log.write(make_reading(_voiced(0.01), s))
     # read through a separate handle while the writer is still open
     assert len(read_frame_log(path)) == 2
     log.close()

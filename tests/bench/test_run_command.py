@@ -80,7 +80,7 @@ def test_temperature_source_sets_the_air_in_the_log(tmp_path, capsys):
         (["run", "--rate", "abc"], "--rate 'abc' is not a number"),
         (["run", "--rate", "8000", "--input", "demo"], "--rate 8000 Hz is out of range; use 16000-96000"),
         (["run", "--block", "4", "--input", "demo"], "--block 4 is out of range"),
-        (["run", "--input", "missing.wav", "--no-ui"], "no such audio file: missing.wav"),
+        (["run", "--input", "missing.wav", "--no-ui"], "missing.wav: no such file"),
         (["run", "--duration", "5", "--input", "demo"], "--duration applies to --no-ui"),
         (["run", "--log-rate", "0", "--input", "demo", "--no-ui"], "--log-rate '0' must be above 0"),
         (["run", "--temp-source", "cmd:", "--input", "demo"], "names no command"),

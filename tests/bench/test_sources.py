@@ -93,7 +93,7 @@ def test_file_source_rejects_unreadable_files(tmp_path, content):
     bad.write_bytes(content)
     with pytest.raises(AudioFileError, match="bad.wav"):
         WavFileSource(bad)
-    with pytest.raises(AudioFileError, match="no such audio file"):
+    with pytest.raises(AudioFileError, match="missing.wav: no such file"):
         WavFileSource(tmp_path / "missing.wav")
 
 
@@ -323,8 +323,10 @@ def test_air_temperature_follower_updates_the_settings_and_reports_failure_once(
     class FakeEngine:
         settings = TuningSettings()
 
-        def set_settings(self, s):
-            self.settings = s
+        def update_settings(self, **changes):
+            import dataclasses
+
+            self.settings = dataclasses.replace(self.settings, **changes)
 
     f = tmp_path / "t.txt"
     f.write_text("24.0")

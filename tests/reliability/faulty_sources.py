@@ -33,6 +33,8 @@ class FastSineSource:
     ``n_blocks`` None runs forever; otherwise ``ended`` turns True after that many blocks.
     """
 
+    input_latency_s = 0.0
+
     def __init__(self, freq_hz: float = 440.0, n_blocks: int | None = None, *,
                  sample_rate: int = SAMPLE_RATE, block_size: int = BLOCK_SIZE) -> None:
         self.sample_rate = sample_rate
@@ -75,6 +77,8 @@ class FastSineSource:
 
 class _Wrapper:
     """Passes the AudioSource attributes through to ``inner``."""
+
+    input_latency_s = 0.0
 
     def __init__(self, inner) -> None:  # type: ignore[no-untyped-def]
         self.inner = inner
@@ -273,6 +277,8 @@ class HangingSource(_Wrapper):
 
 class ScriptedBlocksSource:
     """Hands out the given blocks once, then ends (blocks may be anything, NaN included)."""
+
+    input_latency_s = 0.0
 
     def __init__(self, blocks, sample_rate: int = SAMPLE_RATE) -> None:  # type: ignore[no-untyped-def]
         self.sample_rate = sample_rate

@@ -18,8 +18,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from bench.reading import make_reading
 from bench.framelog import CsvFrameLog, frame_row, read_frame_log, safe_cell
-from bench.tuning import TuningSettings, map_frequency
+from bench.tuning import TuningSettings
 from bench.workflow.captures import Capture, capture_row, read_captures, write_captures
 from dsp.frame import Frame
 
@@ -127,9 +128,8 @@ def test_every_text_cell_of_the_frame_log_is_safe(tmp_path, locked_note, tempera
     path = tmp_path / "take.csv"
     with CsvFrameLog(path) as log:
         for f0 in (None, 207.0, 415.0, 3000.0):
-            frame = _frame(f0)
-            mapping = map_frequency(f0, s) if f0 else None
-            log.write(frame, mapping, s, locked_note)
+            locked = 69 if locked_note is not None else None
+            log.write(make_reading(_frame(f0), s, locked_midi=locked, locked_note=locked_note))
     rows = _cells_as_a_spreadsheet_sees_them(path)
     for row in rows[1:]:
         for cell in row:
@@ -141,7 +141,7 @@ def test_negative_numbers_stay_numbers():
     # Cents below the note are numbers, not text: a spreadsheet must read them as such, so
     # they are not quoted (OWASP's rule is for text cells).
     s = TuningSettings()
-    row = frame_row(_frame(430.0), map_frequency(430.0, s), s)
+    row = frame_row(make_reading(_frame(430.0), s))
     cents = row[8]
     assert cents.startswith("-") and float(cents) < 0
 
@@ -149,6 +149,6 @@ def test_negative_numbers_stay_numbers():
 def test_frame_log_quotes_separators_and_quotes():
     s = dataclasses.replace(TuningSettings())
     buf = io.StringIO()
-    csv.writer(buf).writerow(frame_row(_frame(440.0), map_frequency(440.0, s), s, 'A4 "held", soft'))
+    csv.writer(buf).writerow(frame_row(make_reading(_frame(440.0), s, locked_midi=69, locked_note='A4 "held", soft')))
     back = next(csv.reader(io.StringIO(buf.getvalue())))
     assert back[-2] == 'A4 "held", soft'

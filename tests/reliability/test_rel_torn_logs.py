@@ -8,8 +8,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from bench.errors import LogError
+from bench.reading import make_reading
 from bench.framelog import CsvFrameLog, frame_row, read_frame_log
-from bench.tuning import TuningSettings, map_frequency
+from bench.tuning import TuningSettings
 from dsp.frame import Frame
 
 N_ROWS = 40
@@ -31,7 +32,7 @@ def full_log(tmp_path_factory):
     with CsvFrameLog(path) as log:
         for i in range(N_ROWS):
             frame = _frame(i)
-            log.write(frame, map_frequency(frame.f0_hz, s) if frame.f0_hz else None, s, "A4" if i > 20 else None)
+            log.write(make_reading(frame, s, locked_midi=69 if i > 20 else None, locked_note="A4" if i > 20 else None))
     data = path.read_bytes()
     rows = read_frame_log(path)
     assert len(rows) == N_ROWS
@@ -77,7 +78,7 @@ def test_a_log_that_is_not_utf8_or_not_csv_gives_one_line(tmp_path):
 
 def test_a_cell_with_a_quoted_line_end_reads_back_exactly(tmp_path):
     s = TuningSettings()
-    row = frame_row(_frame(1), map_frequency(440.0, s), s)
+    row = frame_row(make_reading(_frame(1), s))
     row[-2] = "line one\r\nline two\rthree"  # locked_note cell, quoted by the csv writer
     path = tmp_path / "take.csv"
     with CsvFrameLog(path) as log:

@@ -365,7 +365,7 @@ def test_settings_changed_elsewhere_are_shown(engine, make_app):
     async def scenario():
         app = make_app(engine)
         async with app.run_test(size=SIZE) as pilot:
-            engine.set_settings(TuningSettings(temp_c=24.0))  # e.g. a temperature sensor
+            engine.update_settings(temp_c=24.0)  # e.g. a temperature sensor
             await until(pilot, lambda: "24.0\u00b0C" in panel_text(app))
 
     run(scenario())

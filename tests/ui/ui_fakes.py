@@ -5,8 +5,8 @@ from __future__ import annotations
 import dataclasses
 from pathlib import Path
 
-from bench.reading import Reading
-from bench.tuning import NoteMapping, TuningSettings, map_frequency
+from bench.reading import Reading, make_reading
+from bench.tuning import TuningSettings
 from dsp.frame import Frame
 
 
@@ -42,6 +42,7 @@ class FakeEngine:
         self.cpu_s = 0.0  # analysis-thread CPU seconds so far
         self.start_error: Exception | None = None
         self.settings_seen: list[TuningSettings] = []
+        self.consumers: list[object] = []
 
     # engine API
     def start(self) -> None:
@@ -52,6 +53,19 @@ class FakeEngine:
     def stop(self, timeout_s: float = 1.0) -> None:
         self.stopped, self.state = True, "stopped"
         self.log_path = None
+        consumers, self.consumers = self.consumers, []
+        for c in consumers:
+            c.close()  # type: ignore[attr-defined]
+
+    @property
+    def running(self) -> bool:
+        return self.started and not self.stopped
+
+    def add_consumer(self, consumer: object) -> None:
+        self.consumers.append(consumer)
+
+    def remove_consumer(self, consumer: object) -> None:
+        self.consumers = [c for c in self.consumers if c is not consumer]
 
     def latest(self) -> Reading | None:
         return self.readings[-1] if self.readings else None
@@ -66,9 +80,11 @@ class FakeEngine:
     def settings(self) -> TuningSettings:
         return self._settings
 
-    def set_settings(self, s: TuningSettings) -> None:
+    def update_settings(self, **changes: object) -> TuningSettings:
+        s = dataclasses.replace(self._settings, **changes)  # type: ignore[arg-type]
         self._settings = s
         self.settings_seen.append(s)
+        return s
 
     def lock(self, midi: int | None) -> None:
         self.locked_midi = midi
@@ -113,17 +129,14 @@ class FakeEngine:
             jump=jump if voiced else None,
             held_f0_hz=f0_hz if held_f0_hz is None else held_f0_hz,
         )
-        mapping: NoteMapping | None = (
-            map_frequency(f0_hz, self._settings, self.locked_midi) if voiced else None
-        )
-        reading = Reading(
-            frame=frame,
-            mapping=mapping,
-            settings=self._settings,
+        reading = make_reading(
+            frame,
+            self._settings,
             locked_midi=self.locked_midi,
-            stream_time_s=time_s,
             dropped_blocks=self.dropped_blocks,
             log_path=None if self.log_path is None else str(self.log_path),
         )
         self.readings.append(reading)
+        for c in self.consumers:  # the engine thread's work, done here at once
+            c.take(reading)  # type: ignore[attr-defined]
         return reading

@@ -1,5 +1,6 @@
 """Synthetic sessions for the workflow tests: dsp.synth renders, dsp.analyser (or the synth's
-own truth) makes frame-log rows exactly as ``bench.framelog.read_frame_log`` returns them."""
+own truth) makes readings; each goes through a frame-log row and back
+(``bench.framelog.frame_row`` then ``reading_from_row``), as a session log read later gives them."""
 
 from __future__ import annotations
 
@@ -8,8 +9,9 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from bench.framelog import EXTRA_COLUMNS, FRAME_LOG_COLUMNS, frame_row
-from bench.tuning import TuningSettings, map_frequency
+from bench.framelog import EXTRA_COLUMNS, FRAME_LOG_COLUMNS, frame_row, reading_from_row
+from bench.reading import Reading, make_reading
+from bench.tuning import TuningSettings
 from dsp.frame import Frame
 from dsp.synth import NoteEvent, Rendering, render
 
@@ -22,14 +24,13 @@ def equal_hz(midi: int, a4_hz: float = 440.0) -> float:
     return a4_hz * 2.0 ** ((midi - 69) / 12)
 
 
-def row_dict(frame: Frame, settings: TuningSettings) -> dict[str, str]:
-    """A frame-log row as read_frame_log gives it (all cells text)."""
-    mapping = map_frequency(frame.f0_hz, settings) if frame.f0_hz is not None else None
-    return dict(zip(COLUMNS, frame_row(frame, mapping, settings), strict=True))
+def row_dict(frame: Frame, settings: TuningSettings) -> Reading:
+    """A frame's reading after a trip through a frame-log row (all cells text) and back."""
+    return reading_from_row(dict(zip(COLUMNS, frame_row(make_reading(frame, settings)), strict=True)))
 
 
-def analyse(rendering: Rendering, settings: TuningSettings | None = None) -> list[dict[str, str]]:
-    """Frame-log rows of a rendering through dsp.analyser.StreamingAnalyser."""
+def analyse(rendering: Rendering, settings: TuningSettings | None = None) -> list[Reading]:
+    """Readings of a rendering through dsp.analyser.StreamingAnalyser (via frame-log rows)."""
     from dsp.analyser import StreamingAnalyser
 
     settings = settings or TuningSettings()
@@ -39,8 +40,8 @@ def analyse(rendering: Rendering, settings: TuningSettings | None = None) -> lis
 
 def truth_rows(
     rendering: Rendering, settings: TuningSettings | None = None, hop_s: float = 0.005
-) -> list[dict[str, str]]:
-    """Frame-log rows made from the synth's exact truth (no analyser), every ``hop_s``."""
+) -> list[Reading]:
+    """Readings made from the synth's exact truth (no analyser), every ``hop_s`` (via frame-log rows)."""
     settings = settings or TuningSettings()
     times = np.arange(0.0, rendering.score.duration_s, hop_s)
     tr = rendering.truth(times)

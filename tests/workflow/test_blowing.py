@@ -6,8 +6,12 @@ import numpy as np
 import pytest
 import scipy.stats
 
-from bench.workflow.blowing import BlowingCurveTracker, blowing_curve, find_blowing_curves, fit_line
-from bench.workflow.points import point_from_log_row
+from bench.workflow.blowing import (
+    BlowingCurveTracker,
+    blowing_curve,
+    find_blowing_curves,
+    fit_line,
+)
 from dsp.synth import NoteEvent
 
 from .sessions import analyse, render_events, truth_rows
@@ -74,7 +78,7 @@ def test_break_level_through_the_analyser(kind):
     # The same through dsp.analyser, once its register monitor reports the jump.
     r, jump_level = _jumping_crescendo(kind)
     rows = analyse(r)
-    if not any(row["register"] == "jumped" for row in rows):
+    if not any(row.register_state == "jumped" for row in rows):
         pytest.skip("the analyser reported no register jump for this crescendo")
     curve = blowing_curve(rows, "F4")
     assert curve is not None and curve.break_level_dbfs is not None
@@ -114,7 +118,7 @@ def test_tracker_frame_by_frame_equals_pure_function_and_reset_repeats():
     r, _ = _jumping_crescendo("overblown")
     rows = truth_rows(r)
     tr = BlowingCurveTracker()
-    breaks = [b for row in rows if (b := tr.push(point_from_log_row(row))) is not None]
+    breaks = [b for row in rows if (b := tr.push(row)) is not None]
     tr.finish()
     assert len(breaks) == 1
     assert tr.finished[0] == blowing_curve(rows)

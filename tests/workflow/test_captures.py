@@ -3,6 +3,8 @@ dsp.analyser or taken from the synth's exact truth (named in each test)."""
 
 from __future__ import annotations
 
+import dataclasses
+
 import csv
 import math
 
@@ -11,21 +13,22 @@ import pytest
 import scipy.stats
 
 from bench.errors import LogError
-from bench.reading import Reading
-from bench.tuning import TuningSettings, map_frequency
+from bench.framelog import reading_from_row
+from bench.reading import make_reading
+from bench.segment import ATTACK_S
+from bench.tuning import TuningSettings
 from bench.workflow.captures import (
     CAPTURE_COLUMNS,
     CaptureDetector,
     CaptureFile,
     CaptureThresholds,
     capture_row,
-    captures_from_rows,
+    captures_from_readings,
     captures_path_for,
     read_captures,
     scaled_mad,
     write_captures,
 )
-from bench.workflow.points import point_from_log_row
 from bench.workflow.profiles import get_profile
 from dsp.synth import NoteEvent
 
@@ -48,7 +51,7 @@ def scale_rows(scale_rendering):
 def test_one_capture_per_note_with_the_synth_offsets(scale_rendering, scale_rows):
     # Truth: the synth renders each note OFFSETS[m] cents off 12-TET (REFERENCES §1 formula);
     # the analyser's reading must come back within 0.5 c.
-    caps = captures_from_rows(scale_rows, profile=ALTO)
+    caps = captures_from_readings(scale_rows, profile=ALTO)
     assert [c.midi for c in caps] == list(OFFSETS)
     for cap in caps:
         assert cap.cents == pytest.approx(OFFSETS[cap.midi], abs=0.5)
@@ -61,9 +64,9 @@ def test_one_capture_per_note_with_the_synth_offsets(scale_rendering, scale_rows
 
 def test_attack_is_left_out_and_stretch_is_long_enough(scale_rendering, scale_rows):
     th = CaptureThresholds()
-    caps = captures_from_rows(scale_rows, profile=ALTO)
+    caps = captures_from_readings(scale_rows, profile=ALTO)
     for cap, (start_s, end_s, _ev) in zip(caps, scale_rendering.notes, strict=True):
-        assert cap.start_s >= start_s + th.attack_s - 0.01
+        assert cap.start_s >= start_s + ATTACK_S - 0.01
         assert cap.end_s <= end_s
         assert cap.duration_s >= th.settle_s
 
@@ -82,7 +85,7 @@ def test_vibrato_spread_follows_from_the_sine():
     # scaled MAD is 1.4826 * A / sqrt(2) = 1.048 A. Truth rows (no analyser).
     a = 2.0
     r = render_events([NoteEvent(440.0, 2.0, vibrato_cents=a, vibrato_hz=5.0)])
-    caps = captures_from_rows(truth_rows(r, hop_s=0.002))
+    caps = captures_from_readings(truth_rows(r, hop_s=0.002))
     assert len(caps) == 1
     assert caps[0].cents == pytest.approx(0.0, abs=0.2)
     assert caps[0].cents_spread == pytest.approx(1.4826 * a / math.sqrt(2), rel=0.08)
@@ -91,23 +94,23 @@ def test_vibrato_spread_follows_from_the_sine():
 def test_wide_vibrato_never_settles():
     # +-5 c vibrato never stays within the +-3 c band: no automatic capture
     r = render_events([NoteEvent(440.0, 2.0, vibrato_cents=5.0, vibrato_hz=5.0)])
-    assert captures_from_rows(truth_rows(r)) == []
+    assert captures_from_readings(truth_rows(r)) == []
 
 
 def test_crescendo_is_not_a_capture():
     # 16 dB over 4 s (4 dB/s) is faster than the 2 dB/s drift limit
     r = render_events([NoteEvent(349.2282, 4.0, level_dbfs=-32, crescendo_db=16, cents_per_db=0.2)])
-    assert captures_from_rows(truth_rows(r)) == []
+    assert captures_from_readings(truth_rows(r)) == []
 
 
 def test_short_note_is_not_captured():
     # 0.35 s of tone: 150 ms attack + 300 ms steadiness do not fit
     r = render_events([NoteEvent(440.0, 0.35)])
-    assert captures_from_rows(truth_rows(r)) == []
+    assert captures_from_readings(truth_rows(r)) == []
 
 
 def test_feeding_frame_by_frame_equals_one_shot_and_reset_repeats(scale_rows):
-    once = captures_from_rows(scale_rows, profile=ALTO)
+    once = captures_from_readings(scale_rows, profile=ALTO)
     det = CaptureDetector(profile=ALTO)
     got = [c for row in scale_rows if (c := det.push(row)) is not None]
     last = det.finish()
@@ -122,24 +125,18 @@ def test_feeding_frame_by_frame_equals_one_shot_and_reset_repeats(scale_rows):
 
 
 def test_live_frames_give_the_same_captures_as_log_rows(scale_rendering):
-    # The live path (Frame + NoteMapping + settings, or a Reading) against the logged path
+    # The live path (readings as the engine makes them) against the logged path (the same
+    # frames through frame-log rows and back)
     from dsp.analyser import StreamingAnalyser
 
     settings = TuningSettings()
     frames = StreamingAnalyser(48000).process(scale_rendering.audio)
-    det_frames, det_readings = CaptureDetector(profile=ALTO), CaptureDetector(profile=ALTO)
-    for f in frames:
-        m = map_frequency(f.f0_hz, settings) if f.f0_hz is not None else None
-        det_frames.push(f, m, settings)
-        det_readings.push(Reading(f, m, settings, None, f.time_s, 0, None))
-    det_frames.finish()
-    det_readings.finish()
-    logged = captures_from_rows(analyse(scale_rendering), profile=ALTO)
-    assert det_frames.captures == det_readings.captures
-    assert len(det_frames.captures) == len(logged)
-    for a, b in zip(det_frames.captures, logged, strict=True):
+    live = captures_from_readings([make_reading(f, settings) for f in frames], profile=ALTO)
+    logged = captures_from_readings(analyse(scale_rendering), profile=ALTO)
+    assert len(live) == len(logged) > 0
+    for a, b in zip(live, logged, strict=True):
         assert (a.midi, a.frames, a.start_s) == (b.midi, b.frames, pytest.approx(b.start_s, abs=1e-6))
-        assert a.cents == pytest.approx(b.cents, abs=2e-3)  # log keeps 3 decimals
+        assert a.cents == pytest.approx(b.cents, abs=0.002)  # the log keeps 3 decimals
 
 
 def test_manual_capture_with_auto_off(scale_rows):
@@ -148,7 +145,7 @@ def test_manual_capture_with_auto_off(scale_rows):
     cap = None
     for row in scale_rows:
         assert det.push(row) is None
-        if float(row["time_s"]) >= 2.5 and cap is None:  # inside the third note (A4, -9 c)
+        if row.time_s >= 2.5 and cap is None:  # inside the third note (A4, -9 c)
             cap = det.capture_now()
     assert det.finish() is None
     assert cap is not None and cap.source == "manual" and cap.label == "hole 2 check"
@@ -160,7 +157,7 @@ def test_manual_capture_with_auto_off(scale_rows):
 def test_manual_capture_of_the_last_frames(scale_rows):
     det = CaptureDetector(auto=False)
     for row in scale_rows:
-        if float(row["time_s"]) > 2.5:  # inside the third note (A4, -9 c)
+        if row.time_s > 2.5:  # inside the third note (A4, -9 c)
             break
         det.push(row)
     cap = det.capture_now(last_frames=10)
@@ -201,7 +198,7 @@ def test_register_margin_from_a_crescendo_break():
     # Truth rows: the synth's own register state marks the jump. Margin = break level minus
     # the capture's level; the break level reads ~0.07 x 4 dB/s low (see bench.workflow.blowing).
     r, jump_level = _crescendo_session()
-    caps = captures_from_rows(truth_rows(r), profile=ALTO)
+    caps = captures_from_readings(truth_rows(r), profile=ALTO)
     f4 = [c for c in caps if c.note == "F4"]
     assert len(f4) == 2  # the crescendo itself is not captured
     assert f4[0].register_margin_db == pytest.approx(jump_level - (-26.0), abs=0.5)
@@ -227,7 +224,7 @@ def test_overblown_note_is_marked_with_its_mode():
     # A held F4 that jumps to the octave and stays there steadily (synth truth): mode 2, jump
     # "overblown", register 2 (Fletcher & Rossing: open pipe, octave = mode 2).
     r = render_events([NoteEvent(349.2282, 2.0, jump_at_s=0.8, jump_kind="overblown", jump_level_db=0.0)])
-    caps = captures_from_rows(truth_rows(r), profile=ALTO)
+    caps = captures_from_readings(truth_rows(r), profile=ALTO)
     assert [(c.note, c.mode, c.jump, c.register) for c in caps] == [
         ("F4", 1, "", 1),
         ("F5", 2, "overblown", 2),
@@ -236,7 +233,7 @@ def test_overblown_note_is_marked_with_its_mode():
 
 def test_capture_file_round_trip_and_spreadsheet_safety(tmp_path, scale_rows):
     # OWASP "CSV Injection": cells starting with = + - @ must not run as formulas
-    caps = captures_from_rows(scale_rows, profile=ALTO)
+    caps = captures_from_readings(scale_rows, profile=ALTO)
     labels = ["=HYPERLINK(\"http://x\")", "+1", "-2+3", "@SUM(A1)", "after undercutting hole 3"]
     import dataclasses
 
@@ -257,7 +254,7 @@ def test_capture_file_round_trip_and_spreadsheet_safety(tmp_path, scale_rows):
 def test_capture_file_appends_and_later_rows_replace(tmp_path, scale_rows):
     import dataclasses
 
-    caps = captures_from_rows(scale_rows, profile=ALTO)
+    caps = captures_from_readings(scale_rows, profile=ALTO)
     path = tmp_path / "s.captures.csv"
     with CaptureFile(path) as f:
         f.write(caps[0])
@@ -270,7 +267,7 @@ def test_capture_file_appends_and_later_rows_replace(tmp_path, scale_rows):
 
 
 def test_capture_file_torn_last_line_and_bad_files(tmp_path, scale_rows):
-    caps = captures_from_rows(scale_rows, profile=ALTO)
+    caps = captures_from_readings(scale_rows, profile=ALTO)
     path = write_captures(tmp_path / "s.captures.csv", caps)
     text = path.read_text(encoding="utf-8")
     path.write_text(text + "99,torn,auto,F4", encoding="utf-8")
@@ -297,11 +294,11 @@ def test_captures_path_beside_the_log(tmp_path):
     )
 
 
-def test_point_from_log_row_reads_unvoiced_and_quoted_cells():
-    p = point_from_log_row({"time_s": "1.5", "f0_hz": "", "level_dbfs": "-inf", "note": "", "cents": "",
-                            "temperament": "'=evil", "a4_hz": "415.00"})
+def test_reading_from_log_row_reads_unvoiced_and_quoted_cells():
+    p = reading_from_row({"time_s": "1.5", "f0_hz": "", "level_dbfs": "-inf", "note": "", "cents": "",
+                          "temperament": "'=evil", "a4_hz": "415.00"})
     assert not p.voiced and p.level_dbfs == -math.inf
-    assert p.settings.temperament == "=evil" and p.settings.a4_hz == 415.0
+    assert p.key.temperament == "=evil" and p.key.a4_hz == 415.0
 
 
 def test_thresholds_validate():
@@ -313,7 +310,7 @@ def test_thresholds_validate():
 def test_thinned_log_still_gives_the_captures(scale_rows, every):
     # a log written at 20 or 10 rows a second (bench run --log-rate): every 10th/20th 5-ms frame
     thin = scale_rows[::every]
-    caps = captures_from_rows(thin, profile=ALTO)
+    caps = captures_from_readings(thin, profile=ALTO)
     assert [c.midi for c in caps] == list(OFFSETS)
     for cap in caps:
         assert cap.cents == pytest.approx(OFFSETS[cap.midi], abs=0.5)
@@ -323,13 +320,12 @@ def test_a_stray_octave_frame_does_not_split_the_note():
     # three frames read an octave high (a pitch tracker's octave slip) inside a steady A4
     r = render_events([NoteEvent(440.0, 1.5)])
     rows = truth_rows(r)
-    voiced = [i for i, row in enumerate(rows) if row["f0_hz"]]
+    voiced = [i for i, row in enumerate(rows) if row.voiced]
     mid = voiced[len(voiced) // 2]
     settings = TuningSettings()
     for i in range(mid, mid + 3):
-        m = map_frequency(880.0, settings)
-        rows[i] = {**rows[i], "f0_hz": "880.0000", "note": m.note, "target_hz": f"{m.target_hz:.4f}",
-                   "cents_raw": "0.000", "cents": "0.000"}
-    caps = captures_from_rows(rows)
+        slipped = dataclasses.replace(rows[i].frame, f0_hz=880.0)
+        rows[i] = make_reading(slipped, settings)
+    caps = captures_from_readings(rows)
     assert [c.note for c in caps] == ["A4"]
     assert caps[0].frames == len(voiced) - 30 - 3  # the attack (150 ms at 5 ms) and the slips

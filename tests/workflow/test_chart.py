@@ -12,7 +12,8 @@ import xml.etree.ElementTree as ET
 import pytest
 
 from bench.cli import main
-from bench.workflow.captures import captures_from_rows
+from bench.framelog import CsvFrameLog
+from bench.workflow.captures import captures_from_readings
 from bench.workflow.chart import (
     SUMMARY_COLUMNS,
     build_chart,
@@ -22,18 +23,17 @@ from bench.workflow.chart import (
 )
 from bench.workflow.profiles import get_profile
 
-from .sessions import COLUMNS, render_events, scale_events, truth_rows
+from .sessions import render_events, scale_events, truth_rows
 
 ALTO = get_profile("alto")
 PLAYED = {65: 0.0, 66: -12.0, 67: 3.0, 72: 8.0, 81: -4.0}  # F4 F#4 G4 C5 A5 (A5: register 2)
 
 
-def write_log(path, rows):
-    """A frame log as bench writes it (header FRAME_LOG_COLUMNS + EXTRA_COLUMNS)."""
-    with open(path, "w", encoding="utf-8", newline="") as f:
-        w = csv.DictWriter(f, COLUMNS)
-        w.writeheader()
-        w.writerows(rows)
+def write_log(path, readings):
+    """A frame log as bench writes it (bench.framelog.CsvFrameLog)."""
+    with CsvFrameLog(path) as log:
+        for reading in readings:
+            log.write(reading)
     return path
 
 
@@ -46,7 +46,7 @@ def rows():
 
 @pytest.fixture(scope="module")
 def caps(rows):
-    return captures_from_rows(rows, profile=ALTO)
+    return captures_from_readings(rows, profile=ALTO)
 
 
 def test_chart_has_every_note_and_marks_unchecked(caps):

@@ -8,7 +8,7 @@ import pytest
 
 from bench.cli import main
 from bench.tuning import TuningSettings
-from bench.workflow.captures import captures_from_rows, write_captures
+from bench.workflow.captures import captures_from_readings, write_captures
 from bench.workflow.compare import (
     COMPARISON_COLUMNS,
     compare_captures,
@@ -33,7 +33,7 @@ def _pass(offsets, seed, settings=None, vibrato=False):
 
         events = [dataclasses.replace(e, vibrato_cents=0.8, vibrato_hz=4.5) for e in events]
     rows = analyse(render_events(events, seed=seed), settings)
-    return captures_from_rows(rows, profile=ALTO)
+    return captures_from_readings(rows, profile=ALTO)
 
 
 @pytest.fixture(scope="module")

@@ -1,18 +1,19 @@
-"""The live workflow fed reading by reading, as the engine's on_reading hook would."""
+"""The live workflow fed reading by reading, as the engine feeds its consumers."""
 
 from __future__ import annotations
 
+import dataclasses
 import threading
 
 import pytest
 
-from bench.reading import Reading
-from bench.tuning import TuningSettings, map_frequency
-from bench.workflow.captures import captures_from_rows, read_captures
+from bench.reading import make_reading
+from bench.tuning import TuningSettings
+from bench.workflow.captures import captures_from_readings, read_captures
 from bench.workflow.live import LiveWorkflow
 from dsp.synth import NoteEvent
 
-from .sessions import analyse, render_events, scale_events
+from .sessions import render_events, scale_events
 
 OFFSETS = {65: 1.0, 67: -4.0, 69: 6.0}
 
@@ -29,8 +30,7 @@ def readings():
     s = TuningSettings()
     out = []
     for f in StreamingAnalyser(48000).process(r.audio):
-        m = map_frequency(f.f0_hz, s) if f.f0_hz is not None else None
-        out.append(Reading(f, m, s, None, f.time_s, 0, None))
+        out.append(make_reading(f, s))
     return r, out
 
 
@@ -99,7 +99,7 @@ def test_live_equals_offline(readings):
     wf.finish()
     from bench.workflow.profiles import get_profile
 
-    assert wf.captures() == captures_from_rows(rs, profile=get_profile("alto"))
+    assert wf.captures() == captures_from_readings(rs, profile=get_profile("alto"))
 
 
 def test_reading_from_another_thread_while_feeding(readings):
@@ -134,17 +134,37 @@ def test_file_failure_keeps_capturing(tmp_path, readings):
     assert len(wf.captures()) >= 3
 
 
-def test_polling_the_history_window_feeds_each_reading_once(readings):
-    # a screen polling engine.history(1.0) every 100 ms of input passes overlapping windows
+def test_the_workflow_follows_the_log_its_readings_name(tmp_path, readings):
+    # as an engine consumer, take() follows the session log each reading names: a log started
+    # mid-session gets the captures from then on, beside it
     _, rs = readings
     wf, ref = LiveWorkflow(), LiveWorkflow()
-    for reading in rs:
+    log = tmp_path / "session-20260301-110000.csv"
+    half = len(rs) // 4  # within the second note
+    for k, reading in enumerate(rs):
         ref.push(reading)
-    for end in range(1, len(rs) + 20, 20):
-        end = min(end, len(rs))
-        window = [r for r in rs[:end] if r.stream_time_s > rs[end - 1].stream_time_s - 1.0]
-        wf.push_new(window)
+        wf.take(reading if k < half else dataclasses.replace(reading, log_path=str(log)))
+    wf.close()
     assert wf.captures() == ref.captures()
+    beside = read_captures(tmp_path / "session-20260301-110000.captures.csv")
+    later = {c.index for c in wf.captures() if c.start_s >= rs[half].time_s}
+    assert later and later <= {c.index for c in beside}  # (earlier ones only when a margin updated them)
+
+
+def test_a_requested_capture_is_taken_by_the_feeding_thread(readings):
+    _, rs = readings
+    taken, refused = [], []
+    wf = LiveWorkflow(auto=False, on_capture=taken.append, on_refusal=refused.append)
+    silent = next(r for r in rs if not r.voiced)
+    wf.request_capture()  # nothing sounding yet: refused in one line
+    wf.take(silent)
+    assert taken == [] and len(refused) == 1 and "nothing is sounding" in refused[0]
+    voiced = [r for r in rs if r.voiced]
+    for reading in voiced[:120]:
+        wf.take(reading)
+    wf.request_capture()
+    wf.take(voiced[120])
+    assert len(taken) == 1 and taken[0].source == "manual" and taken[0].note == voiced[120].note
 
 
 def test_new_log_file_mid_session(tmp_path, readings):

@@ -60,7 +60,7 @@ def test_chart_of_the_first_pass(logs, capsys):
     with open(summary, encoding="utf-8", newline="") as f:
         table = {(r["note"], r["register"]): r for r in csv.DictReader(f)}
     for m in ALTO.notes():
-        from bench.workflow.notenames import note_name
+        from bench.tuning.notes import note_name
 
         row = table[(note_name(m), str(ALTO.register_of(m)))]
         assert float(row["cents"]) == pytest.approx(VOICING[m], abs=0.5)

@@ -6,8 +6,13 @@ import librosa
 import pytest
 
 from bench.errors import SettingsError
-from bench.workflow.notenames import note_name
-from bench.workflow.profiles import FAMILY, get_profile, guess_profile, load_profile_file
+from bench.tuning.notes import note_name
+from bench.workflow.profiles import (
+    FAMILY,
+    get_profile,
+    guess_profile,
+    load_profile_file,
+)
 
 # REFERENCES §5 (common practice): lowest note, its Hz at A4 = 440 and the ideal L_eff = c/2f
 # at 343.2 m/s.
@@ -88,13 +93,13 @@ def test_register_split_soprano():
     ],
 )
 def test_display_transposition(name, sounding, written):
-    from bench.workflow.notenames import parse_note
+    from bench.tuning.notes import parse_note
 
     assert get_profile(name).written_name(parse_note(sounding)) == written
 
 
 def test_guess_profile():
-    from bench.workflow.notenames import parse_note
+    from bench.tuning.notes import parse_note
 
     assert guess_profile([parse_note(n) for n in ("F4", "G4", "A4", "C5")]).name == "alto"
     assert guess_profile([parse_note(n) for n in ("C5", "D5", "E5", "D7")]).name == "soprano"
