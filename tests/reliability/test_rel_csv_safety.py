@@ -18,8 +18,15 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from bench.framelog import (
+    EXTRA_COLUMNS,
+    FRAME_LOG_COLUMNS,
+    CsvFrameLog,
+    frame_row,
+    read_frame_log,
+    safe_cell,
+)
 from bench.reading import make_reading
-from bench.framelog import CsvFrameLog, frame_row, read_frame_log, safe_cell
 from bench.tuning import TuningSettings
 from bench.workflow.captures import Capture, capture_row, read_captures, write_captures
 from dsp.frame import Frame
@@ -151,4 +158,4 @@ def test_frame_log_quotes_separators_and_quotes():
     buf = io.StringIO()
     csv.writer(buf).writerow(frame_row(make_reading(_frame(440.0), s, locked_midi=69, locked_note='A4 "held", soft')))
     back = next(csv.reader(io.StringIO(buf.getvalue())))
-    assert back[-2] == 'A4 "held", soft'
+    assert back[(*FRAME_LOG_COLUMNS, *EXTRA_COLUMNS).index("locked_note")] == 'A4 "held", soft'

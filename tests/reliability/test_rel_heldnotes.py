@@ -10,7 +10,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from bench.heldnotes import MIN_NOTE_S, HeldNoteTracker
-from bench.tuning import TuningSettings, map_frequency
+from bench.reading import make_reading
+from bench.tuning import TuningSettings
 from dsp.frame import Frame
 
 S = TuningSettings()
@@ -32,12 +33,6 @@ frames = st.lists(
 )
 
 
-def _mapping(f0_hz):  # type: ignore[no-untyped-def]
-    if f0_hz is None or not (isinstance(f0_hz, float) and math.isfinite(f0_hz) and f0_hz > 0):
-        return None
-    return map_frequency(f0_hz, S)
-
-
 @given(frames)
 @settings(max_examples=300, deadline=None)
 def test_any_frame_sequence_gives_notes_without_raising(seq):
@@ -48,7 +43,7 @@ def test_any_frame_sequence_gives_notes_without_raising(seq):
         t += step
         frame = Frame(time_s=t, ready_s=t + 0.04, f0_hz=f0, clarity=0.9, level_dbfs=level, clipped=False,
                       harmonics_db=None, odd_even_db=None, register=register, jump=jump, held_f0_hz=held)
-        done = tracker.push(frame, _mapping(f0), S)
+        done = tracker.push(make_reading(frame, S))
         if done is not None:
             notes.append(done)
     last = tracker.finish()

@@ -60,10 +60,11 @@ def test_capture_key_puts_the_note_on_the_chart_and_in_the_captures_file(make_ap
             assert app.workflow.auto is False
             assert app.query_one(CaptureLine).auto is False
             hold(engine, hz_at(10.0), 0.8)  # A4, 10 cents sharp
-            await until(pilot, lambda: app.workflow.push_new([]) == [] and app._polls > 5)
+            await until(pilot, lambda: app._polls > 5)
             await pilot.pause(0.2)
             assert app.workflow.captures() == []  # automatic capture is off
             await pilot.press("g")
+            engine.show(hz_at(10.0))  # the engine's next reading carries the request out
             await until(pilot, lambda: len(app.workflow.captures()) == 1)
             cap = app.workflow.captures()[0]
             await pilot.press("v")
@@ -93,6 +94,8 @@ def test_capture_key_with_nothing_sounding_says_so(make_app):
             hold(engine, None, 0.5)
             await pilot.pause(0.2)
             await pilot.press("g")
+            engine.show(None)  # the engine's next reading carries the request out
+            await pilot.pause(0.2)
             return app
 
     app = run(scenario())
@@ -140,6 +143,7 @@ def test_label_dialog_labels_the_next_captures(make_app, tmp_path):
             hold(engine, hz_at(0.0), 0.8)
             await pilot.pause(0.2)
             await pilot.press("g")
+            engine.show(hz_at(0.0))  # the engine's next reading carries the request out
             await until(pilot, lambda: any(c.source == "manual" for c in app.workflow.captures()))
             await pilot.press("e")
             await pilot.press("ctrl+a", "backspace", *("x" * 90), "enter")
@@ -329,10 +333,11 @@ def test_captures_file_that_cannot_be_written_is_shown_and_capturing_goes_on(mak
         app = make_app(engine, log_dir=logs)
         async with app.run_test(size=SIZE) as pilot:
             await pilot.press("s")
+            hold(engine, hz_at(0.0), 0.8)  # the readings name the new log: the workflow follows
             await until(pilot, lambda: app.workflow.file_error is not None)
-            hold(engine, hz_at(0.0), 0.8)
             await pilot.pause(0.2)
             await pilot.press("g")
+            engine.show(hz_at(0.0))  # the engine's next reading carries the request out
             await until(pilot, lambda: any(c.source == "manual" for c in app.workflow.captures()))
             return app, app.query_one(CaptureLine).render().plain
 
