@@ -17,7 +17,6 @@ remembered with :func:`bench.config.save_settings` for the next run.
 from __future__ import annotations
 
 import collections
-import dataclasses
 import gc
 import math
 import threading
@@ -35,13 +34,13 @@ from textual.message import Message
 from textual.reactive import reactive
 from textual.widgets import Footer, Label
 
+from bench.controller import LABEL_MAX_CHARS, Notice, SessionController
 from bench.errors import BenchError, SettingsError
 from bench.reading import Reading
 from bench.tuning import TuningSettings
-from bench.tuning.air import check_temp
 from bench.tuning.mapping import air_correction_cents
-from bench.tuning.notes import note_name, parse_note, parse_pitch_class, pitch_class_name
-from bench.tuning.standards import A4_MAX_HZ, A4_MIN_HZ, PITCH_STANDARDS, check_a4, parse_a4, standard_name
+from bench.tuning.notes import note_name, pitch_class_name
+from bench.tuning.standards import A4_MAX_HZ, A4_MIN_HZ, PITCH_STANDARDS, check_a4, standard_name
 from bench.tuning.temperaments import TEMPERAMENT_IDS, get_temperament
 from bench.ui.blowing_plot import BlowingPlot, shown_slope
 from bench.ui.capture_line import CaptureLine
@@ -72,13 +71,10 @@ _LOAD_SPAN_S = 3.0  # the analysis load shown is averaged over this long, second
 _TRAIL_EVERY = 3  # polls between reads of engine.history (10 Hz at 30 Hz)
 _EARLY_EVENTS = 64  # events kept while the app is not yet listening
 _BLOWING_EVERY = 3  # polls between blowing-curve updates on its view (10 Hz at 30 Hz)
-LABEL_MAX_CHARS = 80
-"""Longest session label, characters."""
 DEFAULT_PROFILE = "alto"
 """Instrument profile when none is given."""
 
 
-_T = TypeVar("_T")
 
 
 @dataclass(frozen=True, slots=True)
@@ -285,16 +281,22 @@ class BenchApp(App[int]):
         """Readings put on screen so far (the benchmark divides it by time)."""
         self._polls = 0
         self._load_samples: collections.deque[tuple[float, float]] = collections.deque()
-        self._save_warned = False
         self._views: dict[Any, Any] = {}
         if profile is None:
             profile = DEFAULT_PROFILE
         self.profile: InstrumentProfile = get_profile(profile) if isinstance(profile, str) else profile
         """Instrument of the session."""
-        self.session_label = check_label(label)
-        """Label put on new captures."""
-        self.workflow: LiveWorkflow | None = None
-        """Captures, chart and blowing curve of the session (built on mount)."""
+        self.session = SessionController(
+            engine,
+            log_dir=self.log_dir,
+            profile=self.profile,
+            label=label,
+            remember=self._save_settings if remember else None,
+            temp_followed=temp_follower is not None,
+            on_capture=self._capture_from_engine,
+            on_refusal=self._refusal_from_engine,
+        )
+        """What the keys do to the session (settings, lock, log, label, captures): no Textual in it."""
         self.chart: TuningChart | None = None
         """Tuning chart of the captures so far."""
         self._captures_file_shown: tuple[Path | None, str | None] = (None, None)
@@ -373,11 +375,28 @@ class BenchApp(App[int]):
             screen.set_class(self.size.height >= 34, "-tall")
             screen.set_class(self.size.width >= 120, "-wide")
 
+    @property
+    def workflow(self) -> LiveWorkflow | None:
+        """Captures, chart and blowing curve of the session (built on mount)."""
+        return self.session.workflow
+
+    @property
+    def session_label(self) -> str:
+        """Label put on new captures."""
+        return self.session.label
+
+    def _tell(self, notice: Notice | None) -> None:
+        """Show the controller's answer to a key, if it has one."""
+        if notice is not None:
+            timeout = 8 if notice.severity == "error" else 3
+            self.notify(notice.text, severity=notice.severity, timeout=timeout)
+
     def on_unmount(self) -> None:
-        if self.workflow is not None:  # the screen is going: no notes to show
-            self.workflow.on_capture = self.workflow.on_refusal = None
+        workflow = self.workflow
+        if workflow is not None:  # the screen is going: no notes to show
+            workflow.on_capture = workflow.on_refusal = None
         self._stop_engine()
-        self._close_workflow()
+        self.session.close_workflow()
         if getattr(self, "_froze_gc", False):
             gc.unfreeze()
             self._froze_gc = False
@@ -558,89 +577,42 @@ class BenchApp(App[int]):
     # -- settings -----------------------------------------------------------------------
 
     def change_settings(self, **changes: Any) -> bool:
-        """Replace fields of the engine's settings, show and remember them.
+        """Change settings through the controller, show them; False (after a one-line
+        error) when the engine refuses them."""
+        notice = self.session.change(**changes)
+        self._after_settings(notice)
+        return notice is None or notice.severity != "error"
 
-        Returns False (after a one-line error) when the engine refuses the new settings.
-        """
-        try:
-            self.engine.update_settings(**changes)
-        except (BenchError, ValueError, TypeError) as exc:
-            self.notify(str(exc), severity="error")
-            return False
+    def _after_settings(self, notice: Notice | None) -> None:
+        self._tell(notice)
         self.settings = self.engine.settings
-        self._remember(self.settings)
-        return True
+        self._show_lock()
 
-    def _remember(self, settings: TuningSettings) -> None:
-        if not self.remember:
-            return
-        try:
-            from bench.config import save_settings
-        except ImportError:
-            return  # settings memory not installed in this build
-        try:
-            save_settings(settings, self.settings_path)
-        except (OSError, BenchError) as exc:
-            if not self._save_warned:
-                self._save_warned = True
-                self.notify(f"settings not remembered: {exc}", severity="warning")
+    def _save_settings(self, settings: TuningSettings) -> None:
+        from bench.config import save_settings
+
+        save_settings(settings, self.settings_path)
 
     def action_temperament(self, step: int) -> None:
-        ids = TEMPERAMENT_IDS
-        current = self.engine.settings.temperament
-        index = ids.index(current) if current in ids else -1 if step > 0 else 0
-        self.change_settings(temperament=ids[(index + step) % len(ids)])
+        self._after_settings(self.session.step_temperament(step))
 
     def action_tonic(self, step: int) -> None:
-        s = self.engine.settings
-        try:
-            pc = parse_pitch_class(s.tonic)
-        except SettingsError:
-            pc = 0
-        self.change_settings(tonic=pitch_class_name(pc + step, flats=s.flats))
+        self._after_settings(self.session.step_tonic(step))
 
     def action_a4(self, step_hz: float) -> None:
-        a4_hz = round(self.engine.settings.a4_hz + step_hz, 2)
-        try:
-            check_a4(a4_hz)
-        except SettingsError as exc:
-            self.notify(str(exc), severity="error")
-            return
-        self.change_settings(a4_hz=a4_hz)
+        self._after_settings(self.session.step_a4(step_hz))
 
     def action_standard(self, step: int) -> None:
-        a4_hz = self.engine.settings.a4_hz
-        values = [std.a4_hz for std in PITCH_STANDARDS]
-        if step > 0:
-            after = [v for v in values if v > a4_hz + 0.005]
-            target = after[0] if after else values[0]
-        else:
-            before = [v for v in values if v < a4_hz - 0.005]
-            target = before[-1] if before else values[-1]
-        self.change_settings(a4_hz=target)
+        self._after_settings(self.session.step_standard(step))
 
     def action_air(self, step_c: float) -> None:
-        self._step_temperature("temp_c", step_c, "air temperature")
+        self._after_settings(self.session.step_temperature("temp_c", step_c))
 
     def action_ref(self, step_c: float) -> None:
-        self._step_temperature("ref_temp_c", step_c, "tuned-at temperature")
-
-    def _step_temperature(self, field: str, step_c: float, what: str) -> None:
-        value = round(getattr(self.engine.settings, field) + step_c, 2)
-        try:
-            check_temp(value, what)
-        except SettingsError as exc:
-            self.notify(str(exc), severity="error")
-            return
-        self.change_settings(**{field: value})
+        self._after_settings(self.session.step_temperature("ref_temp_c", step_c))
 
     def action_flats(self) -> None:
-        s = self.engine.settings
-        try:
-            tonic = pitch_class_name(parse_pitch_class(s.tonic), flats=not s.flats)
-        except SettingsError:
-            tonic = s.tonic
-        self.change_settings(flats=not s.flats, tonic=tonic)
+        self._after_settings(self.session.toggle_flats())
 
     # -- typed values ---------------------------------------------------------------------
 
@@ -655,22 +627,9 @@ class BenchApp(App[int]):
             self.apply_typed_a4,
         )
 
-    def _parse_typed(self, text: str | None, parse: Callable[[str], _T]) -> _T | None:
-        """A typed value parsed, or None: the dialog was cancelled, or the value was refused
-        with a one-line notice (the setting keeps its old value)."""
-        if text is None:
-            return None
-        try:
-            return parse(text)
-        except SettingsError as exc:
-            self.notify(str(exc), severity="error")
-            return None
-
     def apply_typed_a4(self, text: str | None) -> None:
         """Apply a typed A4 (Hz or a standard's name); a bad value leaves A4 as it was."""
-        a4_hz = self._parse_typed(text, parse_a4)
-        if a4_hz is not None:
-            self.change_settings(a4_hz=a4_hz)
+        self._after_settings(self.session.type_a4(text))
 
     def action_type_air(self) -> None:
         self.push_screen(
@@ -680,9 +639,7 @@ class BenchApp(App[int]):
 
     def apply_typed_air(self, text: str | None) -> None:
         """Apply a typed air temperature in degC; a bad value leaves it as it was."""
-        self._apply_typed_temperature(text, "temp_c", "air temperature")
-        if text is not None and self.temp_follower is not None:
-            self.notify("the air temperature follows a sensor; its next reading replaces this", severity="warning")
+        self._after_settings(self.session.type_temperature("temp_c", text))
 
     def action_type_ref(self) -> None:
         self.push_screen(
@@ -696,33 +653,12 @@ class BenchApp(App[int]):
 
     def apply_typed_ref(self, text: str | None) -> None:
         """Apply a typed reference temperature in degC; a bad value leaves it as it was."""
-        self._apply_typed_temperature(text, "ref_temp_c", "tuned-at temperature")
-
-    def _apply_typed_temperature(self, text: str | None, field: str, what: str) -> None:
-        if text is None:
-            return
-        cleaned = text.strip().lower().removesuffix("c").removesuffix("\u00b0").strip()
-        try:
-            value = check_temp(float(cleaned), what)
-        except ValueError:
-            self.notify(
-                f"{what} {text!r} is not a number of degrees Celsius; type e.g. 21.5",
-                severity="error",
-            )
-            return
-        self.change_settings(**{field: value})
+        self._after_settings(self.session.type_temperature("ref_temp_c", text))
 
     # -- target lock ------------------------------------------------------------------------
 
     def action_lock_sounding(self) -> None:
-        reading = self.reading
-        if reading is None or reading.mapping is None:
-            self.notify(
-                "no note is sounding to lock to; play one, or press n to type a note",
-                severity="error",
-            )
-            return
-        self.lock_target(reading.mapping.midi)
+        self._after_lock(self.session.lock_sounding(self.reading))
 
     def action_type_lock(self) -> None:
         self.push_screen(
@@ -732,17 +668,14 @@ class BenchApp(App[int]):
 
     def apply_typed_lock(self, text: str | None) -> None:
         """Lock to a typed note (``F4``, ``Bb5``); a bad name leaves the lock as it was."""
-        midi = self._parse_typed(text, parse_note)
-        if midi is not None:
-            self.lock_target(midi)
+        self._after_lock(self.session.type_lock(text))
 
     def lock_target(self, midi: int | None) -> None:
         """Lock the target to MIDI note ``midi``, or release it with None."""
-        try:
-            self.engine.lock(midi)
-        except (BenchError, ValueError) as exc:
-            self.notify(str(exc), severity="error")
-            return
+        self._after_lock(self.session.lock(midi))
+
+    def _after_lock(self, notice: Notice | None) -> None:
+        self._tell(notice)
         self._show_lock()
 
     def action_release(self) -> None:
@@ -751,13 +684,7 @@ class BenchApp(App[int]):
     # -- session, view ---------------------------------------------------------------------------
 
     def action_log(self) -> None:
-        try:
-            if self.engine.log_path is not None:
-                self.engine.stop_log()
-            else:
-                self.engine.start_log(self.log_dir)
-        except BenchError as exc:
-            self.notify(str(exc), severity="error")
+        self._tell(self.session.toggle_log())
         self._refresh_session()
 
     def action_hold(self) -> None:
@@ -769,44 +696,14 @@ class BenchApp(App[int]):
     # -- session workflow: captures, label, chart and blowing views ----------------------------
 
     def _start_workflow(self) -> None:
-        """Build the session workflow and attach it to the engine: the engine thread feeds it
-        every reading and it writes the captures beside the session log."""
-        log_path = self.engine.log_path
-        try:
-            workflow = LiveWorkflow(
-                profile=self.profile,
-                log_path=log_path,
-                label=self.session_label,
-                auto=True,
-                on_capture=self._capture_from_engine,
-                on_refusal=self._refusal_from_engine,
-            )
-        except BenchError as exc:  # the captures file cannot be written: capture in memory
-            workflow = LiveWorkflow(
-                profile=self.profile,
-                log_path=None,
-                label=self.session_label,
-                auto=True,
-                on_capture=self._capture_from_engine,
-                on_refusal=self._refusal_from_engine,
-            )
-            workflow.file_error = str(exc)
-        self.workflow = workflow
+        """Build the session workflow (the controller attaches it to the engine)."""
+        self._tell(self.session.start_workflow())
+        workflow = self.session.workflow
+        assert workflow is not None
         self._seen_captures = {c.index for c in workflow.captures()}
         self.chart = workflow.chart()
-        self.engine.add_consumer(workflow)
-        self._tell_captures_file()
+        self._captures_file_shown = (workflow.captures_path, workflow.file_error)
         self._show_workflow()
-
-    def _close_workflow(self) -> None:
-        workflow, self.workflow = self.workflow, None
-        if workflow is None:
-            return
-        self.engine.remove_consumer(workflow)
-        try:
-            workflow.close()
-        except BenchError:
-            pass
 
     def _capture_from_engine(self, cap: Capture) -> None:
         """The workflow's ``on_capture``: called on the engine thread, posts and returns."""
@@ -945,29 +842,17 @@ class BenchApp(App[int]):
             label.update(text)
 
     def action_capture(self) -> None:
-        if self.workflow is None:
-            return
-        if self.engine.running:
-            self.workflow.request_capture()  # taken on the engine thread with the newest readings
-        elif self.workflow.capture_now() is None:  # input over: the last note there was
-            self.notify("nothing is sounding to capture; play the note and press g while it sounds", severity="warning")
+        self._tell(self.session.capture())
 
     def action_auto_capture(self) -> None:
-        if self.workflow is None:
-            return
-        self.workflow.auto = not self.workflow.auto
+        self._tell(self.session.toggle_auto())
         self._show_workflow()
-        if self.workflow.auto:
-            self.notify("automatic capture ON: each settled note is kept", timeout=3)
-        else:
-            self.notify("automatic capture OFF: press g to capture a note", timeout=3)
 
     def action_type_label(self) -> None:
-        current = self.workflow.label if self.workflow is not None else self.session_label
         self.push_screen(
             ValueDialog(
                 "Label for the next captures",
-                current,
+                self.session.label,
                 f"what was done, e.g. after undercutting hole 3 ({LABEL_MAX_CHARS} characters at most)",
             ),
             self.apply_typed_label,
@@ -975,14 +860,8 @@ class BenchApp(App[int]):
 
     def apply_typed_label(self, text: str | None) -> None:
         """Put a typed label on the next captures; a label too long is refused in one line."""
-        label = self._parse_typed(text, check_label)
-        if label is None:
-            return
-        self.session_label = label
-        if self.workflow is not None:
-            self.workflow.label = label
+        self._tell(self.session.type_label(text))
         self._show_workflow()
-        self.notify(f"next captures labelled {label!r}" if label else "next captures carry no label", timeout=3)
 
     def _switch_view(self, kind: type[WorkflowView] | None) -> None:
         """Show the live screen (None) or a workflow view, from the live screen or another view."""
@@ -1053,27 +932,6 @@ class BenchApp(App[int]):
 
     def action_set_a4(self, a4_hz: float) -> None:
         self.change_settings(a4_hz=check_a4(a4_hz))
-
-
-def check_label(text: str) -> str:
-    """A session label as typed, trimmed; control characters are refused.
-
-    >>> check_label("  after undercutting hole 3 ")
-    'after undercutting hole 3'
-
-    Raises
-    ------
-    SettingsError
-        Longer than :data:`LABEL_MAX_CHARS`, or holding a control character.
-    """
-    label = str(text).strip()
-    if len(label) > LABEL_MAX_CHARS:
-        raise SettingsError(
-            f"label of {len(label)} characters is too long; keep it to {LABEL_MAX_CHARS}, e.g. 'after undercutting hole 3'"
-        )
-    if any(ord(ch) < 32 or ord(ch) == 127 for ch in label):
-        raise SettingsError(f"label {label!r} holds a control character; type plain words")
-    return label
 
 
 def _cents_words(cents: float, *, short: bool = False) -> str:
