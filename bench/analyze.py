@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TextIO
 
-from bench.engine import Engine, EngineEvent
+from bench.engine import Engine, EngineEvent, ReadingConsumer
 from bench.errors import LogError
 from bench.heldnotes import HeldNote, HeldNoteCollector
 from bench.reading import Reading
@@ -100,7 +100,9 @@ def analyse_file(
     held = HeldNoteCollector()
     counter = _FrameCounter()
     workflow = LiveWorkflow(profile=profile, log_path=None, label=label) if csv_path is not None else None
-    consumers = [held, counter] + ([workflow] if workflow is not None else [])
+    consumers: list[ReadingConsumer] = [held, counter]
+    if workflow is not None:
+        consumers.append(workflow)
     events: list[EngineEvent] = []
     engine = Engine(source, settings, log_path=csv_path, log_overwrite=overwrite, on_event=events.append,
                     consumers=consumers)  # fmt: skip

@@ -17,9 +17,10 @@ import time
 from collections.abc import Callable, Iterable, Iterator, Mapping
 from datetime import datetime
 from pathlib import Path
+from typing import BinaryIO
 
 from bench.errors import LogError, SettingsError
-from bench.reading import Reading, make_reading
+from bench.reading import Reading, SettingsKey, map_or_none
 from bench.tuning import NoteMapping, Temperament, TuningSettings
 from bench.tuning.notes import parse_note
 from dsp.frame import Frame, JumpKind, RegisterState
@@ -214,7 +215,7 @@ class CsvFrameLog:
         self.close()
 
 
-def _complete_end(raw) -> int:  # type: ignore[no-untyped-def]
+def _complete_end(raw: BinaryIO) -> int:
     """Byte offset just past the last line end of a binary file (drops a torn last line)."""
     raw.seek(0, os.SEEK_END)
     pos = raw.tell()
@@ -228,7 +229,7 @@ def _complete_end(raw) -> int:  # type: ignore[no-untyped-def]
     return 0
 
 
-def _complete_lines(raw, end: int) -> Iterator[str]:  # type: ignore[no-untyped-def]
+def _complete_lines(raw: BinaryIO, end: int) -> Iterator[str]:
     """Decoded lines of ``raw`` up to byte ``end``, line ends kept (so quoted CRs stay CRs)."""
     raw.seek(0)
     done = 0
@@ -372,22 +373,21 @@ def reading_from_row(row: Mapping[str, str]) -> Reading:
         raise LogError(f"a frame-log row at {frame.time_s:.3f} s holds settings bench does not take: {exc}") from None
     locked_note = _unquote(row.get("locked_note")).strip() or None
     locked_midi = _midi_or_none(locked_note or "")
-    mapping = None
-    if voiced:
-        assert midi is not None and target is not None and cents is not None
+    mapping: NoteMapping | None = None
+    held: NoteMapping | None = None
+    if midi is not None and target is not None and cents is not None and f0 is not None:
         mapping = NoteMapping(midi, note, target, cents_raw if cents_raw is not None else cents, cents)
-    reading = make_reading(frame, settings, locked_midi=locked_midi, locked_note=locked_note)
-    held = reading.held
-    held_name = _unquote(row.get("held_note")).strip()
-    held_midi = _midi_or_none(held_name)
-    if mapping is not None and held_midi is not None and (held is None or held.midi != held_midi):
-        held = NoteMapping(held_midi, held_name, held.target_hz if held else target, held.cents_raw if held else 0.0,
-                           held.cents if held else 0.0)  # fmt: skip
-    if mapping is not None and (frame.held_f0_hz is None or frame.held_f0_hz == f0) and held_midi is None:
-        held = mapping
+        held_hz = frame.held_f0_hz
+        held = mapping if held_hz is None or held_hz == f0 else map_or_none(held_hz, settings, locked_midi)
+        held_name = _unquote(row.get("held_note")).strip()
+        held_midi = _midi_or_none(held_name)
+        if held_midi is not None and (held is None or held.midi != held_midi):
+            # the log names the fingered note as it was mapped then: keep that name
+            base = held or mapping
+            held = NoteMapping(held_midi, held_name, base.target_hz, base.cents_raw, base.cents)
     return Reading(
-        frame=frame, mapping=mapping, held=held if mapping is not None else None, settings=settings,
-        key=reading.key, locked_midi=locked_midi, locked_note=locked_note,
+        frame=frame, mapping=mapping, held=held, settings=settings, key=SettingsKey.of(settings),
+        locked_midi=locked_midi, locked_note=locked_note,
     )  # fmt: skip
 
 

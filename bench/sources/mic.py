@@ -100,7 +100,8 @@ class _CRecording:
         self._ring.readinto(self._buf)
         if self._buf.shape[1] == 1:
             return self._buf[:, 0].copy()
-        return self._buf.mean(axis=1, dtype=np.float32)
+        mixed: NDArray[np.float32] = self._buf.mean(axis=1, dtype=np.float32)
+        return mixed
 
     def _check_recording(self) -> None:
         action = self._action

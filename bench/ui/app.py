@@ -34,7 +34,9 @@ from textual.message import Message
 from textual.reactive import reactive
 from textual.widgets import Footer, Label
 
+from bench.airtemp import AirTemperatureFollower
 from bench.controller import LABEL_MAX_CHARS, Notice, SessionController
+from bench.engine import Engine, EngineEvent
 from bench.errors import BenchError, SettingsError
 from bench.reading import Reading
 from bench.tuning import TuningSettings
@@ -148,10 +150,10 @@ class EventRelay:
 
     def __init__(self) -> None:
         self._lock = threading.Lock()
-        self._target: Callable[[Any], None] | None = None
-        self._early: collections.deque[Any] = collections.deque(maxlen=_EARLY_EVENTS)
+        self._target: Callable[[EngineEvent], None] | None = None
+        self._early: collections.deque[EngineEvent] = collections.deque(maxlen=_EARLY_EVENTS)
 
-    def __call__(self, event: Any) -> None:
+    def __call__(self, event: EngineEvent) -> None:
         with self._lock:
             target = self._target
             if target is None:
@@ -159,7 +161,7 @@ class EventRelay:
                 return
         target(event)
 
-    def connect(self, target: Callable[[Any], None] | None) -> None:
+    def connect(self, target: Callable[[EngineEvent], None] | None) -> None:
         """Send events to ``target`` from now on (None: keep them again)."""
         with self._lock:
             self._target = target
@@ -207,10 +209,9 @@ class BenchApp(App[int]):
     CSS_PATH = Path(__file__).with_name("bench.tcss")  # absolute, so subclasses find it too
     TITLE = "bench"
     COMMANDS = App.COMMANDS | {BenchCommands}
-    BINDINGS: ClassVar[list[Binding]] = [
-        Binding(c.keys, c.action, c.label, show=c.footer, tooltip=c.description) for c in CONTROLS
-    ] + [
-        Binding("ctrl+c", "quit", "quit", show=False, priority=True, tooltip=CONTROLS[-1].description)
+    BINDINGS: ClassVar[list[Binding | tuple[str, str] | tuple[str, str, str]]] = [
+        *(Binding(c.keys, c.action, c.label, show=c.footer, tooltip=c.description) for c in CONTROLS),
+        Binding("ctrl+c", "quit", "quit", show=False, priority=True, tooltip=CONTROLS[-1].description),
     ]
 
     class CaptureTaken(Message):
@@ -230,7 +231,7 @@ class BenchApp(App[int]):
     class EngineReported(Message):
         """The engine reported a rare event (register jump, source ended, device lost, log...)."""
 
-        def __init__(self, event: Any) -> None:
+        def __init__(self, event: EngineEvent) -> None:
             super().__init__()
             self.event = event
             """The :class:`bench.engine.EngineEvent`."""
@@ -248,7 +249,7 @@ class BenchApp(App[int]):
 
     def __init__(
         self,
-        engine: Any,
+        engine: Engine,
         *,
         log_dir: Path | None = None,
         events: EventRelay | None = None,
@@ -256,7 +257,7 @@ class BenchApp(App[int]):
         settings_path: Path | None = None,
         remember: bool = True,
         poll_hz: float = POLL_HZ,
-        temp_follower: Any = None,
+        temp_follower: AirTemperatureFollower | None = None,
         profile: InstrumentProfile | str | None = None,
         label: str = "",
     ) -> None:
@@ -401,13 +402,11 @@ class BenchApp(App[int]):
             gc.unfreeze()
             self._froze_gc = False
 
-    def _connect_events(self, handler: Callable[[Any], None] | None) -> None:
+    def _connect_events(self, handler: Callable[[EngineEvent], None] | None) -> None:
         """Point the engine's events at ``handler`` (None: disconnect)."""
         if self.events is not None:
             self.events.connect(handler)
-        elif hasattr(self.engine, "set_event_handler"):
-            self.engine.set_event_handler(handler)
-        elif hasattr(self.engine, "on_event"):
+        else:
             self.engine.on_event = handler  # settable property of bench.engine.Engine
 
     def _stop_engine(self) -> None:
@@ -419,7 +418,7 @@ class BenchApp(App[int]):
 
     # -- engine hand-off --------------------------------------------------------------
 
-    def engine_event(self, event: Any) -> None:
+    def engine_event(self, event: EngineEvent) -> None:
         """The engine's ``on_event``: called on the engine thread, posts and returns at once."""
         self.post_message(self.EngineReported(event))
 
@@ -463,7 +462,7 @@ class BenchApp(App[int]):
         bar.source = stats.source
         bar.state = stats.state
         bar.dropped_blocks = stats.dropped_blocks
-        bar.analysis_load_pct = self._analysis_load_pct(getattr(stats, "cpu_s", None))
+        bar.analysis_load_pct = self._analysis_load_pct(stats.cpu_s)
         log_path = self.engine.log_path
         bar.log_path = None if log_path is None else str(log_path)
         self._tell_captures_file()
@@ -484,8 +483,7 @@ class BenchApp(App[int]):
 
     def on_bench_app_engine_reported(self, message: EngineReported) -> None:
         event = message.event
-        kind = getattr(event, "kind", "")
-        text = getattr(event, "message", str(event))
+        kind, text = event.kind, event.message
         if kind in ("device_lost", "source_error", "source_ended"):
             self._view(SessionBar).problem = text
         elif kind == "device_back":
@@ -957,7 +955,7 @@ def _keys_hint(keys: str) -> str:
 
 
 def run_app(
-    engine: Any,
+    engine: Engine | Callable[..., Engine],
     *,
     log_dir: Path | None = None,
     notice: str | None = None,
@@ -965,7 +963,7 @@ def run_app(
     settings_path: Path | None = None,
     remember: bool = True,
     poll_hz: float = POLL_HZ,
-    temp_follower: Any = None,
+    temp_follower: AirTemperatureFollower | None = None,
     profile: InstrumentProfile | str | None = None,
     label: str = "",
 ) -> int:
@@ -1017,7 +1015,7 @@ def run_app(
         The engine could not start (e.g. ``DeviceError``); raised after the screen closes,
         so the command line can print it.
     """
-    if callable(engine) and not hasattr(engine, "latest"):
+    if not isinstance(engine, Engine):  # a factory: connect it to the screen's relay
         events = EventRelay()
         engine = engine(on_event=events)
     app = BenchApp(
