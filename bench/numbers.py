@@ -23,7 +23,7 @@ UNICODE_MINUS = "\u2212"
 _BODY = r"(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+\-\u2212]?\d{1,6})?"
 NUMBER_RE = re.compile(rf"^[+\-\u2212]?{_BODY}$")
 """The whole text of a number."""
-_SEARCH_RE = re.compile(rf"(?<![\w.])[+\-\u2212]?{_BODY}(?![\w.])")
+_SEARCH_RE = re.compile(rf"(?<![\w.])[+\-\u2212]?{_BODY}(?![\d._])")
 MAX_NUMBER_CHARS = 64
 """Longest text taken as a number (no sensible value needs more)."""
 
