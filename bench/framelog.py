@@ -147,11 +147,18 @@ class CsvFrameLog:
         self._fsync = fsync
         self._clock = clock
         self.rows_written = 0
+        self._replacing = None
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
-            self._file: io.TextIOWrapper | None = open(  # noqa: SIM115 - closed in close()
-                self.path, "w" if overwrite else "x", encoding="utf-8", newline=""
-            )
+            if overwrite:  # written beside it and renamed over it on close: never through a link
+                from bench.safeio import ReplacingFile
+
+                self._replacing = ReplacingFile(self.path, newline="")
+                self._file: io.TextIOWrapper | None = self._replacing.file  # type: ignore[assignment]
+            else:  # "x": O_CREAT | O_EXCL, refuses an existing file and any link
+                self._file = open(  # noqa: SIM115 - closed in close()
+                    self.path, "x", encoding="utf-8", newline=""
+                )
         except FileExistsError:
             raise LogError(f"log file {self.path} exists already; choose another name") from None
         except OSError as exc:
@@ -206,6 +213,9 @@ class CsvFrameLog:
         if self._file is None:
             return
         f, self._file = self._file, None
+        if self._replacing is not None:
+            self._replacing.commit()
+            return
         try:
             f.flush()
             if self._fsync:

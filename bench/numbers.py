@@ -72,7 +72,9 @@ def parse_number(text: object, option: str, what: str) -> float:
     else:
         value = None
     if value is None:
-        raise SettingsError(f"{option} {clip(repr(text))} is not a finite decimal number; give {what}")
+        raise SettingsError(
+            f"{option} {clip(repr(text))} is not a number (decimal, e.g. 18.5 or 2.35e1, no '_'); give {what}"
+        )
     return value
 
 
