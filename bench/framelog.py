@@ -32,6 +32,9 @@ FRAME_LOG_COLUMNS: tuple[str, ...] = (
 EXTRA_COLUMNS: tuple[str, ...] = ("clipped", "held_f0_hz", "locked_note", "rh_percent")
 """Columns that follow, in this order (more may be added at the end)."""
 
+MAX_LINE_BYTES = 1 << 20
+"""Longest line a frame-log reader takes, bytes (a row holds a few hundred)."""
+
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
 
@@ -248,7 +251,9 @@ def _complete_lines(raw, end: int) -> Iterator[str]:  # type: ignore[no-untyped-
     """Decoded lines of ``raw`` up to byte ``end``, line ends kept (so quoted CRs stay CRs)."""
     raw.seek(0)
     done = 0
-    for line in raw:
+    while line := raw.readline(MAX_LINE_BYTES + 1):
+        if len(line) > MAX_LINE_BYTES:  # no row of a frame log is near this: not a frame log
+            raise csv.Error(f"a line longer than {MAX_LINE_BYTES} bytes")
         done += len(line)
         if done > end:
             return
@@ -268,6 +273,13 @@ def iter_frame_log(path: Path | str) -> Iterator[dict[str, str]]:
         The file is missing, not UTF-8, or does not start with the frame-log header.
     """
     path = Path(path)
+    from bench.safeio import FileRefused, check_regular_file
+
+    try:  # a named pipe would block the open, a device never ends
+        check_regular_file(path)
+    except FileRefused as exc:
+        if not exc.missing:
+            raise LogError(f"cannot read {path}: {exc.reason}") from None
     try:
         raw = path.open("rb")
     except FileNotFoundError:

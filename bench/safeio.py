@@ -36,6 +36,7 @@ __all__ = [
     "ReplacingFile",
     "check_audio_input",
     "check_output",
+    "check_regular_file",
     "describe_kind",
     "read_text_file",
     "replace_file",
@@ -122,8 +123,8 @@ def read_text_file(path: str | os.PathLike[str], *, limit_bytes: int = TEXT_LIMI
         raise FileRefused(f"it is not UTF-8 text (byte {exc.start})") from None
 
 
-def check_audio_input(path: str | os.PathLike[str]) -> None:
-    """Refuse, in words, a path that cannot be an audio file: missing, not a regular file
+def check_regular_file(path: str | os.PathLike[str]) -> None:
+    """Refuse, in words, a path that cannot be read as a file: missing, not a regular file
     (a named pipe, a device, a folder), or not readable.
 
     Raises
@@ -141,6 +142,10 @@ def check_audio_input(path: str | os.PathLike[str]) -> None:
     except OSError as exc:
         raise _os_reason(exc) from None
     os.close(fd)
+
+
+check_audio_input = check_regular_file
+"""An audio input must be a regular, readable file (the words are the same)."""
 
 
 def _same_file(a: os.stat_result, b: os.stat_result) -> bool:

@@ -46,11 +46,21 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     c.add_argument("--csv", type=Path, metavar="CHANGES.csv", help="write the table as CSV")
     c.add_argument("--before-label", metavar="TEXT", help="use only BEFORE's captures with this label")
     c.add_argument("--after-label", metavar="TEXT", help="use only AFTER's captures with this label")
-    c.add_argument("--noise-factor", type=float, default=2.0, metavar="K",
+    c.add_argument("--noise-factor", type=_strict_float, default=2.0, metavar="K",
                    help="a change counts when above K x combined spread (default 2)")
-    c.add_argument("--min-cents", type=float, default=1.0, metavar="C",
+    c.add_argument("--min-cents", type=_strict_float, default=1.0, metavar="C",
                    help="and above this many cents (default 1)")
     c.set_defaults(func=run_compare)
+
+
+def _strict_float(text: str) -> float:
+    """argparse type: the one number syntax of bench (bench.numbers)."""
+    from bench.numbers import strict_float
+
+    value = strict_float(text)
+    if value is None:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number (decimal, e.g. 2 or 1.5)")
+    return value
 
 
 def _check_out(path: Path | None) -> None:
