@@ -313,6 +313,22 @@ def update_settings_text(text: str, table: dict[str, bool | int | float | str], 
     return result
 
 
+def _copy_to_backup(path: Path) -> None:
+    """Copy ``path`` (a regular file) to its .bak through a temporary file and a rename."""
+    import shutil
+
+    from bench.safeio import ReplacingFile
+
+    out = ReplacingFile(path.with_name(path.name + BACKUP_SUFFIX))
+    try:
+        with open(path, "rb") as src:
+            shutil.copyfileobj(src, out.file.buffer)  # type: ignore[attr-defined]
+    except BaseException:
+        out.discard()
+        raise
+    out.commit()
+
+
 def save_settings(settings: TuningSettings, path: Path | None = None) -> Path:
     """Remember ``settings`` for the next run; returns the file written.
 
@@ -338,8 +354,12 @@ def save_settings(settings: TuningSettings, path: Path | None = None) -> Path:
     fresh = "# bench: settings remembered between runs\n" + tomli_w.dumps({"tuning": table})
     try:
         old: str | None = read_text_file(path, limit_bytes=SETTINGS_LIMIT_BYTES)
-    except FileRefused:
+    except FileRefused as exc:
         old = None
+        if not exc.missing:  # unreadable as settings: kept whole as the .bak, or not touched
+            if not os.path.isfile(path):
+                raise OSError(f"{path} is not a regular file ({exc.reason}); settings not saved") from None
+            _copy_to_backup(path)
     text = fresh
     if old is not None:
         try:
