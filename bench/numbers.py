@@ -20,10 +20,10 @@ __all__ = ["NUMBER_RE", "UNICODE_MINUS", "find_number", "parse_number", "strict_
 UNICODE_MINUS = "\u2212"
 """MINUS SIGN (U+2212), read as the ASCII hyphen-minus."""
 
-_BODY = r"(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+\-\u2212]?\d{1,6})?"
+_BODY = r"(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+\-\u2212]?[0-9]{1,6})?"
 NUMBER_RE = re.compile(rf"^[+\-\u2212]?{_BODY}$")
 """The whole text of a number."""
-_SEARCH_RE = re.compile(rf"(?<![\w.])[+\-\u2212]?{_BODY}(?![\d._])")
+_SEARCH_RE = re.compile(rf"(?<![\w.])[+\-\u2212]?{_BODY}(?![0-9._])")
 MAX_NUMBER_CHARS = 64
 """Longest text taken as a number (no sensible value needs more)."""
 
