@@ -72,8 +72,9 @@ def parse_number(text: object, option: str, what: str) -> float:
     else:
         value = None
     if value is None:
+        shown = f"'{clip(text)}'" if isinstance(text, str) else clip(repr(text))
         raise SettingsError(
-            f"{option} {clip(repr(text))} is not a number (decimal, e.g. 18.5 or 2.35e1, no '_'); give {what}"
+            f"{option} {shown} is not a number (decimal, e.g. 18.5 or 2.35e1, no '_'); give {what}"
         )
     return value
 
