@@ -25,7 +25,7 @@ import stat
 import subprocess
 import tempfile
 import time
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import IO
@@ -41,6 +41,7 @@ __all__ = [
     "read_text_file",
     "replace_file",
     "run_capped",
+    "write_via_temp",
 ]
 
 TEXT_LIMIT_BYTES = 1_000_000
@@ -254,6 +255,25 @@ def replace_file(path: str | os.PathLike[str], text: str, *, follow_link: bool =
         out.discard()
         raise
     out.commit(mode_from=dest if dest.exists() else None)
+    return dest
+
+
+def write_via_temp(path: str | os.PathLike[str], write: Callable[[Path], object]) -> Path:
+    """Let ``write`` make a file at a temporary path beside ``path`` (same suffix), then
+    rename it onto ``path``; on any failure the temporary file goes and ``path`` is untouched.
+    For writers that take a path (plot libraries, CSV writers of other modules)."""
+    dest = Path(path)
+    dest.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp_name = tempfile.mkstemp(prefix=f".{dest.stem}.", suffix=dest.suffix, dir=dest.parent)
+    os.close(fd)
+    tmp = Path(tmp_name)
+    try:
+        write(tmp)
+        os.replace(tmp, dest)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            tmp.unlink()
+        raise
     return dest
 
 

@@ -130,3 +130,33 @@ def test_an_output_that_is_a_pipe_is_refused_even_with_overwrite(tmp_path, capsy
     os.mkfifo(fifo)
     assert main(["analyze", str(rec), "--csv", str(fifo), "--overwrite"]) == 2
     assert "named pipe" in capsys.readouterr().err
+
+
+def _frame_log(tmp_path: Path, capsys) -> Path:
+    rec = _recording(tmp_path)
+    log = tmp_path / "session.csv"
+    assert main(["analyze", str(rec), "--csv", str(log)]) == 0
+    capsys.readouterr()
+    return log
+
+
+@pytest.mark.parametrize("option", ["--summary", "--out"])
+def test_chart_outputs_follow_the_same_rules(tmp_path, capsys, option):
+    log = _frame_log(tmp_path, capsys)
+    before = log.read_bytes()
+    suffix = ".csv" if option == "--summary" else ".png"
+    assert main(["chart", str(log), option, str(log.with_suffix(suffix)) if suffix == ".csv" else str(log)]) == 2
+    assert log.read_bytes() == before  # the session itself is never an output
+    mine = tmp_path / f"mine{suffix}"
+    mine.write_bytes(b"my own work\n")
+    assert main(["chart", str(log), option, str(mine)]) == 2
+    err = capsys.readouterr().err
+    assert "exists already" in err and mine.read_bytes() == b"my own work\n"
+
+
+def test_compare_csv_that_is_an_input_is_refused(tmp_path, capsys):
+    log = _frame_log(tmp_path, capsys)
+    before = log.read_bytes()
+    assert main(["compare", str(log), str(log), "--csv", str(log), "--overwrite"]) == 2
+    assert "is the input" in capsys.readouterr().err
+    assert log.read_bytes() == before
