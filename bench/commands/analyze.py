@@ -111,8 +111,10 @@ def run_analyze(args: argparse.Namespace) -> int:
             result = analyse_file(path, settings, csv_path=csv_path, locked_midi=locked, progress=bar)
         except BenchError as exc:
             bar.close()
-            failed.append(str(exc))
-            print(f"error: {exc}", file=sys.stderr)
+            from bench.textsafe import one_line
+
+            failed.append(one_line(str(exc)))
+            print(f"error: {failed[-1]}", file=sys.stderr)
             continue
         bar.close()
         if i:
