@@ -9,13 +9,13 @@ columns empty. Every row carries the settings in force when it was measured.
 from __future__ import annotations
 
 import csv
-import io
 import math
 import os
 import time
 from collections.abc import Iterator
 from datetime import datetime
 from pathlib import Path
+from typing import IO
 
 from bench.errors import LogError
 from bench.tuning import NoteMapping, TuningSettings
@@ -157,18 +157,19 @@ class CsvFrameLog:
                 from bench.safeio import ReplacingFile
 
                 self._replacing = ReplacingFile(self.path, newline="")
-                self._file: io.TextIOWrapper | None = self._replacing.file  # type: ignore[assignment]
+                file: IO[str] = self._replacing.file
             else:  # "x": O_CREAT | O_EXCL, refuses an existing file and any link
-                self._file = open(  # noqa: SIM115 - closed in close()
+                file = open(  # noqa: SIM115 - closed in close()
                     self.path, "x", encoding="utf-8", newline=""
                 )
+            self._file: IO[str] | None = file
         except FileExistsError:
             raise LogError(f"log file {self.path} exists already; choose another name") from None
         except OSError as exc:
             raise LogError(
                 f"cannot write the log {self.path}: {exc.strerror or exc}; choose a writable folder"
             ) from None
-        self._writer = csv.writer(self._file)
+        self._writer = csv.writer(file)
         self._writer.writerow((*FRAME_LOG_COLUMNS, *EXTRA_COLUMNS))
         self._last_flush = self._clock()
         self.flush()

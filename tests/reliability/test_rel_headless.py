@@ -78,7 +78,7 @@ def test_headless_run_says_every_setting_and_its_origin(tmp_path, capsys):
 def test_no_microphone_unattended_is_status_3_and_no_log(monkeypatch, capsys):
     from bench.sources import mic
 
-    monkeypatch.setattr(mic, "list_input_devices", lambda: [])
+    monkeypatch.setattr(mic, "list_input_devices", list)
     assert main(["run", "--no-ui", "--input", "mic", "--duration", "0.5"]) == 3
     err = capsys.readouterr().err
     assert err.startswith("error: no audio input device found") and err.count("\n") == 1
