@@ -76,6 +76,7 @@ def _input_problem(path: Path) -> str | None:
 
 def run_analyze(args: argparse.Namespace) -> int:
     from bench.analyze import ProgressBar, analyse_file, format_summary
+    from bench.pipes import write_line
 
     settings = settings_from_args(args)
     locked = None
@@ -117,9 +118,8 @@ def run_analyze(args: argparse.Namespace) -> int:
             print(f"error: {failed[-1]}", file=sys.stderr)
             continue
         bar.close()
-        if i:
-            print()
-        print(format_summary(result, settings))
+        # A closed stdout (| head) stops the summaries, never the frame logs of the batch.
+        write_line(("\n" if i else "") + format_summary(result, settings))
         if len(paths) > 1:
             warned += [f"{path}: {w}" for w in result.warnings if not w.startswith("resampled")]
     if warned:
@@ -132,5 +132,5 @@ def run_analyze(args: argparse.Namespace) -> int:
             print(f"  {line}", file=sys.stderr)
         return 1
     if not args.csv and not args.csv_dir:
-        print("(no frame log written; add --csv PATH or --csv-dir DIR)")
+        write_line("(no frame log written; add --csv PATH or --csv-dir DIR)")
     return 0

@@ -73,3 +73,21 @@ def test_write_line_reports_a_gone_reader_and_silences_the_stream(tmp_path):
         assert write_line("second", stream) is True  # now /dev/null: no error, nothing lost
     finally:
         stream.close()
+
+
+def test_a_batch_analysis_writes_every_frame_log_after_its_reader_left(tmp_path):
+    import math
+
+    import numpy as np
+    import soundfile as sf
+
+    rate_hz = 48000
+    t = np.arange(int(0.5 * rate_hz)) / rate_hz
+    for name, freq_hz in (("a.wav", 440.0), ("b.wav", 392.0), ("c.wav", 349.23)):  # A4, G4, F4 (ISO 16 / equal temperament)
+        sf.write(str(tmp_path / name), 0.5 * np.sin(2 * math.pi * freq_hz * t), rate_hz, subtype="PCM_16")
+    out = tmp_path / "logs"
+    done = _run_with_closed_stdout(["analyze", str(tmp_path / "a.wav"), str(tmp_path / "b.wav"),
+                                    str(tmp_path / "c.wav"), "--csv-dir", str(out)])
+    assert "Traceback" not in done.stderr, done.stderr
+    assert done.returncode == 0, done.stderr
+    assert all(read_frame_log(out / f"{stem}.csv") for stem in "abc")
