@@ -370,8 +370,13 @@ def _run_unattended(
     except DeviceError as exc:
         _say(f"error: {exc}")
         return unattended.EXIT_INPUT
-    if log_path is not None:
+    record = (
         unattended.write_run_record(log_path, settings, origins or {}, args.label, engine.source.description)
+        if log_path is not None
+        else None
+    )
+    if log_path is not None and record is None:
+        _say(f"warning: {unattended.run_record_path(log_path)} not written (exists or not writable)")
     if fallback:
         _say(fallback)
     follower = _start_follower(args, engine, lambda message: lines.put(("err", f"temperature: {message}")))
