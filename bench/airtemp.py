@@ -9,16 +9,19 @@ from __future__ import annotations
 
 import re
 import shlex
-import subprocess
 import threading
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
 from bench.errors import SettingsError
+from bench.numbers import find_number
+from bench.safeio import FileRefused, read_text_file, run_capped
+from bench.textsafe import clip
 from bench.tuning.air import TEMP_MAX_C, TEMP_MIN_C
 
-_NUMBER = re.compile(r"[-+]?\d+(?:[.,]\d+)?")
+READ_LIMIT_BYTES = 4096
+"""Most bytes read from a temperature file or command (a sensor prints a line or two)."""
 TEMP_RANGE_C = (TEMP_MIN_C, TEMP_MAX_C)
 """Air temperatures accepted, degC (the tuning model's range)."""
 
@@ -53,10 +56,13 @@ def parse_temp_c(text: str, origin: str) -> float:
     bare = text.strip()
     if bare.lstrip("-").isdigit() and abs(int(bare)) > 1000:
         return _in_range(int(bare) / 1000.0, origin)
-    m = _NUMBER.search(text)
-    if m is None:
-        raise SettingsError(f"no temperature in {origin} (read {text.strip()[:40]!r}); it should print degC")
-    return _in_range(float(m.group().replace(",", ".")), origin)
+    try:
+        found = find_number(text)  # the one number syntax of bench: 2.35e1, U+2212 minus
+    except SettingsError as exc:
+        raise SettingsError(f"temperature from {origin}: {exc}; it should print degC") from None
+    if found is None:
+        raise SettingsError(f"no temperature in {origin} (read {clip(repr(text.strip()), 40)}); it should print degC")
+    return _in_range(found[0], origin)
 
 
 def _in_range(temp_c: float, origin: str) -> float:
@@ -94,7 +100,7 @@ class AirTemperatureSource:
 
     @property
     def origin(self) -> str:
-        return f"command {self._argv[0]!r}" if self._argv else f"file {self._path}"
+        return f"command {clip(repr(self._argv[0]))}" if self._argv else f"file {clip(str(self._path))}"
 
     def read_temp_c(self) -> float:
         """Read the temperature now, degC.
@@ -105,18 +111,16 @@ class AirTemperatureSource:
             The file or command fails or gives no usable number.
         """
         if self._path is not None:
-            try:
-                text = self._path.read_text(encoding="utf-8", errors="replace")
-            except OSError as exc:
-                raise SettingsError(f"cannot read temperature file {self._path}: {exc.strerror or exc}") from None
+            try:  # a regular file only (a named pipe would block), at most READ_LIMIT_BYTES
+                text = read_text_file(self._path, limit_bytes=READ_LIMIT_BYTES)
+            except FileRefused as exc:
+                raise SettingsError(f"cannot read temperature file {clip(str(self._path))}: {exc.reason}") from None
         else:
             assert self._argv is not None
-            try:
-                done = subprocess.run(
-                    self._argv, capture_output=True, text=True, timeout=self.timeout_s, check=False
-                )
-            except (OSError, subprocess.TimeoutExpired) as exc:
-                raise SettingsError(f"temperature {self.origin} failed: {exc}") from None
+            try:  # its own process group, killed whole at the timeout or past the cap
+                done = run_capped(self._argv, timeout_s=self.timeout_s, limit_bytes=READ_LIMIT_BYTES)
+            except FileRefused as exc:
+                raise SettingsError(f"temperature {self.origin} {exc.reason}") from None
             if done.returncode != 0:
                 raise SettingsError(f"temperature {self.origin} exited with status {done.returncode}")
             text = done.stdout

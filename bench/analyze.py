@@ -22,7 +22,7 @@ from bench.heldnotes import HeldNote, HeldNoteCollector
 from bench.reading import Reading
 from bench.sources.wavfile import WavFileSource
 from bench.tuning import TuningSettings
-from bench.workflow.captures import Capture
+from bench.workflow.captures import Capture, captures_path_for
 from bench.workflow.live import LiveWorkflow
 from bench.workflow.profiles import InstrumentProfile
 
@@ -72,7 +72,7 @@ def analyse_file(
     progress: Callable[[float], None] | None = None,
     profile: InstrumentProfile | None = None,
     label: str = "",
-    overwrite: bool = True,
+    overwrite: bool = False,
 ) -> FileAnalysis:
     """Analyse one audio file; write its frame log to ``csv_path`` (and its captures beside it,
     ``<stem>.captures.csv``) when given.
@@ -86,7 +86,7 @@ def analyse_file(
     progress : called with the fraction done, 0..1, from the calling thread
     profile : instrument profile the captures are filed under (the alto if None)
     label : label put on the captures
-    overwrite : replace an existing frame log at ``csv_path``
+    overwrite : replace an existing frame log at ``csv_path`` and the captures file beside it
 
     Raises
     ------
@@ -97,6 +97,12 @@ def analyse_file(
     """
     path = Path(path)
     source = WavFileSource(path, block_size=READ_BLOCK, realtime=False)
+    if csv_path is not None:
+        side = captures_path_for(csv_path)
+        if side.exists() or side.is_symlink():
+            if not overwrite:
+                raise LogError(f"{side} exists already (captures of an earlier analysis?); move it, or add --overwrite")
+            side.unlink()  # a link goes, never the file it points to
     held = HeldNoteCollector()
     counter = _FrameCounter()
     workflow = LiveWorkflow(profile=profile, log_path=None, label=label) if csv_path is not None else None
@@ -110,9 +116,9 @@ def analyse_file(
         engine.lock(locked_midi)
     engine.start()
     try:
-        if csv_path is not None and engine.log_path is None:
-            failed = [e.message for e in events if e.kind == "log_error"]
-            raise LogError(failed[0] if failed else f"cannot write the frame log {csv_path}")
+        failed = [e.message for e in events if e.kind == "log_error"]  # said by start() itself
+        if csv_path is not None and failed:
+            raise LogError(failed[0].removesuffix("; measuring goes on without a log"))
         while not engine.join(_PROGRESS_EVERY_S):
             if progress is not None:
                 progress(source.fraction_read)

@@ -8,6 +8,8 @@ import sys
 from collections.abc import Sequence
 
 from bench.errors import BenchError
+from bench.pipes import CLOSED_PIPE_STATUS, silence
+from bench.textsafe import one_line
 
 # Each module exposes ``register(subparsers)``, which adds its sub-command and sets
 # ``func(args) -> int`` as the parser default.
@@ -25,7 +27,7 @@ class _Parser(argparse.ArgumentParser):
     """argparse with a one-line error and exit status 2."""
 
     def error(self, message: str) -> None:  # type: ignore[override]
-        self.exit(2, f"error: {message} (see '{self.prog} --help')\n")
+        self.exit(2, f"error: {one_line(message)} (see '{self.prog} --help')\n")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -50,7 +52,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 def _with_default_command(argv: list[str], parser: argparse.ArgumentParser) -> list[str]:
     commands: set[str] = set()
-    for action in parser._subparsers._group_actions if parser._subparsers else ():  # noqa: SLF001
+    for action in parser._subparsers._group_actions if parser._subparsers else ():
         commands.update(getattr(action, "choices", {}) or {})
     if argv and (argv[0] in commands or argv[0] in ("-h", "--help", "--version")):
         return argv
@@ -63,13 +65,27 @@ def main(argv: Sequence[str] | None = None) -> int:
     args_list = _with_default_command(list(sys.argv[1:] if argv is None else argv), parser)
     args = parser.parse_args(args_list)
     try:
-        return int(args.func(args) or 0)
+        status = int(args.func(args) or 0)
+        sys.stdout.flush()  # a closed pipe shows here when the output fitted in its buffer
+        return status
+    except BrokenPipeError:
+        # The reader of the output went away (``bench notes | head -1``): stop quietly, as a
+        # program killed by SIGPIPE would, and keep the final flush from complaining.
+        silence(sys.stdout)
+        return CLOSED_PIPE_STATUS
     except BenchError as exc:
-        print(f"error: {exc}", file=sys.stderr)
+        _say_error(f"error: {one_line(str(exc))}")
         return 2
     except KeyboardInterrupt:
-        print("interrupted", file=sys.stderr)
+        _say_error("interrupted")
         return 130
+
+
+def _say_error(line: str) -> None:
+    try:
+        print(line, file=sys.stderr, flush=True)
+    except BrokenPipeError:
+        silence(sys.stderr)
 
 
 if __name__ == "__main__":

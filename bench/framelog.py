@@ -10,14 +10,13 @@ from __future__ import annotations
 
 import csv
 import functools
-import io
 import math
 import os
 import time
 from collections.abc import Callable, Iterable, Iterator, Mapping
 from datetime import datetime
 from pathlib import Path
-from typing import BinaryIO
+from typing import IO, BinaryIO
 
 from bench.errors import LogError, SettingsError
 from bench.reading import Reading, SettingsKey, map_or_none
@@ -35,6 +34,9 @@ FRAME_LOG_COLUMNS: tuple[str, ...] = (
 
 EXTRA_COLUMNS: tuple[str, ...] = ("clipped", "held_f0_hz", "locked_note", "rh_percent", "held_note")
 """Columns that follow, in this order (more may be added at the end)."""
+
+MAX_LINE_BYTES = 1 << 20
+"""Longest line a frame-log reader takes, bytes (a row holds a few hundred)."""
 
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
@@ -148,18 +150,26 @@ class CsvFrameLog:
         self._fsync = fsync
         self._clock = clock
         self.rows_written = 0
+        self._replacing = None
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
-            self._file: io.TextIOWrapper | None = open(  # noqa: SIM115 - closed in close()
-                self.path, "w" if overwrite else "x", encoding="utf-8", newline=""
-            )
+            if overwrite:  # written beside it and renamed over it on close: never through a link
+                from bench.safeio import ReplacingFile
+
+                self._replacing = ReplacingFile(self.path, newline="")
+                file: IO[str] = self._replacing.file
+            else:  # "x": O_CREAT | O_EXCL, refuses an existing file and any link
+                file = open(  # noqa: SIM115 - closed in close()
+                    self.path, "x", encoding="utf-8", newline=""
+                )
+            self._file: IO[str] | None = file
         except FileExistsError:
             raise LogError(f"log file {self.path} exists already; choose another name") from None
         except OSError as exc:
             raise LogError(
                 f"cannot write the log {self.path}: {exc.strerror or exc}; choose a writable folder"
             ) from None
-        self._writer = csv.writer(self._file)
+        self._writer = csv.writer(file)
         self._writer.writerow((*FRAME_LOG_COLUMNS, *EXTRA_COLUMNS))
         self._last_flush = self._clock()
         self.flush()
@@ -201,6 +211,9 @@ class CsvFrameLog:
         if self._file is None:
             return
         f, self._file = self._file, None
+        if self._replacing is not None:
+            self._replacing.commit()
+            return
         try:
             f.flush()
             if self._fsync:
@@ -233,7 +246,9 @@ def _complete_lines(raw: BinaryIO, end: int) -> Iterator[str]:
     """Decoded lines of ``raw`` up to byte ``end``, line ends kept (so quoted CRs stay CRs)."""
     raw.seek(0)
     done = 0
-    for line in raw:
+    while line := raw.readline(MAX_LINE_BYTES + 1):
+        if len(line) > MAX_LINE_BYTES:  # no row of a frame log is near this: not a frame log
+            raise csv.Error(f"a line longer than {MAX_LINE_BYTES} bytes")
         done += len(line)
         if done > end:
             return
@@ -253,6 +268,13 @@ def iter_frame_log(path: Path | str) -> Iterator[dict[str, str]]:
         The file is missing, not UTF-8, or does not start with the frame-log header.
     """
     path = Path(path)
+    from bench.safeio import FileRefused, check_regular_file
+
+    try:  # a named pipe would block the open, a device never ends
+        check_regular_file(path)
+    except FileRefused as exc:
+        if not exc.missing:
+            raise LogError(f"cannot read {path}: {exc.reason}") from None
     try:
         raw = path.open("rb")
     except FileNotFoundError:

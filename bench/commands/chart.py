@@ -4,6 +4,7 @@ and what changed between two."""
 from __future__ import annotations
 
 import argparse
+from collections.abc import Callable
 from pathlib import Path
 
 from bench.errors import SettingsError
@@ -26,6 +27,8 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     p.add_argument("--out", type=Path, metavar="CHART.png|CHART.svg", help="draw the chart to this file")
     p.add_argument("--summary", type=Path, metavar="SUMMARY.csv", help="write cents per note and register")
     p.add_argument("--label", metavar="TEXT", help="chart only the captures with this session label")
+    p.add_argument("--overwrite", action="store_true",
+                   help="replace an existing --out/--summary file (or a link of that name, never its target)")
     p.add_argument("--save-captures", action="store_true",
                    help="write the captures found in the log beside it as <stem>.captures.csv")
     p.set_defaults(func=run_chart)
@@ -44,13 +47,25 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     c.add_argument("--profile", metavar="NAME|FILE", help="instrument profile (default: best fit)")
     c.add_argument("--out", type=Path, metavar="CHANGES.png|CHANGES.svg", help="draw the changes")
     c.add_argument("--csv", type=Path, metavar="CHANGES.csv", help="write the table as CSV")
+    c.add_argument("--overwrite", action="store_true",
+                   help="replace an existing --out/--csv file (or a link of that name, never its target)")
     c.add_argument("--before-label", metavar="TEXT", help="use only BEFORE's captures with this label")
     c.add_argument("--after-label", metavar="TEXT", help="use only AFTER's captures with this label")
-    c.add_argument("--noise-factor", type=float, default=2.0, metavar="K",
+    c.add_argument("--noise-factor", type=_strict_float, default=2.0, metavar="K",
                    help="a change counts when above K x combined spread (default 2)")
-    c.add_argument("--min-cents", type=float, default=1.0, metavar="C",
+    c.add_argument("--min-cents", type=_strict_float, default=1.0, metavar="C",
                    help="and above this many cents (default 1)")
     c.set_defaults(func=run_compare)
+
+
+def _strict_float(text: str) -> float:
+    """argparse type: the one number syntax of bench (bench.numbers)."""
+    from bench.numbers import strict_float
+
+    value = strict_float(text)
+    if value is None:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number (decimal, e.g. 2 or 1.5)")
+    return value
 
 
 def _check_out(path: Path | None) -> None:
@@ -58,13 +73,42 @@ def _check_out(path: Path | None) -> None:
         raise SettingsError(f"--out {path} has suffix {path.suffix or '(none)'!r}; use .png or .svg")
 
 
+def _check_outputs(args: argparse.Namespace, options: tuple[str, ...], inputs: list[Path]) -> None:
+    """Refuse, before any work, an output that is an input, exists or is a link (the last two
+    unless --overwrite); see bench.safeio.check_output."""
+    from bench.safeio import FileRefused, check_output
+    from bench.textsafe import clip
+
+    for option in options:
+        path = getattr(args, option)
+        if path is None:
+            continue
+        try:
+            check_output(path, inputs=inputs, overwrite=args.overwrite)
+        except FileRefused as exc:
+            raise SettingsError(f"--{option}: will not write {clip(str(path))}: {exc.reason}") from None
+
+
+def _written(path: Path, write: Callable[[Path], object]) -> Path:
+    """``write`` to a temporary file beside ``path``, renamed into place (bench.safeio)."""
+    from bench.safeio import write_via_temp
+
+    return write_via_temp(path, write)
+
+
 def run_chart(args: argparse.Namespace) -> int:
     from bench.workflow.blowing import find_blowing_curves
     from bench.workflow.captures import captures_path_for, write_captures
-    from bench.workflow.chart import build_chart, format_text_chart, plot_chart, write_summary_csv
+    from bench.workflow.chart import (
+        build_chart,
+        format_text_chart,
+        plot_chart,
+        write_summary_csv,
+    )
     from bench.workflow.session import load_session
 
     _check_out(args.out)
+    _check_outputs(args, ("out", "summary"), [args.session])
     session = load_session(args.session, args.profile)
     chart = build_chart(session.captures, session.profile, label=args.label)
     if args.label is not None and not chart.checked():
@@ -82,17 +126,25 @@ def run_chart(args: argparse.Namespace) -> int:
         side = write_captures(captures_path_for(args.session), session.captures)
         print(f"captures written to {side}")
     if args.summary:
-        print(f"summary written to {write_summary_csv(chart, args.summary)}")
+        _written(args.summary, lambda tmp: write_summary_csv(chart, tmp))
+        print(f"summary written to {args.summary}")
     if args.out:
-        print(f"chart drawn to {plot_chart(chart, args.out, blowing=curves)}")
+        _written(args.out, lambda tmp: plot_chart(chart, tmp, blowing=curves))
+        print(f"chart drawn to {args.out}")
     return 0
 
 
 def run_compare(args: argparse.Namespace) -> int:
-    from bench.workflow.compare import compare_captures, format_comparison, plot_comparison, write_comparison_csv
+    from bench.workflow.compare import (
+        compare_captures,
+        format_comparison,
+        plot_comparison,
+        write_comparison_csv,
+    )
     from bench.workflow.session import load_session
 
     _check_out(args.out)
+    _check_outputs(args, ("out", "csv"), [args.before, args.after])
     before = load_session(args.before, args.profile)
     profile = before.profile
     after = load_session(args.after, profile)
@@ -116,7 +168,9 @@ def run_compare(args: argparse.Namespace) -> int:
     print(f"profile: {profile.describe()}")
     print(format_comparison(cmp), end="")
     if args.csv:
-        print(f"table written to {write_comparison_csv(cmp, args.csv)}")
+        _written(args.csv, lambda tmp: write_comparison_csv(cmp, tmp))
+        print(f"table written to {args.csv}")
     if args.out:
-        print(f"changes drawn to {plot_comparison(cmp, args.out)}")
+        _written(args.out, lambda tmp: plot_comparison(cmp, tmp))
+        print(f"changes drawn to {args.out}")
     return 0

@@ -8,6 +8,7 @@ from typing import Any
 
 from bench.commands.options import add_tuning_options, settings_from_args
 from bench.errors import SettingsError
+from bench.textsafe import printable
 from bench.tuning import (
     TEMPERAMENT_IDS,
     TuningSettings,
@@ -77,7 +78,7 @@ def describe_settings(settings: TuningSettings) -> str:
     a4 = f"A4 = {settings.a4_hz:.2f} Hz" + (f" ({preset})" if preset else "")
     t = resolve_temperament(settings)
     return (
-        f"{a4}; {t.name} ({t.id}) on {settings.tonic}; "
+        f"{a4}; {printable(t.name)} ({t.id}) on {settings.tonic}; "
         f"in tune at {settings.ref_temp_c:g} °C, {_air_words(settings)}"
     )
 
@@ -154,9 +155,9 @@ def temperaments_table(settings: TuningSettings, from_a: bool = False, describe:
             row = offsets_from_a(row)
         mark = "*" if t.id == settings.temperament else " "
         cells = " ".join(f"{0.0 if abs(x) < 0.005 else x:7.2f}" for x in row)
-        lines.append(f"{mark}{t.id.ljust(id_width - 1)}{cells}  {t.name}")
-        if describe:
-            lines.append(" " * id_width + t.description + (f" (file {t.source})" if t.source else ""))
+        lines.append(f"{mark}{t.id.ljust(id_width - 1)}{cells}  {printable(t.name)}")
+        if describe:  # text from a file is shown as text (control characters escaped)
+            lines.append(" " * id_width + printable(t.description) + (f" (file {printable(t.source)})" if t.source else ""))
     return lines
 
 

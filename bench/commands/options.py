@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
-import math
 from typing import Any
 
 from bench.errors import SettingsError
@@ -74,18 +73,21 @@ def add_tuning_options(parser: argparse.ArgumentParser) -> None:
 
 
 def is_temperament_file(text: str) -> bool:
-    """True when a --temperament value names a file rather than a built-in identifier."""
-    return text.lower().endswith(".toml") or "/" in text or "\\" in text
+    """True when a --temperament value names a file rather than a built-in identifier.
+
+    A built-in identifier or alias wins (``1/4-comma`` is the alias, not a path).
+    """
+    try:
+        canonical_temperament_id(text)
+    except SettingsError:
+        return text.lower().endswith(".toml") or "/" in text or "\\" in text
+    return False
 
 
 def _number(option: str, text: Any, what: str) -> float:
-    try:
-        value = float(text)
-    except (TypeError, ValueError):
-        raise SettingsError(f"{option} {text!r} is not a number; give {what}") from None
-    if not math.isfinite(value):
-        raise SettingsError(f"{option} {text!r} is not a finite number; give {what}")
-    return value
+    from bench.numbers import parse_number
+
+    return parse_number(text, option, what)
 
 
 def settings_from_args(

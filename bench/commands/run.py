@@ -9,16 +9,21 @@ from __future__ import annotations
 
 import argparse
 import inspect
-import math
 import queue
 import sys
 import time
-from pathlib import Path
 from collections.abc import Callable
+from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from bench.commands.options import add_tuning_options, settings_from_args
-from bench.errors import BenchError, DeviceError, LogError, SettingsError
+from bench.errors import (
+    AudioFileError,
+    BenchError,
+    DeviceError,
+    LogError,
+    SettingsError,
+)
 from bench.tuning import TuningSettings
 
 if TYPE_CHECKING:
@@ -74,17 +79,21 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
 def _positive(option: str, text: str | None, what: str, *, integer: bool = False) -> float | None:
     if text is None:
         return None
-    try:
-        value = int(text) if integer else float(text)
-    except ValueError:
-        raise SettingsError(f"{option} {text!r} is not a number; give {what}") from None
-    if not (math.isfinite(value) and value > 0):
-        raise SettingsError(f"{option} {text!r} must be above 0; give {what}")
-    return value
+    from bench.numbers import parse_number
+    from bench.textsafe import clip
+
+    value = parse_number(text, option, what)  # the one number syntax of bench
+    if integer and value != int(value):
+        raise SettingsError(f"{option} {clip(repr(text))} is not a whole number; give {what}")
+    if not value > 0:
+        raise SettingsError(f"{option} {clip(repr(text))} must be above 0; give {what}")
+    return int(value) if integer else value
 
 
 def _say(message: str) -> None:
-    print(message, file=sys.stderr, flush=True)
+    from bench.pipes import write_line
+
+    write_line(message, sys.stderr)  # a closed stderr stops the messages, not the run
 
 
 def build_source(args: argparse.Namespace, *, realtime_file: bool) -> tuple[Any, str | None]:
@@ -120,8 +129,16 @@ def build_source(args: argparse.Namespace, *, realtime_file: bool) -> tuple[Any,
         raise SettingsError(f"--device {args.device!r} applies to --input mic, not to the file {kind}")
     if rate_i is not None:
         raise SettingsError(f"--rate {rate_i} applies to mic and demo; the file {kind} plays at its own rate")
+    from bench.safeio import FileRefused, check_audio_input
     from bench.sources.wavfile import WavFileSource
+    from bench.textsafe import clip
 
+    try:  # a named pipe would block the decoder for ever, a device never ends
+        check_audio_input(kind)
+    except FileRefused as exc:
+        if exc.missing:  # the source's own words name the missing file
+            return WavFileSource(Path(kind), block_size=block, realtime=realtime_file), None
+        raise AudioFileError(f"--input {clip(kind)} cannot be played: {exc.reason}; give mic, demo or an audio file") from None
     return WavFileSource(Path(kind), block_size=block, realtime=realtime_file), None
 
 
@@ -155,7 +172,13 @@ def run_command(args: argparse.Namespace) -> int:
         from bench.workflow.profiles import get_profile
 
         args.profile = get_profile(args.profile)  # a bad name or file: one line, before any input opens
-    base = load_saved_settings()
+    if args.no_ui:
+        from bench.config import read_saved_settings
+
+        saved = read_saved_settings()
+        base: TuningSettings | None = saved.settings
+    else:
+        base = load_saved_settings()
     settings = settings_from_args(args, base)
     if args.temp_source is not None:
         from bench.airtemp import AirTemperatureSource
@@ -165,9 +188,18 @@ def run_command(args: argparse.Namespace) -> int:
     source, notice = build_source(args, realtime_file=not args.no_ui)
     log_path = _log_file(args)
     if args.no_ui:
-        if notice:
-            _say(notice)
-        return _run_unattended(args, source, settings, log_path, log_rate, duration_s)
+        from bench import unattended
+
+        if notice:  # unattended, the input asked for is the input used, or the run fails
+            _say(f"error: {unattended.without_fallback(notice)}")
+            return unattended.EXIT_INPUT
+        problem = unattended.log_folder_problem(log_path)
+        if problem is not None:
+            _say(f"error: {problem}")
+            return unattended.EXIT_LOG
+        origins = unattended.setting_origins(args, saved.from_file, saved.path)
+        _say(unattended.describe_origins(settings, origins, args.label))
+        return _run_unattended(args, source, settings, log_path, log_rate, duration_s, origins)
     return _run_screen(args, source, settings, log_path, log_rate, notice)
 
 
@@ -215,7 +247,7 @@ def _start_engine(
     try:
         engine.start()
     except DeviceError as exc:
-        if args.input != "mic" or args.device is not None:
+        if args.input != "mic" or args.device is not None or args.no_ui:
             raise
         from bench.sources.demo import DemoSource
 
@@ -274,9 +306,12 @@ def _run_unattended(
     log_path: Path | None,
     log_rate: float | None,
     duration_s: float | None,
+    origins: dict[str, str] | None = None,
 ) -> int:
+    from bench import unattended
     from bench.engine import Engine
     from bench.heldnotes import HeldNoteCollector
+    from bench.pipes import write_line
     from bench.workflow.live import LiveWorkflow
 
     lines: queue.SimpleQueue[tuple[str, str]] = queue.SimpleQueue()
@@ -297,11 +332,15 @@ def _run_unattended(
     def log_line(closing: bool = False) -> str:
         """How the log ended, for the last line; never names a file that was not written."""
         rows = engine.stats.log_rows
+        if log_failed and log_path is not None:  # count what the file holds, not what was sent
+            rows = unattended.rows_on_disk(log_path)
         if log_failed and rows == 0:
             return "no log written"
         if log_failed:
             return f"log: {log_path} ({rows} rows; stopped by a write error)"
         return f"the log is complete: {log_path} ({rows} rows)" if closing else f"log: {log_path} ({rows} rows)"
+
+    stdout_open = [True]
 
     def drain() -> None:
         while True:
@@ -310,22 +349,34 @@ def _run_unattended(
             except queue.Empty:
                 return
             if where == "out":
-                print(text, flush=True)
+                if stdout_open[0]:  # a closed pipe (| head) stops the printing, not the run
+                    stdout_open[0] = write_line(text)
             else:
                 _say(text)
 
-    engine, fallback = _start_engine(
-        lambda src: Engine(
-            src,
-            settings,
-            log_path=log_path,
-            log_rows_per_s=log_rate,
-            on_event=on_event,
-            consumers=[held_notes, workflow],
-        ),
-        source,
-        args,
+    try:
+        engine, fallback = _start_engine(
+            lambda src: Engine(
+                src,
+                settings,
+                log_path=log_path,
+                log_rows_per_s=log_rate,
+                on_event=on_event,
+                consumers=[held_notes, workflow],
+            ),
+            source,
+            args,
+        )
+    except DeviceError as exc:
+        _say(f"error: {exc}")
+        return unattended.EXIT_INPUT
+    record = (
+        unattended.write_run_record(log_path, settings, origins or {}, args.label, engine.source.description)
+        if log_path is not None
+        else None
     )
+    if log_path is not None and record is None:
+        _say(f"warning: {unattended.run_record_path(log_path)} not written (exists or not writable)")
     if fallback:
         _say(fallback)
     follower = _start_follower(args, engine, lambda message: lines.put(("err", f"temperature: {message}")))
@@ -346,9 +397,9 @@ def _run_unattended(
         if follower is not None:
             follower.stop()
         drain()
-        word = "terminated" if isinstance(exc, _Terminated) else "interrupted"
+        word = exc.word if isinstance(exc, _Terminated) else "interrupted"
         _say(f"{word}; {log_line(closing=True)}")
-        return 143 if isinstance(exc, _Terminated) else 130
+        return exc.status if isinstance(exc, _Terminated) else 130
     finally:
         _restore_sigterm(previous_term)
     engine.stop()  # closes the consumers: the last held note and capture
@@ -360,11 +411,21 @@ def _run_unattended(
     if workflow.file_error:
         captures = f"; captures not saved: {workflow.file_error}"
     _say(f"{stats.frames} frames, {stats.dropped_blocks} dropped blocks; {log_line()}{captures}")
-    return 0 if stats.state != "error" else 1
+    if stats.state == "error":
+        return unattended.EXIT_INPUT
+    return unattended.EXIT_LOG if log_failed else 0
 
 
 class _Terminated(Exception):
-    """SIGTERM arrived: end like Ctrl-C (log complete and closed), exit status 143."""
+    """SIGTERM or SIGHUP arrived: end like Ctrl-C (log complete and closed), exit status
+    128 + the signal's number (143, 129)."""
+
+    def __init__(self, signum: int) -> None:
+        import signal
+
+        super().__init__(signum)
+        self.status = 128 + signum
+        self.word = "hung up" if signum == getattr(signal, "SIGHUP", -1) else "terminated"
 
 
 def _raise_on_sigterm() -> Any:
@@ -375,16 +436,19 @@ def _raise_on_sigterm() -> Any:
         return None
 
     def handler(signum: int, frame: Any) -> None:
-        raise _Terminated()
+        raise _Terminated(signum)
 
-    return signal.signal(signal.SIGTERM, handler)
+    previous = {signal.SIGTERM: signal.signal(signal.SIGTERM, handler)}
+    if hasattr(signal, "SIGHUP"):  # the terminal closed: the same orderly end
+        previous[signal.SIGHUP] = signal.signal(signal.SIGHUP, handler)
+    return previous
 
 
 def _restore_sigterm(previous: Any) -> None:
     import signal
 
-    if previous is not None:
-        signal.signal(signal.SIGTERM, previous)
+    for signum, handler in (previous or {}).items():
+        signal.signal(signum, handler)
 
 
 def _tell_screen(engine: Any, message: str) -> None:

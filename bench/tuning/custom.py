@@ -27,6 +27,7 @@ from pathlib import Path
 from typing import Any
 
 from bench.errors import SettingsError
+from bench.textsafe import clip, printable
 from bench.tuning.notes import parse_pitch_class, pitch_class_name
 from bench.tuning.temperaments import (
     TEMPERAMENT_ALIASES,
@@ -37,6 +38,8 @@ from bench.tuning.temperaments import (
 __all__ = ["MAX_DEVIATION_CENTS", "load_temperament", "parse_temperament"]
 
 MAX_DEVIATION_CENTS = 50.0
+TEMPERAMENT_LIMIT_BYTES = 100_000
+"""Largest temperament file read, bytes (twelve notes take a few hundred)."""
 _ID_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._\-]{0,39}$")
 _TOP_KEYS = ("id", "name", "description", "pitches", "deviations")
 _SECTION_RE = re.compile(r"^\s*\[\s*([^\]]+?)\s*\]")
@@ -193,6 +196,7 @@ def parse_temperament(text: str, source: str = "<temperament>") -> Temperament:
     >>> t.id, t.offsets_cents[:3]
     ('x', (0.0, -10.0, -4.0))
     """
+    text = text.removeprefix("\ufeff")  # a byte order mark is no part of the TOML (RFC 3629, 6)
     rep = _Reporter(text, source)
     data = _decode(text, source)
 
@@ -226,8 +230,9 @@ def parse_temperament(text: str, source: str = "<temperament>") -> Temperament:
             raise rep.error(
                 f"{key} {data[key]!r} is not text", f'write {key} = "..." in quotes', key=key
             )
-    name = data.get("name", tid)
-    description = data.get("description", "Custom temperament.")
+    # Text from a file is shown as text: control characters (terminal escape codes) escaped.
+    name = printable(data.get("name", tid))
+    description = printable(data.get("description", "Custom temperament."))
 
     present = [k for k in ("pitches", "deviations") if k in data]
     if len(present) != 1:
@@ -326,13 +331,15 @@ def load_temperament(path: str | Path) -> Temperament:
         If the file cannot be read or is not a valid temperament; one line naming the file,
         the line and the fix.
     """
+    from bench.safeio import FileRefused, read_text_file
+
     file = Path(path)
     try:
-        text = file.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else type(exc).__name__
+        text = read_text_file(file, limit_bytes=TEMPERAMENT_LIMIT_BYTES)
+    except FileRefused as exc:
+        reason = "No such file" if exc.missing else exc.reason
         raise SettingsError(
-            f"temperament file {str(file)!r} cannot be read ({reason}); give the path of a "
+            f"temperament file {clip(repr(str(file)))} cannot be read ({reason}); give the path of a "
             "UTF-8 .toml file"
         ) from None
     return parse_temperament(text, source=str(file))

@@ -113,15 +113,20 @@ def parse_a4(text: str | float) -> float:
     """
     if isinstance(text, (int, float)):
         return check_a4(text)
-    try:
-        value = float(text.strip().lower().removesuffix("hz"))
-    except ValueError:
+    from bench.numbers import strict_float  # the one number syntax of bench (no '4_40')
+    from bench.textsafe import clip
+
+    body = text.strip().lower().removesuffix("hz")
+    value = strict_float(body)
+    if value is None and body.strip().lstrip("+-") in ("nan", "inf", "infinity"):
+        return check_a4(float(body))  # not finite: outside the range
+    if value is None:
         preset = _PRESETS.get(_key(text))
         if preset is None:
             raise SettingsError(
-                f"pitch standard {text!r} is neither a frequency nor a preset; give A4 in "
+                f"pitch standard {clip(repr(text))} is neither a frequency nor a preset; give A4 in "
                 f"{A4_MIN_HZ:g}-{A4_MAX_HZ:g} Hz or one of {_PRESET_LIST}"
-            ) from None
+            )
         return preset
     return check_a4(value)
 

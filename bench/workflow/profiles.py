@@ -40,6 +40,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from bench.errors import SettingsError
+from bench.textsafe import clip, printable
 from bench.tuning.notes import note_name, parse_note
 
 __all__ = [
@@ -53,6 +54,8 @@ __all__ = [
     "profile_names",
 ]
 
+PROFILE_LIMIT_BYTES = 100_000
+"""Largest profile file read, bytes."""
 COMPASS_SEMITONES = 26
 """Two octaves and a tone (REFERENCES §5, common practice)."""
 SECOND_REGISTER_FROM = 15
@@ -316,6 +319,7 @@ def parse_profile_text(text: str, where: str = "<profile>") -> InstrumentProfile
     def fail(line: int, message: str) -> SettingsError:
         return SettingsError(f"{where}:{line}: {message}")
 
+    text = text.removeprefix("\ufeff")  # a byte order mark is no part of the TOML
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -402,7 +406,7 @@ def parse_profile_text(text: str, where: str = "<profile>") -> InstrumentProfile
                    f"missing note {outside[0]} lies outside the compass; list notes between lowest and highest")
     return InstrumentProfile(
         name=name,
-        title=str(table.get("title", name)),
+        title=printable(str(table.get("title", name))),  # escape codes from a file shown as text
         lowest_midi=low,
         highest_midi=high,
         register_starts=starts,
@@ -421,15 +425,15 @@ def load_profile_file(path: str | Path) -> InstrumentProfile:
     SettingsError
         Missing or unreadable file, or invalid content (``file:line: problem; fix``).
     """
+    from bench.safeio import FileRefused, read_text_file
+
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise SettingsError(f"{path}: no such profile file; give a .toml file or one of {', '.join(FAMILY)}") from None
-    except IsADirectoryError:
-        raise SettingsError(f"{path}: is a folder, not a profile file; give a .toml file") from None
-    except UnicodeDecodeError:
-        raise SettingsError(f"{path}:1: not UTF-8 text; save the profile as UTF-8") from None
-    except OSError as exc:
-        raise SettingsError(f"{path}: cannot read the profile ({exc.strerror or exc})") from None
+        text = read_text_file(path, limit_bytes=PROFILE_LIMIT_BYTES)
+    except FileRefused as exc:
+        if exc.missing:
+            raise SettingsError(
+                f"{clip(str(path))}: no such profile file; give a .toml file or one of {', '.join(FAMILY)}"
+            ) from None
+        raise SettingsError(f"{clip(str(path))}: cannot read the profile ({exc.reason}); give a UTF-8 .toml file") from None
     return parse_profile_text(text, where=str(path))

@@ -43,7 +43,8 @@ class Session:
 def _header(path: Path) -> list[str]:
     try:
         with open(path, encoding="utf-8", newline="") as f:
-            return next(csv.reader(f), [])
+            first = f.readline(1 << 16)  # a header is a few hundred characters: never read more
+        return next(csv.reader([first]), [])
     except FileNotFoundError:
         raise LogError(f"no such session file: {path}; give a frame log or a .captures.csv") from None
     except UnicodeDecodeError:
@@ -68,6 +69,14 @@ def load_session(path: str | Path, profile: str | Path | InstrumentProfile | Non
     path = Path(path)
     if path.is_dir():
         raise LogError(f"{path} is a folder; give a session's frame log (.csv)")
+    from bench.safeio import FileRefused, check_regular_file
+    from bench.textsafe import clip
+
+    try:  # a named pipe would block, /dev/zero never ends a line: regular files only
+        check_regular_file(path)
+    except FileRefused as exc:
+        if not exc.missing:
+            raise LogError(f"{clip(str(path))} cannot be read: {exc.reason}; give a session's frame log (.csv)") from None
     prof = get_profile(profile) if isinstance(profile, (str, Path)) else profile
     header = _header(path)
     rows: list[Reading] | None = None

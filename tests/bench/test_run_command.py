@@ -113,16 +113,18 @@ def test_unknown_device_names_what_was_found(monkeypatch, capsys):
     assert err == "error: no input device matches 'scarlett'; input devices found: 2 'USB Audio' (ALSA)\n"
 
 
-def test_no_microphone_falls_back_to_the_demo_in_one_line(monkeypatch, capsys, tmp_path):
+def test_no_microphone_unattended_fails_in_one_line_with_status_3(monkeypatch, capsys, tmp_path):
+    # Unattended, the demo is never put in the microphone's place: a script must be able to
+    # tell a real session from a failed one (exit status 3, no log; README-reliability-draft).
     from bench.sources import mic
 
     monkeypatch.setattr(mic, "list_input_devices", lambda: [])
     code = main(["run", "--no-ui", "--duration", "0.5"])
     err = capsys.readouterr().err
-    assert code == 0, err
-    assert "no audio input device found; connect a microphone or use --input demo; playing the demo instrument instead" in err
-    assert "listening to demo: Hollin Lane Flute Works 'Wren' alto in F" in err
-    assert list((tmp_path / "logs").glob("session-*.csv"))
+    assert code == 3, err
+    assert err.startswith("error: no audio input device found; connect a microphone or use --input demo")
+    assert err.count("\n") == 1
+    assert not list((tmp_path / "logs").glob("session-*.csv"))
 
 
 def test_devices_lists_inputs(monkeypatch, capsys):

@@ -359,7 +359,8 @@ def test_cli_run_with_a_full_disk_says_so_once_and_measures_to_the_end(tiny_fs, 
     from bench.cli import main
 
     log = tiny_fs / "take.csv"
-    assert main(["run", "--no-ui", "--input", str(STEADY), "--log", str(log)]) == 0
+    # Exit status 4: the log asked for could not be written (README-reliability-draft).
+    assert main(["run", "--no-ui", "--input", str(STEADY), "--log", str(log)]) == 4
     err = capsys.readouterr().err.splitlines()
     log_errors = [line for line in err if line.startswith("log error:")]
     assert len(log_errors) == 1 and "logging is off, measuring goes on" in log_errors[0], err
@@ -367,12 +368,15 @@ def test_cli_run_with_a_full_disk_says_so_once_and_measures_to_the_end(tiny_fs, 
     rows = read_frame_log(log)  # what reached the disk parses
     frames = int(err[-1].split()[0])
     assert frames > len(rows) > 0  # measuring went on after logging stopped
+    assert f"({len(rows)} rows; stopped by a write error)" in err[-1]  # the rows the file holds
 
 
 def test_cli_run_with_a_read_only_log_folder_does_not_claim_a_log(read_only_fs, capsys):
     from bench.cli import main
 
-    assert main(["run", "--no-ui", "--input", str(STEADY), "--log-dir", str(read_only_fs)]) == 0
+    # Unattended, a log folder that cannot be written is refused before anything starts, with
+    # exit status 4 (README-reliability-draft), and no log is claimed.
+    assert main(["run", "--no-ui", "--input", str(STEADY), "--log-dir", str(read_only_fs)]) == 4
     err = capsys.readouterr().err.splitlines()
-    assert sum(line.startswith("log error:") for line in err) == 1, err
-    assert str(read_only_fs) not in err[-1], err[-1]
+    assert len(err) == 1 and err[0].startswith("error: the log folder") and "not writable" in err[0], err
+    assert not any(line.startswith("listening") for line in err)
