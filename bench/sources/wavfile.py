@@ -8,18 +8,47 @@ resampled to 48 kHz on the way (soxr, streaming), so it goes through like any ot
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
+from typing import Protocol
 
 import numpy as np
 from numpy.typing import NDArray
 
 from bench.errors import AudioFileError
-from bench.sources.base import DEFAULT_BLOCK_SIZE, MAX_LAG_S, Clock, PacedBlocks, SystemClock, to_mono
+from bench.sources.base import (
+    DEFAULT_BLOCK_SIZE,
+    MAX_LAG_S,
+    Clock,
+    PacedBlocks,
+    SystemClock,
+    to_mono,
+)
 
 ANALYSIS_RATES_HZ = (16000, 96000)
 """Sample rates the analyser takes (``dsp.analyser.MIN_SAMPLE_RATE``..``MAX_SAMPLE_RATE``)."""
 RESAMPLE_RATE_HZ = 48000
 """Rate a file outside :data:`ANALYSIS_RATES_HZ` is resampled to, Hz."""
+
+
+class _FileInfo(Protocol):
+    """What this module reads of ``soundfile.info`` (soundfile ships no type information)."""
+
+    samplerate: int
+    channels: int
+    frames: int
+
+
+class _OpenFile(Protocol):
+    """What this module calls on a ``soundfile.SoundFile``."""
+
+    def read(self, frames: int, dtype: str, always_2d: bool) -> NDArray[np.float32]: ...
+
+    def close(self) -> None: ...
+
+
+class _Resampler(Protocol):
+    """What this module calls on a ``soxr.ResampleStream`` (soxr ships no type information)."""
+
+    def resample_chunk(self, x: NDArray[np.float32], last: bool = False) -> NDArray[np.float32]: ...
 
 
 class WavFileSource:
@@ -75,14 +104,14 @@ class WavFileSource:
         self._pacer = PacedBlocks(
             self.sample_rate, self.block_size, realtime=realtime, clock=clock or SystemClock()
         )
-        self._file: Any = None
+        self._file: _OpenFile | None = None
         self._pending: NDArray[np.float32] | None = None
-        self._resampler: Any = None
+        self._resampler: _Resampler | None = None
         self._out = np.zeros(0, dtype=np.float32)
         self._eof = False
 
     def start(self) -> None:
-        import soundfile as sf
+        import soundfile as sf  # type: ignore[import-untyped]
 
         self.stop()
         try:
@@ -94,25 +123,26 @@ class WavFileSource:
         self._out = np.zeros(0, dtype=np.float32)
         self._eof = False
         if self.resampled:
-            import soxr
+            import soxr  # type: ignore[import-untyped]
 
             self._resampler = soxr.ResampleStream(self.file_rate, self.sample_rate, 1, dtype="float32")
         self._pacer.start()
 
     def read(self, timeout_s: float) -> NDArray[np.float32] | None:
-        if self._file is None or self.ended:
+        file = self._file
+        if file is None or self.ended:
             return None
         skip = self._pacer.overdue_blocks(MAX_LAG_S)
         if skip:  # the reader fell behind real time: lose input as a microphone would
             self._pending = None
             for _ in range(skip):
-                lost = self._next_block()
+                lost = self._next_block(file)
                 if lost is None:
                     break
                 self.dropped_blocks += 1
                 self._pacer.delivered(len(lost))
         if self._pending is None:
-            self._pending = self._next_block()
+            self._pending = self._next_block(file)
             if self._pending is None:
                 self.ended = True
                 return None
@@ -123,13 +153,13 @@ class WavFileSource:
         self._pacer.delivered(len(block))
         return block
 
-    def _next_block(self) -> NDArray[np.float32] | None:
-        """The next block at the output rate, or None at the end of the file."""
+    def _next_block(self, file: _OpenFile) -> NDArray[np.float32] | None:
+        """The next block of ``file`` at the output rate, or None at its end."""
         if self._resampler is None:
-            data = self._file.read(self.block_size, dtype="float32", always_2d=True)
+            data = file.read(self.block_size, dtype="float32", always_2d=True)
             return to_mono(data) if len(data) else None
         while len(self._out) < self.block_size and not self._eof:
-            data = self._file.read(self.block_size, dtype="float32", always_2d=True)
+            data = file.read(self.block_size, dtype="float32", always_2d=True)
             if len(data) == 0:
                 self._eof = True
                 more = self._resampler.resample_chunk(np.zeros(0, dtype=np.float32), last=True)
@@ -147,7 +177,7 @@ class WavFileSource:
             f.close()
 
 
-def _file_info(path: Path) -> Any:
+def _file_info(path: Path) -> _FileInfo:
     """soundfile.info with one-line errors."""
     import soundfile as sf
 
@@ -156,7 +186,7 @@ def _file_info(path: Path) -> Any:
     if path.is_dir():
         raise AudioFileError(f"{path} is a folder; give an audio file")
     try:
-        info = sf.info(str(path))
+        info: _FileInfo = sf.info(str(path))
     except (sf.LibsndfileError, RuntimeError, OSError) as exc:
         raise AudioFileError(f"cannot read audio file {path}: {exc}") from None
     if info.frames <= 0:
