@@ -9,7 +9,13 @@ from pathlib import Path
 
 from bench.errors import LogError
 from bench.framelog import FRAME_LOG_COLUMNS, read_frame_log
-from bench.workflow.captures import CAPTURE_COLUMNS, Capture, captures_from_rows, captures_path_for, read_captures
+from bench.workflow.captures import (
+    CAPTURE_COLUMNS,
+    Capture,
+    captures_from_rows,
+    captures_path_for,
+    read_captures,
+)
 from bench.workflow.profiles import InstrumentProfile, get_profile, guess_profile
 
 __all__ = ["Session", "load_session"]
