@@ -33,7 +33,6 @@ Timing: a frame measures the ``frame_size`` samples ending at sample ``e`` (excl
 from __future__ import annotations
 
 import math
-from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -182,7 +181,7 @@ class StreamingAnalyser:
             np.empty((c, self._n), dtype=np.float32), np.empty((c, self._keep)), np.empty((c, self._keep)),
             np.empty((c, N_OUT)),
         )  # fmt: skip
-        self._work: dict[int, tuple[NDArray[Any], ...]] = {}  # views of the work arrays per chunk size
+        self._work: dict[int, tuple[NDArray[np.generic], ...]] = {}  # views of the work arrays per chunk size
         self.reset()
         if not _compiled:
             self._compile()
