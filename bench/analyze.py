@@ -179,10 +179,14 @@ class ProgressBar:
 def format_summary(result: FileAnalysis, settings: TuningSettings) -> str:
     """The per-note summary a maker reads, as text."""
     lines = [
-        f"{result.path}: {result.duration_s:.2f} s, {result.sample_rate} Hz, "
-        f"{result.channels} ch; {result.voiced_frames} of {result.frames} frames voiced",
-        f"  settings: {settings.temperament} on {settings.tonic}, A4 = {settings.a4_hz:.2f} Hz, "
-        f"air {settings.temp_c:.1f} °C, cents corrected to {settings.ref_temp_c:.1f} °C",
+        (
+            f"{result.path}: {result.duration_s:.2f} s, {result.sample_rate} Hz, "
+            f"{result.channels} ch; {result.voiced_frames} of {result.frames} frames voiced"
+        ),
+        (
+            f"  settings: {settings.temperament} on {settings.tonic}, A4 = {settings.a4_hz:.2f} Hz, "
+            f"air {settings.temp_c:.1f} °C, cents corrected to {settings.ref_temp_c:.1f} °C"
+        ),
     ]
     lines += [f"  warning: {w}" for w in result.warnings]
     if result.notes:

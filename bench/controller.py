@@ -21,7 +21,12 @@ from bench.errors import BenchError, SettingsError
 from bench.reading import Reading
 from bench.tuning import TuningSettings
 from bench.tuning.air import check_temp
-from bench.tuning.notes import note_name, parse_note, parse_pitch_class, pitch_class_name
+from bench.tuning.notes import (
+    note_name,
+    parse_note,
+    parse_pitch_class,
+    pitch_class_name,
+)
 from bench.tuning.standards import PITCH_STANDARDS, check_a4, parse_a4
 from bench.tuning.temperaments import TEMPERAMENT_IDS
 from bench.workflow.captures import Capture

@@ -498,7 +498,7 @@ class Engine:
             self._close_log_from_outside()
             try:
                 self._source.stop()
-            except Exception:  # noqa: BLE001 - a stuck driver may fail to stop as well
+            except Exception:  # noqa: BLE001, S110 - a stuck driver may fail to stop as well
                 pass
             thread.join(min(timeout_s, 1.0))
         self._state = "stopped" if self._state not in ("ended", "error") else self._state
@@ -552,7 +552,7 @@ class Engine:
                 self._emit("log_error", f"closing the log {log.path} failed: {exc}")
         try:
             self._source.stop()
-        except Exception:  # noqa: BLE001 - stopping a broken source must not hide the rows
+        except Exception:  # noqa: BLE001, S110 - stopping a broken source must not hide the rows
             pass
 
     # -- the engine thread -------------------------------------------------------------
@@ -691,7 +691,7 @@ class Engine:
         self._log = None
         try:
             log.close()
-        except Exception:  # noqa: BLE001 - the file is already broken
+        except Exception:  # noqa: BLE001, S110 - the file is already broken
             pass
         self._emit("log_error", f"{exc}; logging is off, measuring goes on")
 
@@ -752,8 +752,7 @@ class Engine:
             heard_s = arrival_s - (block_end_s - frame.time_s)
             latency_s = now_s - heard_s + input_latency_s
             self._latency_s = latency_s
-            if latency_s > self._max_latency_s:
-                self._max_latency_s = latency_s
+            self._max_latency_s = max(self._max_latency_s, latency_s)
 
     def _log_due(self, time_s: float) -> bool:
         if self._log_interval_s is None:
@@ -791,7 +790,7 @@ class Engine:
             return
         try:
             callback(EngineEvent(kind, message, float(time_s)))
-        except Exception:  # noqa: BLE001 - a UI bug must not stop measuring
+        except Exception:  # noqa: BLE001, S110 - a UI bug must not stop measuring
             pass
 
 

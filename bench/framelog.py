@@ -16,7 +16,7 @@ import time
 from collections.abc import Callable, Iterable, Iterator, Mapping
 from datetime import datetime
 from pathlib import Path
-from typing import IO, BinaryIO
+from typing import IO, BinaryIO, Self
 
 from bench.errors import LogError, SettingsError
 from bench.reading import Reading, SettingsKey, map_or_none
@@ -221,7 +221,7 @@ class CsvFrameLog:
         finally:
             f.close()
 
-    def __enter__(self) -> CsvFrameLog:
+    def __enter__(self) -> Self:
         return self
 
     def __exit__(self, *exc: object) -> None:

@@ -33,20 +33,34 @@ Timing: a frame measures the ``frame_size`` samples ending at sample ``e`` (excl
 from __future__ import annotations
 
 import math
-from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from dsp.chunk import N_OUT, O_CLARITY, O_CLIP, O_F0, O_H1, O_HELD, O_JUMP, O_LEVEL, O_ODD_EVEN, O_REGISTER
-from dsp.chunk import CARRY_JUMPED_RUN, CARRY_PREV_F0, analyse_chunk, chunk_params, store_block
+from dsp.chunk import (
+    CARRY_JUMPED_RUN,
+    CARRY_PREV_F0,
+    N_OUT,
+    O_CLARITY,
+    O_CLIP,
+    O_F0,
+    O_H1,
+    O_HELD,
+    O_JUMP,
+    O_LEVEL,
+    O_ODD_EVEN,
+    O_REGISTER,
+    analyse_chunk,
+    chunk_params,
+    store_block,
+)
 from dsp.frame import Frame
 from dsp.measure import MAINS_HZ, MAINS_TOLERANCE
 from dsp.rates import MAX_SAMPLE_RATE, MIN_SAMPLE_RATE
 from dsp.register import JUMP_NAMES, REGISTER_NAMES, RegisterMonitor
 from dsp.spectrum import newest_half_taps
 
-__all__ = ["StreamingAnalyser", "prepare_kernels", "MIN_SAMPLE_RATE", "MAX_SAMPLE_RATE", "FMIN_HZ", "FMAX_HZ"]
+__all__ = ["FMAX_HZ", "FMIN_HZ", "MAX_SAMPLE_RATE", "MIN_SAMPLE_RATE", "StreamingAnalyser", "prepare_kernels"]
 
 FMIN_HZ = 60.0
 """Lowest fundamental reported, Hz."""
@@ -123,7 +137,7 @@ class StreamingAnalyser:
             raise ValueError(f"sample_rate {sample_rate} Hz is above {MAX_SAMPLE_RATE} Hz; resample to 16-96 kHz")
         sr = float(sample_rate)
         if frame_size is None:
-            frame_size = max(2048, 1 << int(round(math.log2(0.085 * sr))))
+            frame_size = max(2048, 1 << round(math.log2(0.085 * sr)))
         if int(frame_size) != frame_size or frame_size % 2 or frame_size < 5 * sr / fmin_hz / 2:
             raise ValueError(
                 f"frame_size {frame_size} cannot hold 2.5 periods of {fmin_hz} Hz at {sr:g} Hz; "
@@ -131,7 +145,7 @@ class StreamingAnalyser:
             )
         max_hop = int(0.010 * sr)
         if hop_size is None:
-            hop_size = int(round(0.005 * sr))
+            hop_size = round(0.005 * sr)
         if int(hop_size) != hop_size or not (1 <= hop_size <= max_hop):
             raise ValueError(f"hop_size {hop_size} is outside 1..{max_hop} samples (10 ms at {sr:g} Hz); pick a smaller hop")
         if not (0.0 < fmin_hz < fmax_hz < 0.5 * sr):
@@ -143,13 +157,13 @@ class StreamingAnalyser:
         self._fmin = float(fmin_hz)
         self._fmax = float(fmax_hz)
         self._monitor = RegisterMonitor(self._hop / sr, **register_options)
-        self._override_frames = int(math.ceil(self._n / 4 / self._hop))
+        self._override_frames = math.ceil(self._n / 4 / self._hop)
 
         df = sr / self._n
         n_bins = self._n // 2 + 1
         self._limit_hz = min(_PEAK_LIMIT_HZ, 0.45 * sr)
-        self._lo_bin = max(2, int(math.floor(0.9 * fmin_hz / df)))
-        self._hi_bin = min(n_bins - 3, int(math.ceil(self._limit_hz / df)))
+        self._lo_bin = max(2, math.floor(0.9 * fmin_hz / df))
+        self._hi_bin = min(n_bins - 3, math.ceil(self._limit_hz / df))
         self._keep = min(self._hi_bin + 4, self._n // 2)  # bins of the whole-window spectrum used
         self._fast_keep = min(self._hi_bin // 2 + 4, self._n // 4)  # ... of the newest half window
         self._store_size = self._n + 8 * self._hop + 8192
@@ -166,7 +180,7 @@ class StreamingAnalyser:
             np.empty((c, self._n), dtype=np.float32), np.empty((c, self._keep)), np.empty((c, self._keep)),
             np.empty((c, N_OUT)),
         )  # fmt: skip
-        self._work: dict[int, tuple[NDArray[Any], ...]] = {}  # views of the work arrays per chunk size
+        self._work: dict[int, tuple[NDArray[np.generic], ...]] = {}  # views of the work arrays per chunk size
         self.reset()
         if not _compiled:
             self._compile()
@@ -318,25 +332,26 @@ class StreamingAnalyser:
         half = self._n / 2.0
         frames: list[Frame] = []
         append = frames.append
+        isnan = math.isnan
         for row in work[-1].tolist():
             e += hop
             f0 = row[O_F0]
             held = row[O_HELD]
-            if f0 == f0:  # voiced (not nan)
+            if not isnan(f0):  # voiced
                 append(
                     Frame(
                         (e - half) / sr, e / sr, f0, row[O_CLARITY], row[O_LEVEL], row[O_CLIP] != 0.0, tuple(row[O_H1:]),
                         row[O_ODD_EVEN], REGISTER_NAMES[int(row[O_REGISTER])], JUMP_NAMES[int(row[O_JUMP])],
-                        held if held == held else None,
-                    )  # fmt: skip
-                )
+                        None if isnan(held) else held,
+                    )
+                )  # fmt: skip
             else:
                 append(
                     Frame(
                         (e - half) / sr, e / sr, None, row[O_CLARITY], row[O_LEVEL], row[O_CLIP] != 0.0, None, None,
-                        None, None, held if held == held else None,
-                    )  # fmt: skip
-                )
+                        None, None, None if isnan(held) else held,
+                    )
+                )  # fmt: skip
         return frames
 
     def _compile(self) -> None:

@@ -16,13 +16,20 @@ from __future__ import annotations
 import math
 
 import numpy as np
-import rocket_fft  # type: ignore[import-untyped]  # noqa: F401  (registers scipy.fft for numba)
-import scipy.fft  # type: ignore[import-untyped]
-from numba import njit  # type: ignore[import-untyped]
+import rocket_fft  # noqa: F401  (registers scipy.fft for numba)
+import scipy.fft
+from numba import njit
 from numpy.typing import NDArray
 
 from dsp.harmonics import N_REPORTED, balance_row
-from dsp.measure import CURVATURE_GAIN, CURVATURE_NOISE, FIT_SNR_DB, N_FIT_HARMONICS, copy_frames, measure_frames
+from dsp.measure import (
+    CURVATURE_GAIN,
+    CURVATURE_NOISE,
+    FIT_SNR_DB,
+    N_FIT_HARMONICS,
+    copy_frames,
+    measure_frames,
+)
 from dsp.pitch import refine_f0
 from dsp.register import (
     EVIDENCE_MODES,
@@ -38,9 +45,20 @@ from dsp.register import (
 )
 
 __all__ = [
-    "analyse_chunk", "chunk_params", "store_block", "O_F0", "O_CLARITY", "O_LEVEL", "O_CLIP", "O_ODD_EVEN", "O_REGISTER",
-    "O_JUMP", "O_HELD", "O_H1", "N_OUT",
-]  # fmt: skip
+    "N_OUT",
+    "O_CLARITY",
+    "O_CLIP",
+    "O_F0",
+    "O_H1",
+    "O_HELD",
+    "O_JUMP",
+    "O_LEVEL",
+    "O_ODD_EVEN",
+    "O_REGISTER",
+    "analyse_chunk",
+    "chunk_params",
+    "store_block",
+]
 
 # columns of a frame's row in ``out``: f0 (Hz, nan unvoiced), clarity (0..1), level (dBFS),
 # clipped (0/1), odd/even (dB, nan unvoiced), register and jump codes (dsp.register), held

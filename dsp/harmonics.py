@@ -5,10 +5,10 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit  # type: ignore[import-untyped]
+from numba import njit
 from numpy.typing import NDArray
 
-__all__ = ["balance_row", "N_REPORTED", "FLOOR_DB"]
+__all__ = ["FLOOR_DB", "N_REPORTED", "balance_row"]
 
 N_REPORTED = 8
 """Harmonics reported (H1..H8)."""
@@ -40,7 +40,7 @@ def balance_row(amp: NDArray[np.float64], levels_db: NDArray[np.float64]) -> flo
     """
     top = 0.0
     for k in range(N_REPORTED):
-        if amp[k] > top:
+        if amp[k] > top:  # noqa: PLR1730  numba kernel: kept as written
             top = amp[k]
     scale = 1.0 / top if top > 0.0 else 1.0
     odd = 0.0

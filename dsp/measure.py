@@ -24,15 +24,15 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit  # type: ignore[import-untyped]
+from numba import njit
 from numpy.typing import NDArray
 
-from dsp.harmonics import N_REPORTED, balance_row
+from dsp.harmonics import balance_row
 from dsp.pitch import coarse_f0, refine_f0, strongest_peaks
 from dsp.register import EVIDENCE_HARMONICS, EVIDENCE_MODES, summarise_row
 from dsp.spectrum import band_floor, hann_power, newest_half_power_at
 
-__all__ = ["CLIP_THRESHOLD", "MAINS_HZ", "MAINS_TOLERANCE", "N_FIT_HARMONICS", "FIT_SNR_DB", "CURVATURE_GAIN", "CURVATURE_NOISE", "copy_frames", "measure_frames"]
+__all__ = ["CLIP_THRESHOLD", "CURVATURE_GAIN", "CURVATURE_NOISE", "FIT_SNR_DB", "MAINS_HZ", "MAINS_TOLERANCE", "N_FIT_HARMONICS", "copy_frames", "measure_frames"]
 
 MAINS_HZ = np.array([50.0, 60.0, 100.0, 120.0, 150.0, 180.0])
 """Mains hum and its harmonics, Hz: never a note."""
@@ -178,7 +178,7 @@ def measure_frames(
         band_floor(p, fl, _FLOOR_BAND_BINS)
         top = 0.0
         for k in range(lo_bin, hi_bin):
-            if p[k] > top:
+            if p[k] > top:  # noqa: PLR1730  numba kernel: kept as written
                 top = p[k]
         for k in range(keep):
             fl[k] = max(fl[k], top * _RELATIVE_FLOOR)

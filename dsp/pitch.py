@@ -28,12 +28,18 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit  # type: ignore[import-untyped]
+from numba import njit
 from numpy.typing import NDArray
 
-from dsp.spectrum import hann2_reassigned_bin, hann2_taps, hann3_reassigned_bin, hann_gain, hann_reassigned_bin
+from dsp.spectrum import (
+    hann2_reassigned_bin,
+    hann2_taps,
+    hann3_reassigned_bin,
+    hann_gain,
+    hann_reassigned_bin,
+)
 
-__all__ = ["strongest_peaks", "coarse_f0", "refine_f0"]
+__all__ = ["coarse_f0", "refine_f0", "strongest_peaks"]
 
 _FloatArray = NDArray[np.float64]
 _BoolArray = NDArray[np.bool_]
@@ -68,7 +74,7 @@ def strongest_peaks(
     n_max = freq_out.size
     top = 0.0
     for k in range(lo_bin, hi_bin):
-        if power[k] > top:
+        if power[k] > top:  # noqa: PLR1730  numba kernel: kept as written
             top = power[k]
     snr = 10.0 ** (snr_db / 10.0)
     low = top * 10.0 ** (-range_db / 10.0)
@@ -131,7 +137,7 @@ def coarse_f0(freq: _FloatArray, power: _FloatArray, count: int, fmin_hz: float,
                 if 1.0 <= h <= _MAX_MATCH_HARMONIC and abs(ratio - h) <= _MATCH_TOLERANCE:
                     on += power[i]
                     n_match += 1
-                    if h > top_h:
+                    if h > top_h:  # noqa: PLR1730  numba kernel: kept as written
                         top_h = h
             explained = on / total
             score = explained - _EMPTY_PENALTY * (1.0 - n_match / max(top_h, 1.0))
@@ -286,7 +292,7 @@ def refine_f0(
             w = weight[h]
             num += w * k * beta[h] * bin_hz
             den += w * k * k
-            if w > top_w:
+            if w > top_w:  # noqa: PLR1730  numba kernel: kept as written
                 top_w = w
             if narrow:
                 if peak_bin[h] >= 5 and peak_bin[h] + 5 <= rect.size:

@@ -44,13 +44,22 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from numba import njit  # type: ignore[import-untyped]
+from numba import njit
 from numpy.typing import NDArray
 
 __all__ = [
-    "RegisterMonitor", "RegisterReading", "summarise_row", "monitor_update", "monitor_config", "monitor_arrays",
-    "monitor_reset", "monitor_lock", "cents_apart", "EVIDENCE_HARMONICS", "EVIDENCE_MODES",
-]  # fmt: skip
+    "EVIDENCE_HARMONICS",
+    "EVIDENCE_MODES",
+    "RegisterMonitor",
+    "RegisterReading",
+    "cents_apart",
+    "monitor_arrays",
+    "monitor_config",
+    "monitor_lock",
+    "monitor_reset",
+    "monitor_update",
+    "summarise_row",
+]
 
 EVIDENCE_HARMONICS = 8
 """Harmonics of the held note in each evidence row."""
@@ -204,7 +213,8 @@ def _emit(st: NDArray[np.float64], register: int, jump: int, held_hz: float, mod
 @njit(cache=True, nogil=True)
 def _held_or_target(st: NDArray[np.float64]) -> float:
     """Held note to report, Hz (nan for none)."""
-    return st[_S_HELD] if math.isnan(st[_S_TARGET]) else st[_S_TARGET]
+    held_hz: float = st[_S_HELD] if math.isnan(st[_S_TARGET]) else st[_S_TARGET]
+    return held_hz
 
 
 @njit(cache=True, nogil=True)
@@ -233,7 +243,8 @@ def _level_ago(st: NDArray[np.float64], hist: NDArray[np.float64], frames: int) 
     pos = int(st[_S_HIST_POS])
     if pos <= frames or frames >= hist.shape[1]:
         return np.nan
-    return hist[_H_LEVEL, (pos - 1 - frames) % hist.shape[1]]
+    level_db: float = hist[_H_LEVEL, (pos - 1 - frames) % hist.shape[1]]
+    return level_db
 
 
 @njit(cache=True, nogil=True)
@@ -254,7 +265,8 @@ def _reference(cfg: NDArray[np.float64], st: NDArray[np.float64], ring: NDArray[
         return np.nan
     v = np.sort(vals[:count])
     mid = count // 2
-    return v[mid] if count % 2 else (v[mid - 1] + v[mid]) / 2.0
+    median: float = v[mid] if count % 2 else (v[mid - 1] + v[mid]) / 2.0
+    return median
 
 
 @njit(cache=True, nogil=True)
@@ -275,7 +287,8 @@ def _pending_confirmed(cfg: NDArray[np.float64], st: NDArray[np.float64], f0_hz:
     else:
         st[_S_PENDING] = f0_hz
         st[_S_PENDING_RUN] = 1.0
-    return st[_S_PENDING_RUN] >= cfg[_C_CONFIRM]
+    confirmed: bool = st[_S_PENDING_RUN] >= cfg[_C_CONFIRM]
+    return confirmed
 
 
 @njit(cache=True, nogil=True)
@@ -513,7 +526,8 @@ def _collapsed(cfg: NDArray[np.float64], st: NDArray[np.float64], drop: float, r
         return True
     if ratio > _DOMINATED_DB:
         return False
-    return kept_db - _reference(cfg, st, ring) >= cfg[_C_EVEN_RISE]
+    rose: bool = kept_db - _reference(cfg, st, ring) >= cfg[_C_EVEN_RISE]
+    return rose
 
 
 @njit(cache=True, nogil=True)
@@ -598,20 +612,20 @@ def monitor_config(hop_s: float, **options: float) -> NDArray[np.float64]:
     cfg[_C_EVEN_RISE] = o["even_rise_db"]
     cfg[_C_WEAKEN] = o["weaken_db"]
     cfg[_C_RISE] = o["rise_db"]
-    cfg[_C_SILENCE] = max(1, int(round(o["silence_s"] / hop_s)))
-    cfg[_C_CONFIRM] = max(1, int(round(o["confirm_s"] / hop_s)))
-    cfg[_C_WARMUP] = int(round(o["warmup_s"] / hop_s))
+    cfg[_C_SILENCE] = max(1, round(o["silence_s"] / hop_s))
+    cfg[_C_CONFIRM] = max(1, round(o["confirm_s"] / hop_s))
+    cfg[_C_WARMUP] = round(o["warmup_s"] / hop_s)
     cfg[_C_ALPHA] = 1.0 - math.exp(-hop_s / o["baseline_s"])
-    cfg[_C_WEAK] = max(1, int(round(o["weaken_hold_s"] / hop_s)))
+    cfg[_C_WEAK] = max(1, round(o["weaken_hold_s"] / hop_s))
     cfg[_C_NEW_NOTE] = o["new_note_db"]
     cfg[_C_GRID_SPACING] = o["grid_spacing_hz"]
-    cfg[_C_KIND_WAIT] = int(round(o["kind_wait_s"] / hop_s))
+    cfg[_C_KIND_WAIT] = round(o["kind_wait_s"] / hop_s)
     cfg[_C_RISING] = o["rising_db_per_s"] * hop_s
-    cfg[_C_FADE_SPAN] = max(1, int(round(0.05 / hop_s)))  # 50 ms, within the history ring
+    cfg[_C_FADE_SPAN] = max(1, round(0.05 / hop_s))  # 50 ms, within the history ring
     cfg[_C_FADE_DB] = 2.0  # over 50 ms: 40 dB/s
     # reference span for rises: frames 150..70 ms before now
-    cfg[_C_REF_FAR] = max(2, int(round(0.15 / hop_s)))
-    cfg[_C_REF_NEAR] = max(1, int(round(0.07 / hop_s)))
+    cfg[_C_REF_FAR] = max(2, round(0.15 / hop_s))
+    cfg[_C_REF_NEAR] = max(1, round(0.07 / hop_s))
     return cfg
 
 

@@ -16,10 +16,10 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit  # type: ignore[import-untyped]
+from numba import njit
 from numpy.typing import NDArray
 
-__all__ = ["hann_power", "hann_power_at", "band_floor", "newest_half_taps", "newest_half_power_at", "hann_reassigned_bin", "hann2_taps", "hann2_reassigned_bin", "hann_gain"]
+__all__ = ["band_floor", "hann2_reassigned_bin", "hann2_taps", "hann_gain", "hann_power", "hann_power_at", "hann_reassigned_bin", "newest_half_power_at", "newest_half_taps"]
 
 _NOISE_SCALE = 1.0 / -math.log(0.8)  # mean of exponential noise over its 20th percentile
 
@@ -38,8 +38,8 @@ def hann_power_at(rect: NDArray[np.complex64], k: int, n: int) -> float:
     lo = rect[k - 1]
     hi = rect[k + 1]
     mid = rect[k]
-    re = a * mid.real - b * (lo.real + hi.real)
-    im = a * mid.imag - b * (lo.imag + hi.imag)
+    re: float = a * mid.real - b * (lo.real + hi.real)
+    im: float = a * mid.imag - b * (lo.imag + hi.imag)
     return re * re + im * im
 
 

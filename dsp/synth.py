@@ -33,13 +33,13 @@ from numpy.typing import NDArray
 
 __all__ = [
     "NoteEvent",
-    "Truth",
-    "Score",
     "Rendering",
+    "Score",
+    "Truth",
     "plan",
+    "register_profile_db",
     "render",
     "render_blocks",
-    "register_profile_db",
 ]
 
 JumpKindName = Literal["overblown", "vented"]
@@ -250,8 +250,7 @@ def _validate(ev: NoteEvent, index: int, sample_rate: float) -> None:
         raise ValueError(f"{where}: gap_s {ev.gap_s!r} must be >= 0 seconds")
     if not np.isfinite(ev.level_dbfs):
         raise ValueError(f"{where}: level_dbfs {ev.level_dbfs!r} must be finite; use gap_s for silence")
-    for name in ("mode", "jump_mode"):
-        value = getattr(ev, name)
+    for name, value in (("mode", ev.mode), ("jump_mode", ev.jump_mode)):
         if int(value) != value or value < 1:
             raise ValueError(f"{where}: {name} {value!r} must be an integer >= 1")
     if ev.attack_s <= 0 or ev.release_s <= 0 or ev.attack_s + ev.release_s > ev.duration_s:
@@ -447,8 +446,8 @@ def plan(events: Sequence[NoteEvent], sample_rate: float) -> Score:
         if not isinstance(ev, NoteEvent):
             raise TypeError(f"event {i} is {type(ev).__name__}, expected NoteEvent")
         _validate(ev, i, sample_rate)
-        n0 = int(round(clock_s * sample_rate))
-        n1 = n0 + int(round(ev.duration_s * sample_rate))
+        n0 = int(round(clock_s * sample_rate))  # noqa: RUF046  a 0-d array passes the checks; int() keeps the count an int
+        n1 = n0 + int(round(ev.duration_s * sample_rate))  # noqa: RUF046  a 0-d array passes the checks; int() keeps the count an int
         starts.append(n0)
         ends.append(n1)
         start_s, end_s = n0 / sample_rate, n1 / sample_rate
@@ -458,7 +457,7 @@ def plan(events: Sequence[NoteEvent], sample_rate: float) -> Score:
             f_after = float(ev.jump_mode * _controls(ev, t_after).fingered_hz[0])
             jumps.append((start_s + ev.jump_at_s, str(ev.jump_kind), f_after))
         clock_s += ev.duration_s + ev.gap_s
-    n_total = int(round(clock_s * sample_rate))
+    n_total = int(round(clock_s * sample_rate))  # noqa: RUF046  a 0-d array passes the checks; int() keeps the count an int
     n_total = max(n_total, ends[-1])
     return Score(
         sample_rate=float(sample_rate),
@@ -575,7 +574,7 @@ class _NoteVoice:
     def _build_chiff(self, rng: np.random.Generator) -> NDArray[np.float64]:
         """Attack burst: decaying band noise plus two inharmonic partials, ~40 ms."""
         sr = self.sample_rate
-        n = int(round(min(0.04, self.ev.duration_s) * sr))
+        n = int(round(min(0.04, self.ev.duration_s) * sr))  # noqa: RUF046  a 0-d array passes the checks; int() keeps the count an int
         t = np.arange(n) / sr
         env = (1.0 - np.exp(-t / 0.002)) * np.exp(-t / 0.008)
         noise = scipy.signal.sosfilt(_breath_sos(sr), rng.standard_normal(n)) / _noise_gain(_breath_sos(sr))
@@ -655,7 +654,7 @@ def _hum_block(n0: int, n: int, sample_rate: float, hum_hz: float, hum_dbfs: flo
 def _reverb_ir(sample_rate: float, reverb_s: float, seed: int, wet_db: float) -> NDArray[np.float64]:
     """Direct path plus an exponentially decaying noise tail; ``reverb_s`` is the T60, s."""
     rng = np.random.default_rng([seed, 0x5EB])
-    n = max(int(round(1.2 * reverb_s * sample_rate)), 2)
+    n = max(int(round(1.2 * reverb_s * sample_rate)), 2)  # noqa: RUF046  a 0-d array passes the checks; int() keeps the count an int
     t = np.arange(n) / sample_rate
     tail = rng.standard_normal(n) * 10.0 ** (-3.0 * t / reverb_s)  # -60 dB at reverb_s
     tail[: int(0.005 * sample_rate)] = 0.0  # first reflections come after ~5 ms

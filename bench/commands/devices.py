@@ -33,7 +33,11 @@ def format_devices(devices: Sequence[InputDevice], default_index: int | None) ->
 
 
 def run_devices(args: argparse.Namespace) -> int:
-    from bench.sources.mic import _default_input_index, import_sounddevice, list_input_devices
+    from bench.sources.mic import (
+        _default_input_index,
+        import_sounddevice,
+        list_input_devices,
+    )
 
     devices = list_input_devices()
     if not devices:

@@ -142,8 +142,7 @@ def temperaments_table(settings: TuningSettings, from_a: bool = False, describe:
         temperaments.append(settings.custom_temperament)
     zero = "A = 0" if from_a else f"{settings.tonic} = 0"
     lines = [
-        f"Temperaments on {settings.tonic}: deviation from equal temperament in cents, {zero}; "
-        f"* marks the one chosen",
+        f"Temperaments on {settings.tonic}: deviation from equal temperament in cents, {zero}; * marks the one chosen",
         "",
     ]
     names = [pitch_class_name(p, settings.flats) for p in range(12)]

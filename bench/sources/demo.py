@@ -10,13 +10,22 @@ C6, a slightly flat E5, one note overblown into the octave and one vented octave
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Literal
 
 import numpy as np
 from numpy.typing import NDArray
 
 from bench.errors import DeviceError
-from bench.sources.base import DEFAULT_BLOCK_SIZE, MAX_LAG_S, Clock, PacedBlocks, SystemClock
+from bench.sources.base import (
+    DEFAULT_BLOCK_SIZE,
+    MAX_LAG_S,
+    Clock,
+    PacedBlocks,
+    SystemClock,
+)
+
+if TYPE_CHECKING:
+    from dsp.synth import NoteEvent
 
 INSTRUMENT = "Hollin Lane Flute Works 'Wren' alto in F"
 """What the demo plays (an invented instrument from the project's invented workshop)."""
@@ -40,7 +49,7 @@ class DemoNote:
     midi: int
     cents: float = 0.0
     duration_s: float = 1.1
-    jump: str | None = None
+    jump: Literal["overblown", "vented"] | None = None
     level_dbfs: float = -20.0
 
 
@@ -65,16 +74,13 @@ DEMO_SCALE: tuple[DemoNote, ...] = (
 )
 
 
-def demo_events(a4_hz: float = 440.0) -> list[Any]:
+def demo_events(a4_hz: float = 440.0) -> list[NoteEvent]:
     """The demo loop as :class:`dsp.synth.NoteEvent` objects (pitch at ``a4_hz``)."""
     from dsp.synth import NoteEvent
 
     events = []
     for i, note in enumerate(DEMO_SCALE):
         f0_hz = a4_hz * 2 ** ((note.midi - 69) / 12) * 2 ** (note.cents / 1200)
-        kwargs: dict[str, Any] = {}
-        if note.jump is not None:
-            kwargs = {"jump_at_s": note.duration_s * 0.45, "jump_kind": note.jump}
         events.append(
             NoteEvent(
                 f0_hz,
@@ -82,7 +88,8 @@ def demo_events(a4_hz: float = 440.0) -> list[Any]:
                 level_dbfs=note.level_dbfs,
                 vibrato_cents=4.0 if i % 3 == 2 else 0.0,
                 gap_s=0.18,
-                **kwargs,
+                jump_at_s=None if note.jump is None else note.duration_s * 0.45,
+                jump_kind=note.jump,
             )
         )
     return events

@@ -199,7 +199,7 @@ def _close_in_background(stream: Any, timeout_s: float) -> threading.Thread | No
         for step in (stream.abort, stream.close):
             try:
                 step()
-            except Exception:  # noqa: BLE001 - a lost device may fail either step
+            except Exception:  # noqa: BLE001, S110 - a lost device may fail either step
                 pass
 
     thread = threading.Thread(target=close, name="bench-mic-close", daemon=True)
@@ -398,8 +398,8 @@ class MicSource:
         if self._opened_once:
             # A device pulled and plugged back needs a fresh PortAudio device list.
             try:
-                sd._terminate()  # noqa: SLF001 - sounddevice has no public re-scan
-                sd._initialize()  # noqa: SLF001
+                sd._terminate()
+                sd._initialize()
             except sd.PortAudioError as exc:
                 raise DeviceError(f"PortAudio cannot restart: {exc}") from None
         dev = resolve_input_device(self.device_spec)

@@ -18,7 +18,14 @@ import numpy as np
 from numpy.typing import NDArray
 
 from bench.errors import AudioFileError
-from bench.sources.base import DEFAULT_BLOCK_SIZE, MAX_LAG_S, Clock, PacedBlocks, SystemClock, to_mono
+from bench.sources.base import (
+    DEFAULT_BLOCK_SIZE,
+    MAX_LAG_S,
+    Clock,
+    PacedBlocks,
+    SystemClock,
+    to_mono,
+)
 from dsp.rates import MAX_SAMPLE_RATE, MIN_SAMPLE_RATE, RESAMPLE_RATE
 
 if TYPE_CHECKING:

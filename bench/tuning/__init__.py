@@ -16,8 +16,18 @@ from bench.tuning.mapping import (
     target_hz_at_air,
     target_offsets_cents,
 )
-from bench.tuning.notes import note_name, parse_note, parse_pitch_class, pitch_class_name
-from bench.tuning.standards import PITCH_STANDARDS, PitchStandard, parse_a4, standard_name
+from bench.tuning.notes import (
+    note_name,
+    parse_note,
+    parse_pitch_class,
+    pitch_class_name,
+)
+from bench.tuning.standards import (
+    PITCH_STANDARDS,
+    PitchStandard,
+    parse_a4,
+    standard_name,
+)
 from bench.tuning.temperaments import (
     TEMPERAMENT_ALIASES,
     TEMPERAMENT_IDS,

@@ -219,8 +219,10 @@ _BUILT_IN: dict[str, tuple[str, str, FifthsDefinition | RatioDefinition, tuple[s
     ),
     "meantone4": (
         "Quarter-comma meantone",
-        "Fifths Eb to G# each narrowed by 1/4 syntonic comma, giving pure major thirds; "
-        "G#-Eb is the wolf.",
+        (
+            "Fifths Eb to G# each narrowed by 1/4 syntonic comma, giving pure major thirds; "
+            "G#-Eb is the wolf."
+        ),
         FifthsDefinition(_EB, _narrow(_CHAIN_EB_TO_GS, "SC", Fraction(1, 4))),
         ("quarter-comma", "1/4-comma", "meantone"),
     ),
@@ -244,8 +246,10 @@ _BUILT_IN: dict[str, tuple[str, str, FifthsDefinition | RatioDefinition, tuple[s
     ),
     "kirnberger3": (
         "Kirnberger III",
-        "C-G, G-D, D-A and A-E narrowed by 1/4 syntonic comma, F#-C# by the schisma; "
-        "all other fifths pure.",
+        (
+            "C-G, G-D, D-A and A-E narrowed by 1/4 syntonic comma, F#-C# by the schisma; "
+            "all other fifths pure."
+        ),
         FifthsDefinition(
             0,
             _narrow("C G D A", "SC", Fraction(1, 4)) + _narrow("F#", "schisma", Fraction(1)),
@@ -260,8 +264,10 @@ _BUILT_IN: dict[str, tuple[str, str, FifthsDefinition | RatioDefinition, tuple[s
     ),
     "young": (
         "Young II",
-        "The six fifths C-G to B-F# narrowed by 1/6 Pythagorean comma (Thomas Young, 1799); "
-        "all other fifths pure.",
+        (
+            "The six fifths C-G to B-F# narrowed by 1/6 Pythagorean comma (Thomas Young, 1799); "
+            "all other fifths pure."
+        ),
         FifthsDefinition(0, _narrow("C G D A E B", "PC", Fraction(1, 6))),
         ("young-ii",),
     ),
@@ -273,12 +279,14 @@ _BUILT_IN: dict[str, tuple[str, str, FifthsDefinition | RatioDefinition, tuple[s
     ),
     "just": (
         "5-limit just intonation",
-        "Ratios 1, 16/15, 9/8, 6/5, 5/4, 4/3, 45/32, 3/2, 8/5, 5/3, 9/5, 15/8 on the tonic; "
-        "pure near the tonic, rough in remote keys.",
+        (
+            "Ratios 1, 16/15, 9/8, 6/5, 5/4, 4/3, 45/32, 3/2, 8/5, 5/3, 9/5, 15/8 on the tonic; "
+            "pure near the tonic, rough in remote keys."
+        ),
         RatioDefinition(
             tuple(
                 Fraction(r)
-                for r in "1 16/15 9/8 6/5 5/4 4/3 45/32 3/2 8/5 5/3 9/5 15/8".split()
+                for r in ["1", "16/15", "9/8", "6/5", "5/4", "4/3", "45/32", "3/2", "8/5", "5/3", "9/5", "15/8"]
             )
         ),
         ("ji", "5-limit", "just-intonation"),

@@ -24,12 +24,12 @@ import time
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, ClassVar, TypeVar
+from typing import Any, ClassVar
 
 from textual.app import App, ComposeResult
 from textual.binding import Binding
-from textual.css.query import NoMatches
 from textual.containers import Horizontal, Vertical
+from textual.css.query import NoMatches
 from textual.message import Message
 from textual.reactive import reactive
 from textual.widgets import Footer, Label
@@ -42,7 +42,13 @@ from bench.reading import Reading
 from bench.tuning import TuningSettings
 from bench.tuning.mapping import air_correction_cents
 from bench.tuning.notes import note_name, pitch_class_name
-from bench.tuning.standards import A4_MAX_HZ, A4_MIN_HZ, PITCH_STANDARDS, check_a4, standard_name
+from bench.tuning.standards import (
+    A4_MAX_HZ,
+    A4_MIN_HZ,
+    PITCH_STANDARDS,
+    check_a4,
+    standard_name,
+)
 from bench.tuning.temperaments import TEMPERAMENT_IDS, get_temperament
 from bench.ui.blowing_plot import BlowingPlot, shown_slope
 from bench.ui.capture_line import CaptureLine
@@ -57,8 +63,8 @@ from bench.ui.register import RegisterBanner
 from bench.ui.trail import PitchTrail
 from bench.ui.tuning_map import TuningMap
 from bench.ui.workflow_screens import BlowingScreen, ChartScreen, WorkflowView
-from bench.workflow.chart import TuningChart
 from bench.workflow.captures import Capture
+from bench.workflow.chart import TuningChart
 from bench.workflow.live import LiveWorkflow
 from bench.workflow.profiles import InstrumentProfile, get_profile
 

@@ -4,12 +4,15 @@ in cents per dB in block digits, and the level at which the note broke into the 
 from __future__ import annotations
 
 import math
+from typing import ClassVar
 
+from rich.style import Style
 from rich.text import Text
 from textual.reactive import reactive
 
 from bench.ui.glyphs import GLYPH_ROWS, glyph_width, render_big, text_from_cells
 from bench.ui.lineview import LineView
+from bench.workflow.blowing import BlowingCurve
 
 _BRAILLE_BASE = 0x2800
 # Dot bits of a braille cell by (column 0..1, row 0..3), Unicode braille patterns block.
@@ -24,7 +27,7 @@ SLOPE_SPAN_DB = 3.0
 is all noise (common practice: a crescendo of a few dB at least)."""
 
 
-def shown_slope(curve) -> float | None:
+def shown_slope(curve: BlowingCurve | None) -> float | None:
     """The curve's slope in cents/dB when its level span is wide enough to show it, else None."""
     if curve is None or curve.slope_cents_per_db is None or curve.level_range_db < SLOPE_SPAN_DB:
         return None
@@ -60,7 +63,7 @@ class BlowingPlot(LineView):
     not broken).
     """
 
-    COMPONENT_CLASSES = {
+    COMPONENT_CLASSES: ClassVar[set[str]] = {
         "blowing-plot--dots",
         "blowing-plot--fit",
         "blowing-plot--break",
@@ -69,9 +72,9 @@ class BlowingPlot(LineView):
         "blowing-plot--words",
     }
 
-    curve: reactive[object | None] = reactive(None)
+    curve: reactive[BlowingCurve | None] = reactive(None)
     """Blowing curve of the note sounding now (or the last one played), or None."""
-    last_break: reactive[object | None] = reactive(None)
+    last_break: reactive[BlowingCurve | None] = reactive(None)
     """Newest curve that ended in a register break, or None."""
 
     def render(self) -> Text:
@@ -88,7 +91,7 @@ class BlowingPlot(LineView):
         lines.append(self._break_line(curve, st))
         return Text("\n").join(lines)
 
-    def _heading(self, curve, width: int, st: dict) -> list[Text]:
+    def _heading(self, curve: BlowingCurve | None, width: int, st: dict[str, Style]) -> list[Text]:
         """The slope in block digits (or one line where there is no room), and its words."""
         slope = shown_slope(curve)
         figure = slope_text(slope)
@@ -123,13 +126,13 @@ class BlowingPlot(LineView):
             return [*out, words]
         return [words]
 
-    def _plot(self, curve, width: int, rows: int, st: dict) -> list[Text]:
+    def _plot(self, curve: BlowingCurve | None, width: int, rows: int, st: dict[str, Style]) -> list[Text]:
         cols = max(width - _LABEL_W - 1, 4)
         dots_x, dots_y = 2 * cols, 4 * rows
         levels = () if curve is None else curve.levels_dbfs
         cents = () if curve is None else curve.cents
         finite = [(lv, c) for lv, c in zip(levels, cents) if math.isfinite(lv) and math.isfinite(c)]
-        if finite:
+        if curve is not None and finite:
             x_lo, x_hi = _span(min(p[0] for p in finite), max(p[0] for p in finite), MIN_LEVEL_SPAN_DB)
             if curve.break_level_dbfs is not None:
                 x_hi = max(x_hi, curve.break_level_dbfs + 0.5)
@@ -148,7 +151,7 @@ class BlowingPlot(LineView):
             x, y = dot_x(lv), dot_y(c)
             data[y // 4][x // 2] |= _DOT_BITS[x % 2][y % 4]
         fit = [[0] * cols for _ in range(rows)]
-        if shown_slope(curve) is not None and finite:
+        if curve is not None and shown_slope(curve) is not None and finite:
             lo_lv, hi_lv = curve.level_min_dbfs, curve.level_max_dbfs
             for x in range(dot_x(lo_lv), dot_x(hi_lv) + 1, 2):  # dashed: every other dot
                 level = x_lo + (x + 0.5) / dots_x * (x_hi - x_lo)
@@ -189,7 +192,7 @@ class BlowingPlot(LineView):
         out.insert(0, Text("cents", style=st["axis"], no_wrap=True))
         return out
 
-    def _break_line(self, curve, st: dict) -> Text:
+    def _break_line(self, curve: BlowingCurve | None, st: dict[str, Style]) -> Text:
         line = Text(no_wrap=True, overflow="ellipsis")
         if curve is not None and curve.break_level_dbfs is not None:
             line.append(
@@ -209,4 +212,4 @@ class BlowingPlot(LineView):
         return line
 
 
-__all__ = ["BlowingPlot", "MIN_CENTS_SPAN", "MIN_LEVEL_SPAN_DB", "SLOPE_SPAN_DB", "shown_slope", "slope_text"]
+__all__ = ["MIN_CENTS_SPAN", "MIN_LEVEL_SPAN_DB", "SLOPE_SPAN_DB", "BlowingPlot", "shown_slope", "slope_text"]

@@ -3,6 +3,8 @@ session label, the instrument and how many of its notes are still unchecked."""
 
 from __future__ import annotations
 
+from typing import ClassVar
+
 from rich.text import Text
 from textual.reactive import reactive
 
@@ -13,7 +15,7 @@ class CaptureLine(LineView):
     """The capture state of the session (the app sets every field)."""
 
     DEFAULT_CSS = "CaptureLine { height: 1; }"
-    COMPONENT_CLASSES = {
+    COMPONENT_CLASSES: ClassVar[set[str]] = {
         "capture-line--label",
         "capture-line--value",
         "capture-line--on",
@@ -48,7 +50,7 @@ class CaptureLine(LineView):
             text.append(" AUTO ", self.get_component_rich_style("capture-line--on"))
         else:
             text.append(" BY KEY ", self.get_component_rich_style("capture-line--off"))
-        text.append(f"  taken ", label)
+        text.append("  taken ", label)
         text.append(str(self.taken), value)
         if self.last:
             text.append("  last ", label)

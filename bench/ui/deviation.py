@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+from typing import ClassVar
+
+from rich.style import Style
 from rich.text import Text
 from textual.reactive import reactive
 
@@ -22,7 +25,7 @@ class DeviationScale(LineView):
     """
 
     DEFAULT_CSS = "DeviationScale { height: 3; }"
-    COMPONENT_CLASSES = {
+    COMPONENT_CLASSES: ClassVar[set[str]] = {
         "deviation-scale--flat",
         "deviation-scale--sharp",
         "deviation-scale--centred",
@@ -67,7 +70,7 @@ class DeviationScale(LineView):
         for tick_cents in range(-50, 51, 10):
             cells[centre + round(tick_cents / SCALE_HALF_CENTS * half)] = "\u253c"
         cells[centre] = "\u256b"
-        styles: list = [style["ticks"]] * width
+        styles: list[Style] = [style["ticks"]] * width
         if self.cents is not None:
             pos = max(-half, min(half, round(self.cents / SCALE_HALF_CENTS * half)))
             lo, hi = sorted((centre, centre + pos))

@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+from typing import ClassVar
+
 from textual.app import ComposeResult
-from textual.binding import Binding
+from textual.binding import Binding, BindingType
 from textual.containers import Vertical
 from textual.screen import ModalScreen
 from textual.widgets import Input, Label
@@ -25,7 +27,7 @@ class ValueDialog(ModalScreen[str | None]):
         One line under the field, e.g. the accepted range.
     """
 
-    BINDINGS = [Binding("escape", "cancel", "Leave unchanged")]
+    BINDINGS: ClassVar[list[BindingType]] = [Binding("escape", "cancel", "Leave unchanged")]
 
     def __init__(self, prompt: str, value: str = "", hint: str = "") -> None:
         super().__init__()

@@ -6,6 +6,11 @@ string into five lines of full-block characters, each ink cell ``scale`` charact
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
+from rich.style import Style
+from rich.text import Text
+
 GLYPH_ROWS = 5
 
 _GLYPHS: dict[str, tuple[str, ...]] = {
@@ -89,13 +94,11 @@ def _glyph(ch: str) -> tuple[str, ...]:
     return _GLYPHS.get(ch) or _GLYPHS.get(ch.upper()) or _GLYPHS[" "]
 
 
-def text_from_cells(chars: list[str], styles: list) -> "Text":
+def text_from_cells(chars: list[str], styles: Sequence[str | Style]) -> Text:
     """One line of Rich text from per-cell characters and styles, one span per run of a style.
 
     Fewer spans make the screen cheaper to draw than one span per cell.
     """
-    from rich.text import Text
-
     line = Text(no_wrap=True, overflow="crop")
     start = 0
     for i in range(1, len(chars) + 1):

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import ClassVar
+
 from rich.text import Text
 from textual.reactive import reactive
 
@@ -22,7 +24,7 @@ class HarmonicBars(LineView):
     hold the harmonic numbers and ``odd/even`` in dB.
     """
 
-    COMPONENT_CLASSES = {"harmonic-bars--odd", "harmonic-bars--even", "harmonic-bars--axis"}
+    COMPONENT_CLASSES: ClassVar[set[str]] = {"harmonic-bars--odd", "harmonic-bars--even", "harmonic-bars--axis"}
 
     harmonics_db: reactive[tuple[float, ...] | None] = reactive(None)
     """H1..H8, dB relative to the strongest (0 dB); None when unvoiced."""

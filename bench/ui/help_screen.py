@@ -2,10 +2,11 @@
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
+from typing import ClassVar
 
 from textual.app import ComposeResult
-from textual.binding import Binding
+from textual.binding import Binding, BindingType
 from textual.containers import Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Label, Static
@@ -20,7 +21,7 @@ class KeyGuide(ModalScreen[None]):
         (keys as shown to the user, description), in the order to list them.
     """
 
-    BINDINGS = [
+    BINDINGS: ClassVar[list[BindingType]] = [
         Binding("escape,q,question_mark,f1", "close", "Close the key guide"),
     ]
 
@@ -41,7 +42,7 @@ class KeyGuide(ModalScreen[None]):
         self.dismiss(None)
 
 
-def binding_rows(bindings: Iterable[Binding], key_display) -> list[tuple[str, str]]:
+def binding_rows(bindings: Iterable[Binding], key_display: Callable[[Binding], str]) -> list[tuple[str, str]]:
     """(keys, description) rows of bindings, keys joined by " / ".
 
     The description is the binding's tooltip (the full sentence), else its description.

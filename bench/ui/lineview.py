@@ -15,10 +15,18 @@ Two savings per screen update (measured with ``benchmarks/bench_ui.py``):
 
 from __future__ import annotations
 
+from collections.abc import Collection
+from typing import Self
+
 from rich.segment import Segment
+from rich.style import Style
 from rich.text import Text
+from textual.geometry import Region, Size
 from textual.strip import Strip
 from textual.widget import Widget
+
+_Drawn = tuple[Text, str | Style, Style, Size]
+"""What a view shows: its text, the text's own style, the widget's style, the content size."""
 
 
 class LineView(Widget):
@@ -30,17 +38,25 @@ class LineView(Widget):
     """Check a plain repaint against what is shown and skip it when nothing would change
     (class switch, so a benchmark can compare both ways)."""
 
-    def __init__(self, *args, **kwargs) -> None:
-        super().__init__(*args, **kwargs)
+    def __init__(
+        self,
+        *children: Widget,
+        name: str | None = None,
+        id: str | None = None,
+        classes: str | None = None,
+        disabled: bool = False,
+        markup: bool = True,
+    ) -> None:
+        super().__init__(*children, name=name, id=id, classes=classes, disabled=disabled, markup=markup)
         self._strips: list[Strip] | None = None
         self._strips_width = -1
-        self._base_style = None  # the widget's own Rich style, found once per style change
-        self._component_styles: dict = {}
-        self._shown: tuple | None = None  # (text, its own style, base style, size) last drawn
-        self._fresh: tuple | None = None  # the same, rendered by the check, not yet drawn
+        self._base_style: Style | None = None  # the widget's own Rich style, found once per style change
+        self._component_rich_styles: dict[tuple[tuple[str, ...], bool], Style] = {}
+        self._shown: _Drawn | None = None  # last drawn
+        self._fresh: _Drawn | None = None  # the same, rendered by the check, not yet drawn
         self._check_pending = False
 
-    def refresh(self, *regions, repaint: bool = True, layout: bool = False, recompose: bool = False):  # type: ignore[override]
+    def refresh(self, *regions: Region, repaint: bool = True, layout: bool = False, recompose: bool = False) -> Self:
         if (
             self.skip_unchanged
             and repaint
@@ -70,20 +86,20 @@ class LineView(Widget):
     def notify_style_update(self) -> None:
         self._strips = None
         self._base_style = None
-        self._component_styles.clear()
+        self._component_rich_styles.clear()
         self._shown = self._fresh = None
         super().notify_style_update()
 
-    def get_component_rich_style(self, *names: str, partial: bool = False, default=None):  # type: ignore[override]
+    def get_component_rich_style(self, *names: str, partial: bool = False, default: Style | None = None) -> Style:
         key = (names, partial)
-        style = self._component_styles.get(key)
+        style = self._component_rich_styles.get(key)
         if style is None:
             style = super().get_component_rich_style(*names, partial=partial, default=default)
             if default is None or style is not default:
-                self._component_styles[key] = style
+                self._component_rich_styles[key] = style
         return style
 
-    def show_one_class(self, chosen: str, choices) -> None:
+    def show_one_class(self, chosen: str, choices: Collection[str]) -> None:
         """Put class ``chosen`` on the widget in place of the others of ``choices``, in one
         restyle (one ``set_class`` per name restyled the widget up to twice a change)."""
         want = {c for c in self.classes if c not in choices}
@@ -91,7 +107,7 @@ class LineView(Widget):
         if want != set(self.classes):
             self.set_classes(want)
 
-    def _base(self):
+    def _base(self) -> Style:
         """The widget's Rich style (colour and background from CSS), cached."""
         if self._base_style is None:
             self._base_style = self.rich_style
@@ -112,7 +128,7 @@ class LineView(Widget):
             text = self._render_text()
         self._fresh = None
         self._shown = (text.copy(), text.style, base, self.content_size)
-        strips = []
+        strips: list[Strip] = []
         for line in text.split("\n", allow_blank=True):
             line.no_wrap = True
             line.end = ""

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
+from typing import ClassVar
 
 from rich.style import Style
 from rich.text import Text
@@ -23,7 +24,7 @@ class SessionBar(LineView):
     the analysis thread's load, the held view."""
 
     DEFAULT_CSS = "SessionBar { height: 1; }"
-    COMPONENT_CLASSES = {
+    COMPONENT_CLASSES: ClassVar[set[str]] = {
         "session-bar--label",
         "session-bar--value",
         "session-bar--alarm",
@@ -99,7 +100,7 @@ class SettingsPanel(LineView):
     """The tuning in force: temperament and tonic, A4 and its standard, air and reference
     temperature with the correction they make, and the target lock."""
 
-    COMPONENT_CLASSES = {"settings-panel--label", "settings-panel--value"}
+    COMPONENT_CLASSES: ClassVar[set[str]] = {"settings-panel--label", "settings-panel--value"}
 
     settings: reactive[TuningSettings | None] = reactive(None)
     """Settings the engine applies now."""
@@ -141,7 +142,7 @@ class DetailLine(LineView):
     """One line under the scale: the other cents figure, heard and target frequency, lock."""
 
     DEFAULT_CSS = "DetailLine { height: 1; }"
-    COMPONENT_CLASSES = {"detail-line--label", "detail-line--value", "detail-line--lock"}
+    COMPONENT_CLASSES: ClassVar[set[str]] = {"detail-line--label", "detail-line--value", "detail-line--lock"}
 
     main_is_raw: reactive[bool] = reactive(False)
     """True when the big figure shows raw cents (then this line shows corrected ones)."""

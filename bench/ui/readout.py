@@ -89,4 +89,4 @@ class CentsFace(LineView):
         return _big(text, *self.content_size)
 
 
-__all__ = ["CentsFace", "NoteFace", "ON_TARGET_CENTS", "GLYPH_ROWS", "offset_side"]
+__all__ = ["GLYPH_ROWS", "ON_TARGET_CENTS", "CentsFace", "NoteFace", "offset_side"]

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import ClassVar
+
 from rich.text import Text
 from textual.reactive import reactive
 
@@ -23,7 +25,7 @@ class PitchTrail(LineView):
     The zero line is dotted faintly; the left axis is labelled in cents.
     """
 
-    COMPONENT_CLASSES = {"pitch-trail--trace", "pitch-trail--axis", "pitch-trail--zero"}
+    COMPONENT_CLASSES: ClassVar[set[str]] = {"pitch-trail--trace", "pitch-trail--axis", "pitch-trail--zero"}
 
     points: reactive[tuple[tuple[float, float | None], ...]] = reactive(())
     """(stream time, seconds; offset, cents or None when unvoiced), oldest first."""

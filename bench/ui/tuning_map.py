@@ -9,15 +9,22 @@ the side of each note is told by colour *and* by shape (a column up with a ▲ t
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
+from typing import ClassVar
 
+from rich.style import Style
 from rich.text import Text
+from textual.geometry import Size
 from textual.reactive import reactive
 
 from bench.ui.glyphs import text_from_cells
 from bench.ui.lineview import LineView
 from bench.ui.readout import ON_TARGET_CENTS, offset_side
+from bench.workflow.chart import ChartEntry, TuningChart
+
+_Put = Callable[[int, str, Style], None]
+"""Appends (row, text, style) to the rows being drawn."""
 
 ZONE_EDGES_CENTS = (ON_TARGET_CENTS, 12.0, 25.0)
 """Edges of the map's rows either side of the target, cents: within ±5 c a note sits on the
@@ -55,12 +62,12 @@ def zone_of(cents: float) -> int:
 @dataclass(frozen=True, slots=True)
 class _Group:
     register: int
-    entries: tuple
+    entries: tuple[ChartEntry, ...]
 
 
-def _groups(entries: Sequence) -> list[_Group]:
+def _groups(entries: Sequence[ChartEntry]) -> list[_Group]:
     """Entries by register, each register rising by note."""
-    by_reg: dict[int, list] = {}
+    by_reg: dict[int, list[ChartEntry]] = {}
     for e in entries:
         by_reg.setdefault(e.register, []).append(e)
     return [_Group(reg, tuple(sorted(es, key=lambda e: e.midi))) for reg, es in sorted(by_reg.items())]
@@ -87,7 +94,7 @@ def _bands(groups: list[_Group], width: int, cell_w: int) -> list[list[_Group]]:
     return bands
 
 
-def _layout(entries: Sequence, width: int, screen_rows: int):
+def _layout(entries: Sequence[ChartEntry], width: int, screen_rows: int) -> tuple[list[_Group], int, list[list[_Group]], int]:
     """(registers, cells a note, lines of registers, gauge rows each side of the line)."""
     groups = _groups(entries)
     cell_w = _cell_width(groups, width)
@@ -96,7 +103,7 @@ def _layout(entries: Sequence, width: int, screen_rows: int):
     return groups, cell_w, bands, half
 
 
-def map_height(entries: Sequence, width: int, screen_rows: int = ROOMY_ROWS) -> int:
+def map_height(entries: Sequence[ChartEntry], width: int, screen_rows: int = ROOMY_ROWS) -> int:
     """Lines the map needs at ``width`` cells on a terminal ``screen_rows`` high: a legend,
     then per line of registers a title, the gauge rows, the note names and the cents."""
     groups, _, bands, half = _layout(entries, width, screen_rows)
@@ -114,7 +121,7 @@ class TuningMap(LineView):
     """
 
     DEFAULT_CSS = "TuningMap { height: auto; }"
-    COMPONENT_CLASSES = {
+    COMPONENT_CLASSES: ClassVar[set[str]] = {
         "tuning-map--sharp",
         "tuning-map--flat",
         "tuning-map--centred",
@@ -125,14 +132,14 @@ class TuningMap(LineView):
         "tuning-map--title",
     }
 
-    chart: reactive[object | None] = reactive(None, layout=True)
+    chart: reactive[TuningChart | None] = reactive(None, layout=True)
     """The tuning chart shown (``TuningChart``), or None before the workflow starts."""
 
-    def get_content_height(self, container, viewport, width: int) -> int:
+    def get_content_height(self, container: Size, viewport: Size, width: int) -> int:
         entries = self.chart.entries if self.chart is not None else ()
         return map_height(entries, width, viewport.height)
 
-    def _styles(self) -> dict[str, object]:
+    def _styles(self) -> dict[str, Style]:
         return {
             name: self.get_component_rich_style(f"tuning-map--{name}")
             for name in ("sharp", "flat", "centred", "unchecked", "axis", "line", "note", "title")
@@ -146,21 +153,22 @@ class TuningMap(LineView):
         for words, kind in _LEGEND:
             legend.append(words, st[kind])
             legend.append("   ")
-        if self.chart is None:
+        chart = self.chart
+        if chart is None:
             return Text("\n").join([legend, Text("no chart yet", style=st["axis"])])
-        _, cell_w, bands, half = _layout(self.chart.entries, width, self.app.size.height)
-        transposed = self.chart.profile.written_offset_semitones != 0
+        _, cell_w, bands, half = _layout(chart.entries, width, self.app.size.height)
+        transposed = chart.profile.written_offset_semitones != 0
         lines = [legend]
         for band in bands:
             lines.extend(self._band(band, cell_w, half, transposed, st))
         return Text("\n").join(lines)
 
-    def _band(self, band: list[_Group], cell_w: int, half: int, transposed: bool, st: dict) -> list[Text]:
+    def _band(self, band: list[_Group], cell_w: int, half: int, transposed: bool, st: dict[str, Style]) -> list[Text]:
         """The lines of one line of registers: title, 2 * half + 1 gauge rows, names, cents."""
         n_rows = 2 * half + 4
-        rows: list[tuple[list[str], list[object]]] = [([], []) for _ in range(n_rows)]
+        rows: list[tuple[list[str], list[Style]]] = [([], []) for _ in range(n_rows)]
 
-        def put(row: int, text: str, style: object) -> None:
+        def put(row: int, text: str, style: Style) -> None:
             rows[row][0].append(text)
             rows[row][1].append(style)
 
@@ -182,7 +190,7 @@ class TuningMap(LineView):
         return [text_from_cells(chars, styles) for chars, styles in rows]
 
     @staticmethod
-    def _column(e, cell_w: int, half: int, transposed: bool, st: dict, put) -> None:
+    def _column(e: ChartEntry, cell_w: int, half: int, transposed: bool, st: dict[str, Style], put: _Put) -> None:
         """One note: gauge rows 1..2*half+1 (half+1 is the target line), then name and cents."""
         ink_w = cell_w - 1
         pad = " "
@@ -220,4 +228,4 @@ class TuningMap(LineView):
         put(2 * half + 3, f"{figure[:cell_w]:<{cell_w}}", figure_style)
 
 
-__all__ = ["ROOMY_ROWS", "TuningMap", "ZONE_EDGES_CENTS", "map_height", "zone_of"]
+__all__ = ["ROOMY_ROWS", "ZONE_EDGES_CENTS", "TuningMap", "map_height", "zone_of"]

@@ -8,15 +8,16 @@ on them: capture, automatic capture, label, hold, lock...
 
 from __future__ import annotations
 
+from typing import ClassVar
+
 from textual.app import ComposeResult
-from textual.binding import Binding
+from textual.binding import Binding, BindingType
 from textual.screen import Screen
 from textual.widgets import Footer, Label
 
 from bench.ui.blowing_plot import BlowingPlot
 from bench.ui.capture_line import CaptureLine
 from bench.ui.tuning_map import TuningMap
-
 
 CHART_PLOT_MIN_ROWS = 34
 """Terminal rows from which the chart view also draws the blowing plot under the map."""
@@ -26,12 +27,16 @@ class WorkflowView(Screen[None]):
     """Base of the workflow views: a capture line on top, a footer below; Esc goes back to
     the live view. On each showing, the app fills the view with the state of the moment."""
 
-    BINDINGS = [Binding("escape", "app.live_view", "live view", tooltip="Back to the live view")]
+    BINDINGS: ClassVar[list[BindingType]] = [Binding("escape", "app.live_view", "live view", tooltip="Back to the live view")]
 
     def on_screen_resume(self) -> None:
-        fill = getattr(self.app, "fill_workflow_view", None)
-        if fill is not None:
-            fill(self)
+        # imported here, not on top: bench.ui.app imports this module
+        from bench.ui.app import BenchApp
+
+        app = self.app
+        if not isinstance(app, BenchApp):
+            raise TypeError(f"a workflow view is filled by a BenchApp, not by {type(app).__name__}")
+        app.fill_workflow_view(self)
 
 
 class ChartScreen(WorkflowView):

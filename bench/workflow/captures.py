@@ -56,13 +56,13 @@ from collections import deque
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Literal
+from typing import Literal, Self
 
 from bench.errors import LogError
 from bench.framelog import number_cell, safe_cell
-from bench.workflow.blowing import LevelHistory, fit_line
 from bench.reading import Reading, SettingsKey
 from bench.segment import ATTACK_S, GAP_S, NoteSegmenter
+from bench.workflow.blowing import LevelHistory, fit_line
 from bench.workflow.profiles import InstrumentProfile
 
 __all__ = [
@@ -693,7 +693,7 @@ class CaptureFile:
             f, self._file = self._file, None
             f.close()
 
-    def __enter__(self) -> CaptureFile:
+    def __enter__(self) -> Self:
         return self
 
     def __exit__(self, *exc: object) -> None:
@@ -721,7 +721,7 @@ def _quote(text: str) -> str:
 
 
 def _unquote(text: str) -> str:
-    return text[1:] if text.startswith("'") else text
+    return text.removeprefix("'")
 
 
 def _opt(text: str) -> float | None:

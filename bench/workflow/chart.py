@@ -23,16 +23,18 @@ import math
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Literal
+from typing import TYPE_CHECKING, Literal
 
 from bench.errors import BenchError, LogError
 from bench.framelog import number_cell, safe_cell
-from bench.workflow.captures import Capture
-from bench.tuning.notes import note_name
 from bench.reading import SettingsKey
+from bench.tuning.notes import note_name
+from bench.workflow.captures import Capture
 from bench.workflow.profiles import InstrumentProfile
 
 if TYPE_CHECKING:
+    from matplotlib.axes import Axes
+
     from bench.workflow.blowing import BlowingCurve
 
 __all__ = [
@@ -265,7 +267,7 @@ def format_text_chart(chart: TuningChart, *, half_width_cents: int = 25) -> str:
     n_checked = sum(1 for e in chart.entries if e.expected and e.capture is not None)
     n_expected = sum(1 for e in chart.entries if e.expected)
     n_extra = sum(1 for e in chart.entries if e.status == "extra")
-    far = [e for e in chart.checked() if abs(e.capture.cents) > GUIDE_CENTS]  # type: ignore[union-attr]
+    far = [e for e in chart.entries if e.capture is not None and abs(e.capture.cents) > GUIDE_CENTS]
     lines.append(
         f"{n_checked} of {n_expected} notes checked"
         + (f" (and {n_extra} outside the profile's plan)" if n_extra else "")
@@ -327,14 +329,12 @@ _REGISTER_STYLE = {1: ("o", "#1f5f8b"), 2: ("s", "#b5651d"), 3: ("^", "#2e7d32")
 _OTHER_STYLE = ("D", "#6a1b9a")
 
 
-def agg_pyplot() -> Any:
-    """matplotlib.pyplot on the Agg backend (imported here only, never at package import)."""
+def use_agg_backend() -> None:
+    """Draw with matplotlib's Agg backend (matplotlib is imported here and by the plotting
+    functions only, never at package import)."""
     import matplotlib
 
     matplotlib.use("Agg", force=True)
-    import matplotlib.pyplot as plt
-
-    return plt
 
 
 def check_picture_path(path: str | Path) -> Path:
@@ -345,7 +345,7 @@ def check_picture_path(path: str | Path) -> Path:
     return p
 
 
-def draw_chart_axes(ax, chart: TuningChart) -> None:  # type: ignore[no-untyped-def]
+def draw_chart_axes(ax: Axes, chart: TuningChart) -> None:
     """Draw the chart on a matplotlib Axes (for the picture and for embedding)."""
     from matplotlib.transforms import blended_transform_factory
 
@@ -361,20 +361,20 @@ def draw_chart_axes(ax, chart: TuningChart) -> None:  # type: ignore[no-untyped-
         marker, colour = _REGISTER_STYLE.get(reg, _OTHER_STYLE)
         dx = (k - (n - 1) / 2) * 0.12  # keep registers sharing a note apart
         for planned in (True, False):
-            es = [e for e in chart.entries
-                  if e.register == reg and e.capture is not None and e.expected == planned]
+            es = [(e, c) for e in chart.entries
+                  if e.register == reg and (c := e.capture) is not None and e.expected == planned]
             if not es:
                 continue
-            xs = [xpos[e.midi] + dx for e in es]
-            ys = [e.capture.cents for e in es]  # type: ignore[union-attr]
-            err = [e.capture.cents_spread for e in es]  # type: ignore[union-attr]
+            xs = [xpos[e.midi] + dx for e, _ in es]
+            ys = [c.cents for _, c in es]
+            err = [c.cents_spread for _, c in es]
             label = f"register {reg}" if planned else f"register {reg}, outside the profile's plan"
             ax.errorbar(xs, ys, yerr=err, fmt=marker, color=colour, ecolor=colour, elinewidth=1.2,
                         capsize=3, markersize=6, linestyle="none", label=label, zorder=3,
                         markerfacecolor=colour if planned else "white")
             ymax = max(ymax, *(abs(y) + e for y, e in zip(ys, err, strict=True)))
-            for x, y, e, entry in zip(xs, ys, err, es, strict=True):
-                margin = entry.capture.register_margin_db  # type: ignore[union-attr]
+            for x, y, e, (_, cap) in zip(xs, ys, err, es, strict=True):
+                margin = cap.register_margin_db
                 if margin is not None:
                     any_margin = True
                     ax.annotate(f"{round(margin, 1) + 0.0:+.1f} dB", (x, y + e), xytext=(0, 4),
@@ -409,7 +409,7 @@ def draw_chart_axes(ax, chart: TuningChart) -> None:  # type: ignore[no-untyped-
     ax.legend(loc="upper left", fontsize=8, ncol=4, frameon=False)
 
 
-def draw_blowing_axes(ax, curves: Sequence[BlowingCurve]) -> None:  # type: ignore[no-untyped-def]
+def draw_blowing_axes(ax: Axes, curves: Sequence[BlowingCurve]) -> None:
     """Draw blowing curves (cents against level, fit, break level) on a matplotlib Axes."""
     colours = ["#1f5f8b", "#b5651d", "#2e7d32", "#6a1b9a", "#c62828"]
     for i, c in enumerate(curves):
@@ -417,7 +417,7 @@ def draw_blowing_axes(ax, curves: Sequence[BlowingCurve]) -> None:  # type: igno
         ax.plot(c.levels_dbfs, c.cents, ".", color=colour, markersize=3, alpha=0.35)
         if c.slope_cents_per_db is not None:
             xs = [c.level_min_dbfs, c.level_max_dbfs]
-            ys = [c.cents_at(x) for x in xs]
+            ys = [math.nan if y is None else y for y in map(c.cents_at, xs)]  # None: no fit, drawn as a gap
             ax.plot(xs, ys, "-", color="#222222", linewidth=0.9,
                     label=f"{c.note}: {c.slope_cents_per_db:+.3f} ± {c.slope_se_cents_per_db or 0:.3f} c/dB")
         if c.break_level_dbfs is not None:
@@ -452,7 +452,9 @@ def plot_chart(
         Bad suffix or unwritable file.
     """
     path = check_picture_path(path)
-    plt = agg_pyplot()
+    use_agg_backend()
+    import matplotlib.pyplot as plt
+
     n_notes = len({e.midi for e in chart.entries})
     width = max(7.0, 0.32 * n_notes + 2.0)
     rows = 2 if blowing else 1

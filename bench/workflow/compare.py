@@ -30,9 +30,14 @@ from typing import Literal
 
 from bench.errors import BenchError, LogError
 from bench.framelog import number_cell, safe_cell
-from bench.workflow.captures import Capture
-from bench.workflow.chart import GUIDE_CENTS, build_chart, check_picture_path, agg_pyplot
 from bench.reading import SettingsKey
+from bench.workflow.captures import Capture
+from bench.workflow.chart import (
+    GUIDE_CENTS,
+    build_chart,
+    check_picture_path,
+    use_agg_backend,
+)
 from bench.workflow.profiles import InstrumentProfile
 
 __all__ = [
@@ -256,8 +261,10 @@ def format_comparison(cmp: Comparison) -> str:
     lines = [
         f"Before: {cmp.before_name} ({_fmt_temps(cmp.before_settings)})",
         f"After:  {cmp.after_name} ({_fmt_temps(cmp.after_settings)})",
-        "Compared on temperature-corrected cents; moved = |change| > "
-        f"{cmp.k:g} x sqrt(spread_before^2 + spread_after^2) and > {cmp.min_cents:g} c.",
+        (
+            "Compared on temperature-corrected cents; moved = |change| > "
+            f"{cmp.k:g} x sqrt(spread_before^2 + spread_after^2) and > {cmp.min_cents:g} c."
+        ),
     ]
     lines += [f"warning: {w}" for w in cmp.warnings]
     lines.append(
@@ -317,7 +324,9 @@ def plot_comparison(cmp: Comparison, path: str | Path, *, title: str | None = No
     each note as error bars, moved notes filled, the ±5 c guide shaded; below it the change of
     odd/even balance (dB)."""
     path = check_picture_path(path)
-    plt = agg_pyplot()
+    use_agg_backend()
+    import matplotlib.pyplot as plt
+
     both = cmp.both()
     width = max(7.0, 0.32 * len(both) + 2.0)
     fig, (ax, ax2) = plt.subplots(2, 1, figsize=(width, 6.5), sharex=True,

@@ -15,8 +15,10 @@ only ever written on the engine thread. Nothing here waits on audio or the scree
 from __future__ import annotations
 
 import threading
-from collections.abc import Callable, Iterable
+from collections.abc import Callable
 from pathlib import Path
+from typing import Self
+
 from bench.errors import LogError
 from bench.reading import Reading
 from bench.workflow.blowing import BlowingCurve, BlowingCurveTracker
@@ -242,7 +244,7 @@ class LiveWorkflow:
             for cap in caps:
                 self.on_capture(cap)
 
-    def __enter__(self) -> LiveWorkflow:
+    def __enter__(self) -> Self:
         return self
 
     def __exit__(self, *exc: object) -> None:

@@ -34,6 +34,7 @@ Custom profiles are TOML files (see :func:`load_profile_file`)::
 
 from __future__ import annotations
 
+import itertools
 import re
 import tomllib
 from dataclasses import dataclass, field
@@ -44,8 +45,8 @@ from bench.textsafe import clip, printable
 from bench.tuning.notes import note_name, parse_note
 
 __all__ = [
-    "InstrumentProfile",
     "FAMILY",
+    "InstrumentProfile",
     "family_profile",
     "get_profile",
     "guess_profile",
@@ -383,7 +384,7 @@ def parse_profile_text(text: str, where: str = "<profile>") -> InstrumentProfile
                 _line_of(text, "registers"),
                 f"registers must start with the lowest note {table['lowest']!r}; list the first note of each register",
             )
-        if any(b <= a for a, b in zip(starts, starts[1:], strict=False)) or starts[-1] > high:
+        if any(b <= a for a, b in itertools.pairwise(starts)) or starts[-1] > high:
             raise fail(
                 _line_of(text, "registers"),
                 "registers must rise and stay inside lowest..highest; list the first note of each register",

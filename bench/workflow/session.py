@@ -10,7 +10,13 @@ from pathlib import Path
 from bench.errors import LogError
 from bench.framelog import FRAME_LOG_COLUMNS, iter_readings
 from bench.reading import Reading
-from bench.workflow.captures import CAPTURE_COLUMNS, Capture, captures_from_readings, captures_path_for, read_captures
+from bench.workflow.captures import (
+    CAPTURE_COLUMNS,
+    Capture,
+    captures_from_readings,
+    captures_path_for,
+    read_captures,
+)
 from bench.workflow.profiles import InstrumentProfile, get_profile, guess_profile
 
 __all__ = ["Session", "load_session"]

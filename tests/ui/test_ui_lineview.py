@@ -4,6 +4,7 @@ can show always is (figure, colour class, size)."""
 from __future__ import annotations
 
 import asyncio
+from typing import ClassVar
 
 from rich.text import Text
 from textual.app import App, ComposeResult
@@ -63,3 +64,45 @@ def test_only_changes_the_view_can_show_are_drawn():
     assert unchanged == 0
     assert changed.startswith("3 units")
     assert restyled >= 1 and before != after
+
+
+class Marked(LineView):
+    """One mark drawn in the style of a component class."""
+
+    COMPONENT_CLASSES: ClassVar[set[str]] = {"marked--mark"}
+    DEFAULT_CSS = """
+    Marked { height: 1; }
+    Marked > .marked--mark { color: #00ff00; }
+    Marked.-alarm > .marked--mark { color: #ff0000; }
+    """
+
+    def render(self) -> Text:
+        return Text.assemble(("mark", self.get_component_rich_style("marked--mark")))
+
+
+class MarkedApp(App[None]):
+    def compose(self) -> ComposeResult:
+        yield Marked()
+
+
+def test_component_styles_survive_a_style_update():
+    # Textual keeps a widget's component-class styles in DOMNode._component_styles and fills it
+    # after notify_style_update() (textual.css.stylesheet.Stylesheet.apply); the view's own cache
+    # of Rich styles must not share that attribute, or a style update empties Textual's entries
+    # and get_component_styles() raises KeyError (Textual API: DOMNode.get_component_styles).
+    async def scenario():
+        app = MarkedApp()
+        async with app.run_test(size=(20, 3)) as pilot:
+            view = app.query_one(Marked)
+            await pilot.pause(0.1)
+            green = view.render_line(0)._segments[0].style.color
+            view.notify_style_update()
+            kept = view.get_component_styles("marked--mark").color
+            view.add_class("-alarm")
+            await pilot.pause(0.1)
+            red = view.render_line(0)._segments[0].style.color
+            return green, kept, red
+
+    green, kept, red = asyncio.run(scenario())
+    assert green.triplet == (0, 255, 0) and red.triplet == (255, 0, 0)  # the colours of DEFAULT_CSS above
+    assert kept.rgb == (0, 255, 0)
