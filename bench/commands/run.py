@@ -218,8 +218,9 @@ def _start_follower(args: argparse.Namespace, engine: Any, report: Callable[[str
 def _prepare_analyser() -> None:
     """Load (the first time after an install: compile) the analyser's kernels before anything starts.
 
-    Compiling takes seconds once per installation: the user is told if it takes over a
-    second, before the screen takes the terminal. Done before the screen starts, the
+    Compiling takes seconds once per installation: past one second a progress line on stderr
+    counts the seconds (on a terminal; elsewhere one line says what is happening) and says when
+    it is done, before the screen takes the terminal. Done before the screen starts, the
     loaded code is also among the start-up objects the screen keeps out of the garbage
     collector's full passes, instead of being walked by every one of them.
     """
@@ -227,13 +228,35 @@ def _prepare_analyser() -> None:
 
     from dsp.analyser import prepare_kernels
 
-    notice = threading.Timer(1.0, _say, ("preparing the analyser (once after an install: about half a minute)",))
-    notice.daemon = True
-    notice.start()
+    what = "preparing the analyser (once after an install: about half a minute)"
+    done = threading.Event()
+    shown: list[float] = []
+    t0_s = time.monotonic()
+
+    def progress() -> None:
+        if done.wait(1.0):
+            return
+        live = sys.stderr.isatty()
+        if not live:
+            _say(what)
+        while not done.is_set():
+            elapsed_s = time.monotonic() - t0_s
+            shown.append(elapsed_s)
+            if live:
+                sys.stderr.write(f"\r{what}: {elapsed_s:4.0f} s")
+                sys.stderr.flush()
+            done.wait(1.0)
+
+    ticker = threading.Thread(target=progress, name="bench-prepare", daemon=True)
+    ticker.start()
     try:
         prepare_kernels()
     finally:
-        notice.cancel()
+        done.set()
+        ticker.join(2.0)
+        if shown:
+            end = "\r" if sys.stderr.isatty() else ""
+            _say(f"{end}analyser ready after {time.monotonic() - t0_s:.0f} s" + " " * 30)
 
 
 def _start_engine(

@@ -31,6 +31,7 @@ from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
 from textual.css.query import NoMatches
 from textual.message import Message
+from textual.notifications import SeverityLevel
 from textual.reactive import reactive
 from textual.widgets import Footer, Label
 
@@ -57,6 +58,7 @@ from bench.ui.deviation import DeviationScale
 from bench.ui.dialogs import ValueDialog
 from bench.ui.harmonics import HarmonicBars
 from bench.ui.help_screen import KeyGuide, binding_rows
+from bench.ui.notices import KEEP_S, NoticeLine, ShownNotice
 from bench.ui.panels import DetailLine, SessionBar, SettingsPanel
 from bench.ui.readout import CentsFace, NoteFace, offset_side
 from bench.ui.register import RegisterBanner
@@ -74,6 +76,7 @@ POLL_HZ = 30.0
 TRAIL_WINDOW_S = 10.0
 """Seconds of pitch history on the trail."""
 
+_NOTICES_KEPT = 4  # notices on the line at once, newest first
 _STATS_EVERY = 6  # polls between reads of engine.stats (5 Hz at 30 Hz)
 _LOAD_SPAN_S = 3.0  # the analysis load shown is averaged over this long, seconds
 _TRAIL_EVERY = 3  # polls between reads of engine.history (10 Hz at 30 Hz)
@@ -307,6 +310,7 @@ class BenchApp(App[int]):
         self.chart: TuningChart | None = None
         """Tuning chart of the captures so far."""
         self._captures_file_shown: tuple[Path | None, str | None] = (None, None)
+        self._notices: list[ShownNotice] = []
         self._seen_captures: set[int] = set()
         self._last_capture: Any = None
         self._blowing_line = ""
@@ -326,6 +330,7 @@ class BenchApp(App[int]):
         yield DetailLine(id="detail")
         yield RegisterBanner(id="register")
         yield CaptureLine(id="captures", classes="capture-line")
+        yield NoticeLine(id="notices", classes="notice-line")
         with Horizontal(id="lower"):
             yield HarmonicBars(id="harmonics")
             yield PitchTrail(id="trail")
@@ -392,6 +397,32 @@ class BenchApp(App[int]):
         """Label put on new captures."""
         return self.session.label
 
+    def notify(
+        self,
+        message: str,
+        *,
+        title: str = "",
+        severity: SeverityLevel = "information",
+        timeout: float | None = None,
+        markup: bool = True,
+    ) -> None:
+        """Put a notice on the notice line (never a pop-up over the readings), newest first,
+        for ``timeout`` seconds or as long as its severity asks (:data:`bench.ui.notices.KEEP_S`)."""
+        text = f"{title}: {message}" if title else str(message)
+        keep_s = KEEP_S.get(severity, KEEP_S["information"]) if timeout is None else max(float(timeout), 1.0)
+        now_s = time.monotonic()
+        kept = [n for n in self._notices if n.until_s > now_s and n.text != text]
+        self._notices = [ShownNotice(text, severity, now_s + keep_s), *kept][:_NOTICES_KEPT]
+        self._show_notices()
+
+    def _show_notices(self) -> None:
+        now_s = time.monotonic()
+        self._notices = [n for n in self._notices if n.until_s > now_s]
+        shown = tuple(self._notices)
+        for screen in self.screen_stack:
+            for line in screen.query(NoticeLine):
+                line.notices = shown
+
     def _tell(self, notice: Notice | None) -> None:
         """Show the controller's answer to a key, if it has one."""
         if notice is not None:
@@ -432,6 +463,8 @@ class BenchApp(App[int]):
         self._polls += 1
         if self._polls % _STATS_EVERY == 0:
             self._refresh_session()
+            if self._notices:
+                self._show_notices()  # let old notices go
         top = self._top_screen()
         if isinstance(top, WorkflowView):  # the live widgets are hidden: leave them be
             if isinstance(top, BlowingScreen) and self._polls % _BLOWING_EVERY == 0 and not self.held:
@@ -790,6 +823,7 @@ class BenchApp(App[int]):
 
     def fill_workflow_view(self, view: Any) -> None:
         """Show the state of the moment on a workflow view (called when it is shown)."""
+        self._show_notices()
         line = _find(view, CaptureLine)
         if line is None:  # not composed yet: it fills itself when shown
             return

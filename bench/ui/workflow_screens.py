@@ -17,6 +17,7 @@ from textual.widgets import Footer, Label
 
 from bench.ui.blowing_plot import BlowingPlot
 from bench.ui.capture_line import CaptureLine
+from bench.ui.notices import NoticeLine
 from bench.ui.tuning_map import TuningMap
 
 CHART_PLOT_MIN_ROWS = 34
@@ -45,6 +46,7 @@ class ChartScreen(WorkflowView):
 
     def compose(self) -> ComposeResult:
         yield CaptureLine(id="chart-captures", classes="capture-line")
+        yield NoticeLine(classes="notice-line")
         yield Label("", id="chart-title")
         yield TuningMap(id="chart-map")
         yield Label("", id="chart-last")
@@ -63,6 +65,7 @@ class BlowingScreen(WorkflowView):
 
     def compose(self) -> ComposeResult:
         yield CaptureLine(id="blowing-captures", classes="capture-line")
+        yield NoticeLine(classes="notice-line")
         yield BlowingPlot(id="blowing-plot")
         yield Footer()
 
