@@ -18,6 +18,7 @@ from typing import Literal
 
 from bench.engine import Engine
 from bench.errors import BenchError, SettingsError
+from bench.numbers import parse_number
 from bench.reading import Reading
 from bench.tuning import TuningSettings
 from bench.tuning.air import check_temp
@@ -258,10 +259,10 @@ class SessionController:
             return None
         what = _WHAT[field]
         cleaned = text.strip().lower().removesuffix("c").removesuffix("\u00b0").strip()
-        try:
-            value = check_temp(float(cleaned), what)
-        except ValueError:
-            return Notice(f"{what} {text!r} is not a number of degrees Celsius; type e.g. 21.5", "error")
+        try:  # the one strict number syntax (no underscores, no inf/nan; the typographic minus is a minus)
+            value = check_temp(parse_number(cleaned, what, "degrees Celsius, e.g. 21.5"), what)
+        except SettingsError as exc:
+            return Notice(str(exc), "error")
         notice = self.change(**{field: value})
         if notice is None and field == "temp_c" and self.temp_followed:
             return Notice("the air temperature follows a sensor; its next reading replaces this", "warning")

@@ -56,8 +56,10 @@ def analyser_alone_cpu_per_audio_s(audio: np.ndarray, sample_rate: int, block_si
     return (time.thread_time() - t0) / (len(audio) / sample_rate)
 
 
-def run_demo(duration_s: float, block_size: int, sample_rate: int) -> dict:
+def run_demo(duration_s: float, block_size: int, sample_rate: int, workflow: bool = False) -> dict:
     from bench.engine import Engine, ReadingCallback
+    from bench.heldnotes import HeldNoteCollector
+    from bench.workflow.live import LiveWorkflow
     from bench.sources.demo import DemoSource
     from bench.tuning import TuningSettings
 
@@ -73,7 +75,10 @@ def run_demo(duration_s: float, block_size: int, sample_rate: int) -> dict:
 
     with tempfile.TemporaryDirectory() as tmp:
         log = Path(tmp) / "bench.csv"
-        engine = Engine(source, TuningSettings(), log_path=log, consumers=[ReadingCallback(on_reading)])
+        consumers = [ReadingCallback(on_reading)]
+        if workflow:  # what the screen and an unattended run attach: captures, blowing curve, held notes
+            consumers += [LiveWorkflow(profile="alto"), HeldNoteCollector()]
+        engine = Engine(source, TuningSettings(), log_path=log, consumers=consumers)
         engine.start()
         t0_s = source._pacer._t0_s  # noqa: SLF001 - wall time the demo's first sample "sounded"
         time.sleep(duration_s)
@@ -160,6 +165,8 @@ def run_jack(duration_s: float, block_size: int, sample_rate: int) -> dict:
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--source", choices=["demo", "jack"], default="demo")
+    ap.add_argument("--workflow", action="store_true",
+                    help="demo: attach the session workflow and held notes as consumers, as the screen does")
     ap.add_argument("--seconds", type=float, default=60.0)
     ap.add_argument("--minutes", type=float, default=None, help="run length in minutes (overrides --seconds)")
     ap.add_argument("--block", type=int, default=512)
@@ -167,7 +174,7 @@ def main() -> int:
     args = ap.parse_args()
     duration_s = args.minutes * 60 if args.minutes else args.seconds
     print(f"bench_engine: {args.source} source, {duration_s:.0f} s at {args.rate} Hz, block {args.block}", flush=True)
-    r = run_demo(duration_s, args.block, args.rate) if args.source == "demo" else run_jack(duration_s, args.block, args.rate)
+    r = run_demo(duration_s, args.block, args.rate, args.workflow) if args.source == "demo" else run_jack(duration_s, args.block, args.rate)
     cpu_ratio = r["cpu_s"] / r["wall_s"]
     per_audio = r["cpu_s"] / max(r["audio_s"], 1e-9)
     print(f"  source             {r['source']}")

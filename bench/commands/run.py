@@ -162,7 +162,7 @@ def _log_file(args: argparse.Namespace) -> Path | None:
 
 
 def run_command(args: argparse.Namespace) -> int:
-    from bench.config import load_saved_settings
+    from bench.config import read_saved_settings
 
     duration_s = _positive("--duration", args.duration, "seconds of input, e.g. 600")
     if duration_s is not None and not args.no_ui:
@@ -172,13 +172,12 @@ def run_command(args: argparse.Namespace) -> int:
         from bench.workflow.profiles import get_profile
 
         args.profile = get_profile(args.profile)  # a bad name or file: one line, before any input opens
-    if args.no_ui:
-        from bench.config import read_saved_settings
-
-        saved = read_saved_settings()
-        base: TuningSettings | None = saved.settings
-    else:
-        base = load_saved_settings()
+    saved = read_saved_settings()
+    for warning in saved.problems:  # said in the terminal, and on the screen's notice line below
+        _say(f"warning: {warning}")
+    base: TuningSettings | None = saved.settings
+    if not args.no_ui and not (saved.from_file or saved.settings.custom_temperament):
+        base = None
     settings = settings_from_args(args, base)
     if args.temp_source is not None:
         from bench.airtemp import AirTemperatureSource
@@ -200,6 +199,8 @@ def run_command(args: argparse.Namespace) -> int:
         origins = unattended.setting_origins(args, saved.from_file, saved.path)
         _say(unattended.describe_origins(settings, origins, args.label))
         return _run_unattended(args, source, settings, log_path, log_rate, duration_s, origins)
+    if saved.problems:
+        notice = "; ".join([*saved.problems, *([notice] if notice else [])])
     return _run_screen(args, source, settings, log_path, log_rate, notice)
 
 
