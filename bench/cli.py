@@ -17,6 +17,7 @@ COMMAND_MODULES = (
     "bench.commands.notes",  # notes, temperaments
     "bench.commands.analyze",
     "bench.commands.chart",  # chart, compare
+    "bench.commands.model",  # model predict|fit|whatif
 )
 DEFAULT_COMMAND = "run"
 
@@ -50,7 +51,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 def _with_default_command(argv: list[str], parser: argparse.ArgumentParser) -> list[str]:
     commands = set()
-    for action in parser._subparsers._group_actions if parser._subparsers else ():  # noqa: SLF001
+    for action in parser._subparsers._group_actions if parser._subparsers else ():
         commands.update(getattr(action, "choices", {}) or {})
     if argv and (argv[0] in commands or argv[0] in ("-h", "--help", "--version")):
         return argv
