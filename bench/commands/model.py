@@ -40,6 +40,36 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     p.add_argument("--overwrite", action="store_true", help="replace OUT.csv if it exists")
     p.set_defaults(func=run_predict)
 
+    f = msub.add_parser(
+        "fit",
+        help="fit the model to captured notes: window end correction, bore warming, hole sizes",
+        description="Fit a few model parameters to the latest capture of each note and register "
+        "in CAPTURES (a captures file written by bench): the window's end correction, how much "
+        "warmer the bore is than the room, one offset per register and each hole's effective "
+        "diameter, each with a prior. Prints the residual of every note and each parameter with "
+        "its uncertainty, and says which ones the captures do not pin down.",
+    )
+    f.add_argument("geometry", metavar="GEOMETRY", help=_GEOMETRY_HELP)
+    f.add_argument("captures", type=Path, metavar="CAPTURES.csv", help="captures file (<log>.captures.csv)")
+    f.add_argument("--rh", type=float, default=60.0, metavar="PERCENT",
+                   help="humidity in the bore where a capture names none (default 60)")
+    f.set_defaults(func=run_fit)
+
+    w = msub.add_parser(
+        "whatif",
+        help="predicted change of every note from enlarging a hole or shortening the foot",
+        description="Predict what a change does to every fingering in every register, in cents: "
+        "--hole LABEL --diameter MM bores a hole to a new diameter, --shorten-foot MM cuts the "
+        "foot; --sensitivity prints cents per 0.1 mm of every hole's diameter for every note.",
+    )
+    w.add_argument("geometry", metavar="GEOMETRY", help=_GEOMETRY_HELP)
+    w.add_argument("--hole", metavar="LABEL", help="hole to change (its label, e.g. h4)")
+    w.add_argument("--diameter", type=float, metavar="MM", help="its new diameter, mm")
+    w.add_argument("--shorten-foot", type=float, metavar="MM", help="cut this much off the foot, mm")
+    w.add_argument("--sensitivity", action="store_true", help="cents per 0.1 mm for every hole and note")
+    _air_options(w)
+    w.set_defaults(func=run_whatif)
+
 
 def _check(args: argparse.Namespace) -> None:
     if not 1 <= args.registers <= 6:
@@ -64,4 +94,51 @@ def run_predict(args: argparse.Namespace) -> int:
     print(format_predictions(preds), end="")
     if args.csv is not None:
         print(f"predictions written to {write_predictions_csv(preds, args.csv, args.overwrite)}")
+    return 0
+
+
+def run_fit(args: argparse.Namespace) -> int:
+    from bench.model.fit import fit_model, format_fit, targets_from_captures
+    from bench.model.geometry import load_geometry
+    from bench.workflow.captures import read_captures
+
+    geometry = load_geometry(args.geometry)
+    targets = targets_from_captures(read_captures(args.captures), geometry, default_rh=args.rh)
+    result = fit_model(geometry, targets)
+    print(f"{geometry.title}: fitted to {len(targets)} captured notes of {args.captures}")
+    print(format_fit(result), end="")
+    return 0
+
+
+def run_whatif(args: argparse.Namespace) -> int:
+    from bench.model.acoustics import air_at
+    from bench.model.geometry import load_geometry
+    from bench.model.whatif import (
+        enlarge_hole,
+        format_change,
+        format_sensitivity,
+        predict_change,
+        sensitivity,
+        shorten_foot,
+    )
+
+    _check(args)
+    if (args.hole is None) != (args.diameter is None):
+        raise SettingsError("--hole and --diameter go together; give both, e.g. --hole h4 --diameter 6.5")
+    if args.hole is None and args.shorten_foot is None and not args.sensitivity:
+        raise SettingsError("nothing to try; give --hole LABEL --diameter MM, --shorten-foot MM or --sensitivity")
+    geometry = load_geometry(args.geometry)
+    air = air_at(args.temp, args.rh)
+    print(f"{geometry.title}: air {air.temp_c:g} degC {air.rh_percent:g} % RH")
+    if args.hole is not None:
+        changed = enlarge_hole(geometry, args.hole, args.diameter)
+        old = next(h for h in geometry.holes if h.label == args.hole).outer_diameter_mm
+        desc = f"hole {args.hole} from {old:g} to {args.diameter:g} mm: change in cents"
+        print(format_change(predict_change(geometry, changed, desc, air, args.registers)), end="")
+    if args.shorten_foot is not None:
+        changed = shorten_foot(geometry, args.shorten_foot)
+        desc = f"foot shortened by {args.shorten_foot:g} mm: change in cents"
+        print(format_change(predict_change(geometry, changed, desc, air, args.registers)), end="")
+    if args.sensitivity:
+        print(format_sensitivity(*sensitivity(geometry, air, args.registers)), end="")
     return 0

@@ -34,15 +34,20 @@ from scipy.optimize import least_squares  # type: ignore[import-untyped]
 from bench.errors import SettingsError
 from bench.model.acoustics import air_at
 from bench.model.geometry import Geometry
-from bench.model.instrument import ModelOptions, playing_frequencies, refine_minima, states_of
+from bench.model.instrument import (
+    ModelOptions,
+    playing_frequencies,
+    refine_minima,
+    states_of,
+)
 from bench.workflow.captures import Capture
 from bench.workflow.notenames import note_name, parse_note
 
 __all__ = [
+    "PINNED_FRACTION",
     "FitParameter",
     "FitResult",
     "FitTarget",
-    "PINNED_FRACTION",
     "fit_model",
     "format_fit",
     "targets_from_captures",
@@ -247,7 +252,8 @@ class _Model:
 
     def cents(self, vals: dict[str, float], guess_hz: NDArray[np.float64] | None) -> NDArray[np.float64]:
         model = self.model_hz(vals, guess_hz)
-        return 1200.0 * np.log2(self.measured / model) - self.offsets(vals)  # type: ignore[no-any-return]
+        cents: NDArray[np.float64] = 1200.0 * np.log2(self.measured / model) - self.offsets(vals)
+        return cents
 
 
 def fit_model(

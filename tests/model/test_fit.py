@@ -97,3 +97,17 @@ def test_degenerate_parameters_are_reported_not_pinned(synthetic):
     # the true h6 (x 1.04) leaves a few cents
     assert "scale_h6" in result.left_out
     assert max(abs(c) for c in result.after_cents) < 5.0 < max(abs(c) for c in result.before_cents)
+
+
+def test_fit_command_prints_residuals_and_parameters(synthetic, tmp_path, capsys):
+    from bench.cli import main
+
+    _, caps = synthetic
+    path = tmp_path / "few.captures.csv"
+    write_captures(path, [c for c in caps if c.note in ("F4", "A4", "C5", "E5")])
+    assert main(["model", "fit", "wren-alto", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "end_correction_mm" in out and "rms:" in out
+    assert "not fitted (fewer captures than parameters)" in out
+    assert main(["model", "fit", "wren-alto", str(tmp_path / "missing.csv")]) == 2
+    assert capsys.readouterr().err.startswith("error: no such captures file")
