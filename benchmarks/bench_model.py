@@ -28,11 +28,11 @@ import numpy as np
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
-from bench.model.acoustics import air_at  # noqa: E402
-from bench.model.fit import FitTarget, fit_model  # noqa: E402
-from bench.model.geometry import builtin_geometry  # noqa: E402
-from bench.model.instrument import ModelOptions, playing_frequencies  # noqa: E402
-from bench.model.predict import predict  # noqa: E402
+from bench.model.acoustics import air_at
+from bench.model.fit import FitTarget, fit_model
+from bench.model.geometry import builtin_geometry
+from bench.model.instrument import ModelOptions, playing_frequencies
+from bench.model.predict import predict
 
 FIT_NOTES = ["F4", "G4", "A4", "Bb4", "C5", "D5", "E5", "F#5", "G#5", "A5", "C6", "D6"]
 
