@@ -168,13 +168,18 @@ def input_impedance(
     complex ndarray, shape (F, M), Pa s/m^3
     """
     n_f = states.shape[0]
-    freq = np.broadcast_to(np.asarray(freq_hz, dtype=np.float64), (n_f, np.shape(freq_hz)[-1]))
+    given = np.asarray(freq_hz, dtype=np.float64)
+    freq = np.broadcast_to(given, (n_f, given.shape[-1]))
+    # one frequency row shared by every fingering: compute each element once on it and let
+    # broadcasting apply it to all fingerings
+    shared = given.ndim == 1
+    f_el = given if shared else freq
     foot_r = geometry.bore_mm[-1][1] / 2000.0
-    z = _radiation(freq, foot_r, air, options)
+    z = np.broadcast_to(_radiation(f_el, foot_r, air, options), freq.shape).astype(np.complex128)
     scales = options.hole_diameter_scale
     for kind, z0, z1, r0, r1, idx in reversed(_pieces(geometry)):
         if kind == "duct":
-            z = load(cone_matrix(freq, z1 - z0, r0, r1, air, options.losses), z)
+            z = load(cone_matrix(f_el, z1 - z0, r0, r1, air, options.losses), z)
             continue
         hole = geometry.holes[idx]
         col = states[:, idx][:, None]
@@ -184,7 +189,7 @@ def input_impedance(
             rows = np.flatnonzero(col[:, 0] == state)
             if rows.size == 0:
                 continue
-            f_rows = freq[rows]
+            f_rows = given if shared else freq[rows]
             factor = scale * (options.half_hole_factor if state == _HALF else 1.0)
             b_in = hole.inner_diameter_mm / 2000.0 * factor
             b_out = hole.outer_diameter_mm / 2000.0 * factor
@@ -201,7 +206,7 @@ def input_impedance(
             z_new[rows] = load(tee_matrix(za, zs), z[rows])
         z = z_new
     if include_top:
-        z = z + top_impedance(freq, geometry, air, options)
+        z = z + top_impedance(f_el, geometry, air, options)
     return z
 
 
