@@ -53,6 +53,9 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     f.add_argument("captures", type=Path, metavar="CAPTURES.csv", help="captures file (<log>.captures.csv)")
     f.add_argument("--rh", type=float, default=60.0, metavar="PERCENT",
                    help="humidity in the bore where a capture names none (default 60)")
+    f.add_argument("--save", type=Path, metavar="FITTED.toml",
+                   help="write the geometry with the fitted end correction and effective hole diameters")
+    f.add_argument("--overwrite", action="store_true", help="replace FITTED.toml if it exists")
     f.set_defaults(func=run_fit)
 
     w = msub.add_parser(
@@ -98,15 +101,31 @@ def run_predict(args: argparse.Namespace) -> int:
 
 
 def run_fit(args: argparse.Namespace) -> int:
-    from bench.model.fit import fit_model, format_fit, targets_from_captures
-    from bench.model.geometry import load_geometry
+    from bench.model.fit import (
+        fit_model,
+        fitted_geometry,
+        format_fit,
+        targets_from_captures,
+    )
+    from bench.model.geometry import geometry_to_toml, load_geometry
+    from bench.model.predict import write_text_new
     from bench.workflow.captures import read_captures
 
+    if args.save is not None and args.save.exists() and not args.overwrite:
+        raise SettingsError(f"{args.save} exists; give --overwrite to replace it or choose another file name")
     geometry = load_geometry(args.geometry)
     targets = targets_from_captures(read_captures(args.captures), geometry, default_rh=args.rh)
     result = fit_model(geometry, targets)
     print(f"{geometry.title}: fitted to {len(targets)} captured notes of {args.captures}")
     print(format_fit(result), end="")
+    if args.save is not None:
+        offsets = ", ".join(f"register {k} {v:+.1f} c" for k, v in result.offsets_cents.items())
+        header = (
+            f"{geometry.title}, fitted by bench to {args.captures} ({len(targets)} notes).\n"
+            f"Hole diameters are effective ones; the bore was {result.warming_c:.1f} degC above the room; "
+            f"offsets: {offsets or 'none'}."
+        )
+        print(f"fitted geometry written to {write_text_new(args.save, geometry_to_toml(fitted_geometry(result), header), args.overwrite)}")
     return 0
 
 

@@ -49,6 +49,7 @@ __all__ = [
     "FitResult",
     "FitTarget",
     "fit_model",
+    "fitted_geometry",
     "format_fit",
     "targets_from_captures",
 ]
@@ -350,3 +351,13 @@ def format_fit(result: FitResult) -> str:
     if result.left_out:
         lines.append(f"not fitted (fewer captures than parameters): {', '.join(result.left_out)}")
     return "\n".join(lines) + "\n"
+
+
+def fitted_geometry(result: FitResult) -> Geometry:
+    """The geometry with the fitted end correction and each hole at its effective diameter."""
+    scales = result.options.hole_diameter_scale
+    holes = tuple(
+        replace(h, inner_diameter_mm=h.inner_diameter_mm * s, outer_diameter_mm=h.outer_diameter_mm * s)
+        for h, s in zip(result.geometry.holes, scales or (1.0,) * len(result.geometry.holes), strict=True)
+    )
+    return replace(result.geometry, holes=holes)

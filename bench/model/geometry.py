@@ -54,6 +54,7 @@ __all__ = [
     "Hole",
     "Top",
     "builtin_geometry",
+    "geometry_to_toml",
     "load_geometry",
     "parse_geometry_text",
 ]
@@ -470,3 +471,53 @@ def builtin_geometry(name: str) -> Geometry:
     text = resources.files("bench.model").joinpath(BUILTIN_GEOMETRIES[name]).read_text(encoding="utf-8")
     return parse_geometry_text(text, f"built-in {name}")
 
+
+
+def geometry_to_toml(geometry: Geometry, header: str = "") -> str:
+    """The geometry as TOML text that :func:`parse_geometry_text` reads back to the same geometry.
+
+    Parameters
+    ----------
+    geometry : Geometry
+    header : str
+        Comment lines put first (each line gets a ``#``).
+
+    Examples
+    --------
+    >>> g = parse_geometry_text('[instrument]\\nname = "t"\\n[bore]\\npoints_mm = [[0, 14], [300, 14]]\\n'
+    ...                         '[top]\\nkind = "open"\\n')
+    >>> parse_geometry_text(geometry_to_toml(g)) == replace(g, source="<geometry>")
+    True
+    """
+    import tomli_w
+
+    top: dict[str, Any] = {"kind": geometry.top.kind}
+    if geometry.top.kind == "window":
+        top.update(width_mm=geometry.top.width_mm, length_mm=geometry.top.length_mm,
+                   end_correction_mm=round(geometry.top.end_correction_mm, 4))
+    holes: list[dict[str, Any]] = []
+    for h in geometry.holes:
+        entry: dict[str, Any] = {"label": h.label, "position_mm": h.position_mm}
+        if h.undercut:
+            entry.update(inner_diameter_mm=round(h.inner_diameter_mm, 4), outer_diameter_mm=round(h.outer_diameter_mm, 4))
+        else:
+            entry["diameter_mm"] = round(h.inner_diameter_mm, 4)
+        entry["chimney_mm"] = h.chimney_mm
+        if h.thumb:
+            entry["thumb"] = True
+        holes.append(entry)
+    fingerings: dict[str, Any] = {
+        f.name: f.holes if f.register == 1 else {"holes": f.holes, "register": f.register}
+        for f in geometry.fingerings
+    }
+    doc: dict[str, Any] = {
+        "instrument": {"name": geometry.name, "title": geometry.title},
+        "bore": {"points_mm": [[z, d] for z, d in geometry.bore_mm]},
+        "top": top,
+    }
+    if holes:
+        doc["holes"] = holes
+    if fingerings:
+        doc["fingerings"] = fingerings
+    comment = "".join(f"# {line}\n" for line in header.splitlines())
+    return comment + tomli_w.dumps(doc)

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import contextlib
 import csv
+import io
 import math
 import os
 import tempfile
@@ -31,6 +32,7 @@ __all__ = [
     "target_hz_of",
     "write_csv_new",
     "write_predictions_csv",
+    "write_text_new",
 ]
 
 PREDICTION_COLUMNS = (
@@ -166,8 +168,8 @@ def _cell(value: float | None, digits: int) -> str:
     return f"{value:.{digits}f}"
 
 
-def write_csv_new(path: str | Path, header: Sequence[str], rows: Sequence[Sequence[str]], overwrite: bool = False) -> Path:
-    """Write a CSV through a temporary file in the same folder, then move it into place.
+def write_text_new(path: str | Path, text: str, overwrite: bool = False) -> Path:
+    """Write a text file through a temporary file in the same folder, then move it into place.
 
     Without ``overwrite`` an existing file is never replaced (the final step is a hard link,
     which fails if the name was taken meanwhile).
@@ -187,9 +189,7 @@ def write_csv_new(path: str | Path, header: Sequence[str], rows: Sequence[Sequen
         raise SettingsError(f"cannot write {out}: {exc.strerror or exc}; choose a folder you can write to") from None
     try:
         with os.fdopen(fd, "w", encoding="utf-8", newline="") as f:
-            writer = csv.writer(f)
-            writer.writerow(header)
-            writer.writerows(rows)
+            f.write(text)
         if overwrite:
             os.replace(tmp_name, out)
         else:
@@ -204,6 +204,15 @@ def write_csv_new(path: str | Path, header: Sequence[str], rows: Sequence[Sequen
             os.unlink(tmp_name)
         raise SettingsError(f"cannot write {out}: {exc.strerror or exc}") from None
     return out
+
+
+def write_csv_new(path: str | Path, header: Sequence[str], rows: Sequence[Sequence[str]], overwrite: bool = False) -> Path:
+    """Write a CSV with :func:`write_text_new` (never replacing a file unasked)."""
+    buf = io.StringIO(newline="")
+    writer = csv.writer(buf)
+    writer.writerow(header)
+    writer.writerows(rows)
+    return write_text_new(path, buf.getvalue(), overwrite)
 
 
 def write_predictions_csv(preds: Sequence[Prediction], path: str | Path, overwrite: bool = False) -> Path:

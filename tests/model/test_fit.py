@@ -14,7 +14,7 @@ import pytest
 
 from bench.model.acoustics import air_at
 from bench.model.fit import fit_model, targets_from_captures
-from bench.model.geometry import builtin_geometry
+from bench.model.geometry import builtin_geometry, load_geometry
 from bench.model.instrument import ModelOptions, playing_frequencies
 from bench.workflow.captures import Capture, read_captures, write_captures
 from bench.workflow.notenames import freq_of_midi, parse_note
@@ -109,5 +109,11 @@ def test_fit_command_prints_residuals_and_parameters(synthetic, tmp_path, capsys
     out = capsys.readouterr().out
     assert "end_correction_mm" in out and "rms:" in out
     assert "not fitted (fewer captures than parameters)" in out
+    saved = tmp_path / "fitted.toml"
+    assert main(["model", "fit", "wren-alto", str(path), "--save", str(saved)]) == 0
+    fitted = load_geometry(saved)
+    assert fitted.fingerings == builtin_geometry("wren-alto").fingerings
+    assert main(["model", "fit", "wren-alto", str(path), "--save", str(saved)]) == 2
+    assert "--overwrite" in capsys.readouterr().err
     assert main(["model", "fit", "wren-alto", str(tmp_path / "missing.csv")]) == 2
     assert capsys.readouterr().err.startswith("error: no such captures file")
