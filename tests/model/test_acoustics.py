@@ -170,3 +170,30 @@ def test_a_smaller_open_hole_lowers_the_note():
         g = parse_geometry_text(_tube("[[0, 14.0], [320, 14.0]]", hole))
         freqs.append(playing_frequencies(g, ["o"], AIR, 1).freq_hz[0, 0])
     assert all(b < a for a, b in itertools.pairwise(freqs))
+
+
+def test_window_of_the_bore_area_with_levine_schwinger_correction_equals_an_open_top():
+    # Levine & Schwinger (1948): at low frequency an unflanged open end acts as 0.6133 a of
+    # extra pipe. A window whose area is the bore's and whose end correction is 0.6133 a is
+    # that same inertance, so a long thin pipe plays the same first mode with either top.
+    a_mm = 5.0
+    side_mm = math.sqrt(math.pi) * a_mm  # a square window of the bore's area
+    base = "[[0, 10.0], [2000, 10.0]]"
+    open_top = parse_geometry_text(_tube(base))
+    window = parse_geometry_text(_tube(base).replace(
+        'kind = "open"',
+        f'kind = "window"\nwidth_mm = {side_mm}\nlength_mm = {side_mm}\nend_correction_mm = {0.6133 * a_mm}',
+    ))
+    opts = ModelOptions(losses=False, radiation="unflanged-lossless")
+    f_open = playing_frequencies(open_top, [""], AIR, 1, opts).freq_hz[0, 0]
+    f_window = playing_frequencies(window, [""], AIR, 1, opts).freq_hz[0, 0]
+    assert abs(_cents(f_window, f_open)) < 0.01
+
+
+def test_a_larger_window_end_correction_lowers_every_note():
+    # Ernoult & Fabre (2017): the window's inertance lowers the resonances; more inertance
+    # (a longer end correction) lowers them further.
+    text = _tube("[[0, 19.0], [400, 12.0]]").replace('kind = "open"', 'kind = "window"\nwidth_mm = 12\nlength_mm = 4\nend_correction_mm = {ec}')
+    low = playing_frequencies(parse_geometry_text(text.format(ec=4.0)), [""], AIR, 3).freq_hz[0]
+    high = playing_frequencies(parse_geometry_text(text.format(ec=8.0)), [""], AIR, 3).freq_hz[0]
+    assert np.all(high < low)

@@ -48,15 +48,19 @@ def test_bad_geometry_is_one_error_line(tmp_path, capsys):
     assert err == f"error: {geo}: holes[0].chimney_mm: missing; add it (a number of millimetres)\n"
 
 
-def test_builtin_alto_covers_the_alto_compass_with_note_names():
-    # Fingerings are keyed by the note names of the alto profile (bench.workflow.profiles).
-    g = builtin_geometry("wren-alto")
-    alto = get_profile("alto")
+@pytest.mark.parametrize(("name", "profile"), [("wren-alto", "alto"), ("wren-soprano", "soprano")])
+def test_builtin_geometries_cover_their_compass_with_note_names(name, profile):
+    # Fingerings are keyed by the note names of the family profiles (bench.workflow.profiles):
+    # one per note of the compass, each in the register the profile puts its note in.
     from bench.workflow.notenames import parse_note
 
-    assert sorted(parse_note(f.name) for f in g.fingerings) == alto.notes()
+    g = builtin_geometry(name)
+    prof = get_profile(profile)
+    assert sorted(parse_note(f.name) for f in g.fingerings) == prof.notes()
     for f in g.fingerings:
-        assert f.register == alto.register_of(parse_note(f.name))
+        assert f.register == prof.register_of(parse_note(f.name))
+    preds = predict(g, air_at(25.0, 60.0), registers=3)
+    assert all(math.isfinite(p.predicted_hz) for p in preds)
 
 
 def test_warmer_air_raises_every_prediction():
