@@ -197,3 +197,27 @@ def test_a_larger_window_end_correction_lowers_every_note():
     low = playing_frequencies(parse_geometry_text(text.format(ec=4.0)), [""], AIR, 3).freq_hz[0]
     high = playing_frequencies(parse_geometry_text(text.format(ec=8.0)), [""], AIR, 3).freq_hz[0]
     assert np.all(high < low)
+
+
+def test_vectorised_refinement_agrees_with_scipy_minimize_scalar():
+    # The resonance search refines all brackets at once by golden section; scipy's bounded
+    # Brent search (scipy.optimize.minimize_scalar) on the same |Z| must find the same minima.
+    from scipy.optimize import minimize_scalar
+
+    from bench.model.geometry import builtin_geometry
+    from bench.model.instrument import input_impedance, states_of
+
+    g = builtin_geometry("wren-alto")
+    patterns = [g.fingering(n).holes for n in ("F4", "C5", "A5")]
+    res = playing_frequencies(g, patterns, AIR, registers=2)
+    for i, pattern in enumerate(patterns):
+        states = states_of([pattern])
+        for k in range(2):
+            f0 = res.freq_hz[i, k]
+
+            def mag(f: float, states=states) -> float:
+                return float(np.abs(input_impedance(g, states, np.array([f]), AIR))[0, 0])
+
+            ref = minimize_scalar(mag, bounds=(f0 * 0.99, f0 * 1.01), method="bounded",
+                                  options={"xatol": 1e-7})
+            assert abs(_cents(f0, ref.x)) < 0.001
