@@ -244,7 +244,7 @@ class _Model:
                 out[rows] = res.freq_hz[np.arange(len(idx)), self.modes[rows] - 1]
             else:
                 g = guess_hz[rows][:, None]
-                found = refine_minima(geometry, self.states[rows], g * (1 - _BRACKET), g * (1 + _BRACKET), air, options, 32)
+                found = refine_minima(geometry, self.states[rows], g * (1 - _BRACKET), g * (1 + _BRACKET), air, options, 16)
                 out[rows] = found[:, 0]
         return out
 

@@ -486,6 +486,7 @@ def geometry_to_toml(geometry: Geometry, header: str = "") -> str:
     --------
     >>> g = parse_geometry_text('[instrument]\\nname = "t"\\n[bore]\\npoints_mm = [[0, 14], [300, 14]]\\n'
     ...                         '[top]\\nkind = "open"\\n')
+    >>> from dataclasses import replace
     >>> parse_geometry_text(geometry_to_toml(g)) == replace(g, source="<geometry>")
     True
     """

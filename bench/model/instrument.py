@@ -221,7 +221,8 @@ def refine_minima(
 ) -> FArray:
     """Frequencies of the minimum of ``|Z|`` inside brackets, by golden-section search.
 
-    Golden-section search (J. Kiefer, Proc. AMS 4, 502 (1953)) run on every bracket at once.
+    Golden-section search (J. Kiefer, Proc. AMS 4, 502 (1953)) run on every bracket at once,
+    finished by one parabolic interpolation step.
 
     Parameters
     ----------
@@ -232,7 +233,8 @@ def refine_minima(
     air : Air
     options : ModelOptions
     iterations : int
-        Each shrinks the bracket by 0.618 (36: by 3e-8).
+        Each shrinks the bracket by 0.618 (36: by 3e-8; 16: by 5e-4, after which the final
+        parabola is exact to far below a thousandth of a cent on a smooth minimum).
 
     Returns
     -------
@@ -258,7 +260,17 @@ def refine_minima(
         fp = mag(probe)
         c, d = np.where(left, new_c, d), np.where(left, c, new_d)
         fc, fd = np.where(left, fp, fd), np.where(left, fc, fp)
-    out = 0.5 * (a + b)
+    # one parabola through the two inner points and the bracket's middle finishes the search
+    # (successive parabolic interpolation, the second half of Brent's method: R. P. Brent,
+    # *Algorithms for Minimization without Derivatives*, 1973, ch. 5)
+    m = 0.5 * (a + b)
+    fm = mag(m)
+    num = (m - c) ** 2 * (fm - fd) - (m - d) ** 2 * (fm - fc)
+    den = (m - c) * (fm - fd) - (m - d) * (fm - fc)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        vertex = m - 0.5 * num / den
+    ok = np.isfinite(vertex) & (vertex >= a) & (vertex <= b) & (fm <= np.maximum(fc, fd))
+    out = np.where(ok, vertex, m)
     return np.where(missing, np.nan, out)
 
 
@@ -292,7 +304,8 @@ def playing_frequencies(
     A coarse logarithmic grid (step ``options.grid_step_ratio``) from a quarter of the
     half-wave frequency of the whole bore to ``max_hz``; minima of ``|Z|`` with a prominence of
     at least a factor 1.5 (scipy.signal.find_peaks on ``-log |Z|``) are taken in rising order and
-    refined by :func:`refine_minima` between their grid neighbours.
+    refined by :func:`refine_minima` (20 golden-section steps and a parabola) between their grid
+    neighbours.
 
     Parameters
     ----------
@@ -323,7 +336,7 @@ def playing_frequencies(
         for k, p in enumerate(peaks[:registers]):
             lo[i, k] = grid[max(p - 1, 0)]
             hi[i, k] = grid[min(p + 1, n_grid - 1)]
-    freq = refine_minima(geometry, states, lo, hi, air, options)
+    freq = refine_minima(geometry, states, lo, hi, air, options, 20)
     safe = np.where(np.isfinite(freq), freq, 100.0)
     z_top_bore = air.density_kg_m3 * air.speed_m_s / (math.pi * (geometry.bore_mm[0][1] / 2000.0) ** 2)
     depth = np.abs(input_impedance(geometry, states, safe, air, options)) / z_top_bore
