@@ -4,8 +4,12 @@ from __future__ import annotations
 
 import argparse
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from bench.errors import SettingsError
+
+if TYPE_CHECKING:
+    from bench.model.geometry import Geometry
 
 _GEOMETRY_HELP = "geometry .toml, or a built-in: wren-alto, wren-soprano"
 
@@ -81,6 +85,18 @@ def _check(args: argparse.Namespace) -> None:
         raise SettingsError(f"--a4 {args.a4:g} Hz is out of range; give 300-500 Hz (e.g. 440 or 415)")
 
 
+def _with_fingerings(geometry: Geometry) -> Geometry:
+    """The geometry itself, or a GeometryError when it names no fingering to predict."""
+    from bench.errors import GeometryError
+
+    if not geometry.fingerings:
+        example = "x" * len(geometry.holes)
+        raise GeometryError(
+            f"{geometry.source}: [fingerings]: none given; add a [fingerings] table, e.g. closed = \"{example}\""
+        )
+    return geometry
+
+
 def run_predict(args: argparse.Namespace) -> int:
     from bench.model.acoustics import air_at
     from bench.model.geometry import load_geometry
@@ -89,7 +105,7 @@ def run_predict(args: argparse.Namespace) -> int:
     _check(args)
     if args.csv is not None and args.csv.exists() and not args.overwrite:
         raise SettingsError(f"{args.csv} exists; give --overwrite to replace it or choose another file name")
-    geometry = load_geometry(args.geometry)
+    geometry = _with_fingerings(load_geometry(args.geometry))
     air = air_at(args.temp, args.rh)
     preds = predict(geometry, air, args.registers, a4_hz=args.a4)
     print(f"{geometry.title}: {len(geometry.fingerings)} fingerings, air {air.temp_c:g} degC "
@@ -146,7 +162,7 @@ def run_whatif(args: argparse.Namespace) -> int:
         raise SettingsError("--hole and --diameter go together; give both, e.g. --hole h4 --diameter 6.5")
     if args.hole is None and args.shorten_foot is None and not args.sensitivity:
         raise SettingsError("nothing to try; give --hole LABEL --diameter MM, --shorten-foot MM or --sensitivity")
-    geometry = load_geometry(args.geometry)
+    geometry = _with_fingerings(load_geometry(args.geometry))
     air = air_at(args.temp, args.rh)
     print(f"{geometry.title}: air {air.temp_c:g} degC {air.rh_percent:g} % RH")
     if args.hole is not None:

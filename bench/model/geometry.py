@@ -391,6 +391,8 @@ def parse_geometry_text(text: str, where: str = "<geometry>") -> Geometry:
         label = h.get("label", f"h{i + 1}")
         if not isinstance(label, str) or not label.strip():
             raise r.fail(f"{w}.label", f"{label!r} is not a name; write label = \"h1\"")
+        if any(prev.label == label for prev in holes):
+            raise r.fail(f"{w}.label", f"{label!r} is already the label of another hole; give each hole its own label")
         thumb = h.get("thumb", False)
         if not isinstance(thumb, bool):
             raise r.fail(f"{w}.thumb", f"{thumb!r} is not true or false")

@@ -78,3 +78,10 @@ def test_warmer_air_raises_every_prediction():
 def test_out_of_range_options(args, capsys):
     assert main(["model", "predict", "wren-alto", *args]) == 2
     assert capsys.readouterr().err.startswith("error: ")
+
+
+def test_a_geometry_without_fingerings_says_what_to_add(tmp_path, capsys):
+    geo = tmp_path / "bare.toml"
+    geo.write_text(MINIMAL.split("[fingerings]")[0], encoding="utf-8")
+    assert main(["model", "predict", str(geo)]) == 2
+    assert capsys.readouterr().err == f'error: {geo}: [fingerings]: none given; add a [fingerings] table, e.g. closed = "x"\n'
