@@ -10,6 +10,7 @@ matching volume when asked; ours are compared with both hole models.
 
 from __future__ import annotations
 
+import itertools
 import math
 import warnings
 
@@ -79,4 +80,88 @@ def test_bore_resonances_match_openwind_within_5_cents(note, hole_model):
         ours.append(float(fine[np.argmin(mag)]))
     deviations = [1200 * math.log2(o / r) for o, r in zip(ours, reference, strict=True)]
     print(note, hole_model, [f"{d:+.2f}" for d in deviations])
+    assert max(abs(d) for d in deviations) < 5.0
+
+
+ALTO_BORE_MM = [[0, 19.0], [25, 19.0], [120, 18.2], [220, 16.6], [320, 14.4], [400, 12.6], [425, 12.0], [440, 12.4]]
+
+
+def _openwind_bore(points_mm):
+    return [
+        [z0 / 1000, z1 / 1000, d0 / 2000, d1 / 2000, "linear"]
+        for (z0, d0), (z1, d1) in itertools.pairwise(points_mm)
+    ]
+
+
+def _minima(ic, grid, count):
+    mag = np.abs(ic.impedance)
+    idx = [i for i in range(1, len(grid) - 1) if mag[i] < mag[i - 1] and mag[i] <= mag[i + 1]][:count]
+    found = []
+    for i in idx:
+        fine = np.linspace(grid[i] - 2.0, grid[i] + 2.0, 401)
+        ic.recompute_impedance_at(fine)
+        found.append(float(fine[np.argmin(np.abs(ic.impedance))]))
+    return found
+
+
+def _ours(geometry, pattern, reference, options):
+    states = states_of([pattern]) if pattern else np.zeros((1, 0), dtype=np.int8)
+    air = air_at(TEMP_C, RH_PERCENT, CO2)
+    out = []
+    for f_ref in reference:
+        fine = np.linspace(f_ref - 6.0, f_ref + 6.0, 12001)
+        mag = np.abs(input_impedance(geometry, states, fine, air, options, include_top=False))[0]
+        out.append(float(fine[np.argmin(mag)]))
+    return out
+
+
+def test_conical_bore_matches_openwind_spherical_waves_within_1_cent():
+    # The Wren alto's reversed taper (seven cones and cylinders, no holes), OpenWInD's finite
+    # elements with spherical waves against our cone matrices.
+    grid = np.arange(150.0, 2500.0, 2.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        ic = openwind.ImpedanceComputation(
+            grid, _openwind_bore(ALTO_BORE_MM), temperature=TEMP_C, humidity=RH_PERCENT / 100, carbon=CO2,
+            radiation_category="unflanged", discontinuity_mass=False, spherical_waves=True,
+        )
+        reference = _minima(ic, grid, 4)
+    geometry = parse_geometry_text(
+        f'[instrument]\nname = "cone"\n[bore]\npoints_mm = {ALTO_BORE_MM}\n[top]\nkind = "open"\n'
+    )
+    ours = _ours(geometry, "", reference, ModelOptions())
+    deviations = [1200 * math.log2(o / r) for o, r in zip(ours, reference, strict=True)]
+    print("cone", [f"{d:+.2f}" for d in deviations])
+    assert len(reference) == 4
+    assert max(abs(d) for d in deviations) < 1.0
+
+
+@pytest.mark.parametrize("pattern", ["xxxxxxxx", "xxxxxxxo", "xxxxxxoo", "xxxxoooo", "xxxooooo", "xooooooo"])
+def test_alto_bore_with_holes_matches_openwind_within_5_cents(pattern):
+    # The built-in alto's bore and eight holes (undercuts made plain: OpenWInD's chimneys are
+    # cylinders), Dubos et al. (1999) holes with the matching volume on both sides.
+    from dataclasses import replace
+
+    from bench.model.geometry import builtin_geometry
+
+    alto = builtin_geometry("wren-alto")
+    holes = tuple(replace(h, inner_diameter_mm=h.outer_diameter_mm) for h in alto.holes)
+    geometry = replace(alto, holes=holes, top=replace(alto.top, kind="open"))
+    ow_holes = [["label", "position", "length", "radius"]] + [
+        [h.label, h.position_mm / 1000, h.chimney_mm / 1000, h.outer_diameter_mm / 2000] for h in holes
+    ]
+    chart = [["label", "note"]] + [[h.label, pattern[i]] for i, h in enumerate(holes)]
+    grid = np.arange(150.0, 2500.0, 2.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        ic = openwind.ImpedanceComputation(
+            grid, _openwind_bore(geometry.bore_mm), ow_holes, chart, note="note", temperature=TEMP_C,
+            humidity=RH_PERCENT / 100, carbon=CO2, radiation_category="unflanged", matching_volume=True,
+            discontinuity_mass=False, spherical_waves=True,
+        )
+        reference = _minima(ic, grid, 3)
+    ours = _ours(geometry, pattern, reference, ModelOptions(hole_model="dubos-1999"))
+    deviations = [1200 * math.log2(o / r) for o, r in zip(ours, reference, strict=True)]
+    print("alto", pattern, [f"{d:+.2f}" for d in deviations])
+    assert len(reference) == 3
     assert max(abs(d) for d in deviations) < 5.0
