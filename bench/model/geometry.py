@@ -402,6 +402,8 @@ def parse_geometry_text(text: str, where: str = "<geometry>") -> Geometry:
     fingerings: list[Fingering] = []
     for fname, value in fing_t.items():
         w = f"fingerings.{fname}"
+        if not _NAME_RE.match(fname) or len(fname) > 40:
+            raise r.fail(w, "a fingering's name is letters, digits, #, ., - or _ (a note such as \"G#5\", or a word)")
         register = 1
         if isinstance(value, dict):
             r.only(value, _FINGERING_KEYS, w)

@@ -64,6 +64,7 @@ def test_window_undercut_thumb_and_register_keys():
         (("chimney_mm = 3.0", 'chimney_mm = "3"'), r"holes\[0\]\.chimney_mm: '3' is not a number"),
         (('name = "test-tube"', 'name = "test-tube'), r"w\.toml: line 2: not valid TOML"),
         (("[top]\nkind", "[tops]\nkind"), r"tops: unknown section"),
+        (('open = "o"', '"=SUM(A1)" = "o"'), r"fingerings\.=SUM\(A1\): a fingering's name is letters"),
         (("chimney_mm = 3.0\n[fingerings]", ('chimney_mm = 3.0\nlabel = "a"\n[[holes]]\nposition_mm = 250.0\n'
                                               'diameter_mm = 5.0\nchimney_mm = 3.0\nlabel = "a"\n[fingerings]')),
          r"holes\[1\]\.label: 'a' is already the label"),
