@@ -51,7 +51,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 def _with_default_command(argv: list[str], parser: argparse.ArgumentParser) -> list[str]:
     commands = set()
-    for action in parser._subparsers._group_actions if parser._subparsers else ():
+    for action in parser._subparsers._group_actions if parser._subparsers else ():  # noqa: SLF001
         commands.update(getattr(action, "choices", {}) or {})
     if argv and (argv[0] in commands or argv[0] in ("-h", "--help", "--version")):
         return argv
