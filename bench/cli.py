@@ -19,6 +19,7 @@ COMMAND_MODULES = (
     "bench.commands.notes",  # notes, temperaments
     "bench.commands.analyze",
     "bench.commands.chart",  # chart, compare
+    "bench.commands.model",  # model predict|fit|whatif
 )
 DEFAULT_COMMAND = "run"
 

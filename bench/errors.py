@@ -19,3 +19,7 @@ class DeviceError(BenchError):
 
 class LogError(BenchError):
     """The session log cannot be written."""
+
+
+class GeometryError(BenchError, ValueError):
+    """An instrument geometry file is missing, malformed or describes an impossible instrument."""

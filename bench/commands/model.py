@@ -1,0 +1,179 @@
+"""``bench model predict|fit|whatif GEOMETRY``: the instrument model from the command line."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+from bench.errors import SettingsError
+
+if TYPE_CHECKING:
+    from bench.model.geometry import Geometry
+
+_GEOMETRY_HELP = "geometry .toml, or a built-in: wren-alto, wren-soprano"
+
+
+def _air_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--temp", type=float, default=25.0, metavar="C",
+                   help="air temperature in the bore, degC (default 25: a bore warmed by breath)")
+    p.add_argument("--rh", type=float, default=60.0, metavar="PERCENT",
+                   help="relative humidity in the bore, percent (default 60)")
+    p.add_argument("--a4", type=float, default=440.0, metavar="HZ", help="pitch standard of the targets (default 440)")
+    p.add_argument("--registers", type=int, default=3, metavar="N", help="modes per fingering (default 3)")
+
+
+def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
+    m = sub.add_parser(
+        "model",
+        help="instrument model: predict every note from a geometry, fit it to captures, try changes",
+        description="The acoustic model of a duct flute: bore, window and tone holes as transfer "
+        "matrices; the playing frequencies are the resonances seen from the blown end.",
+    )
+    msub = m.add_subparsers(dest="model_command", metavar="ACTION", required=True)
+
+    p = msub.add_parser(
+        "predict",
+        help="predicted frequency of every fingering in every register",
+        description="Predict the playing frequency of every fingering of GEOMETRY in registers "
+        "1..N, and its cents from the note the fingering is named after.",
+    )
+    p.add_argument("geometry", metavar="GEOMETRY", help=_GEOMETRY_HELP)
+    _air_options(p)
+    p.add_argument("--csv", type=Path, metavar="OUT.csv", help="also write the table as CSV")
+    p.add_argument("--overwrite", action="store_true", help="replace OUT.csv if it exists")
+    p.set_defaults(func=run_predict)
+
+    f = msub.add_parser(
+        "fit",
+        help="fit the model to captured notes: window end correction, bore warming, hole sizes",
+        description="Fit a few model parameters to the latest capture of each note and register "
+        "in CAPTURES (a captures file written by bench): the window's end correction, how much "
+        "warmer the bore is than the room, one offset per register and each hole's effective "
+        "diameter, each with a prior. Prints the residual of every note and each parameter with "
+        "its uncertainty, and says which ones the captures do not pin down.",
+    )
+    f.add_argument("geometry", metavar="GEOMETRY", help=_GEOMETRY_HELP)
+    f.add_argument("captures", type=Path, metavar="CAPTURES.csv", help="captures file (<log>.captures.csv)")
+    f.add_argument("--rh", type=float, default=60.0, metavar="PERCENT",
+                   help="humidity in the bore where a capture names none (default 60)")
+    f.add_argument("--save", type=Path, metavar="FITTED.toml",
+                   help="write the geometry with the fitted end correction and effective hole diameters")
+    f.add_argument("--overwrite", action="store_true", help="replace FITTED.toml if it exists")
+    f.set_defaults(func=run_fit)
+
+    w = msub.add_parser(
+        "whatif",
+        help="predicted change of every note from enlarging a hole or shortening the foot",
+        description="Predict what a change does to every fingering in every register, in cents: "
+        "--hole LABEL --diameter MM bores a hole to a new diameter, --shorten-foot MM cuts the "
+        "foot; --sensitivity prints cents per 0.1 mm of every hole's diameter for every note.",
+    )
+    w.add_argument("geometry", metavar="GEOMETRY", help=_GEOMETRY_HELP)
+    w.add_argument("--hole", metavar="LABEL", help="hole to change (its label, e.g. h4)")
+    w.add_argument("--diameter", type=float, metavar="MM", help="its new diameter, mm")
+    w.add_argument("--shorten-foot", type=float, metavar="MM", help="cut this much off the foot, mm")
+    w.add_argument("--sensitivity", action="store_true", help="cents per 0.1 mm for every hole and note")
+    _air_options(w)
+    w.set_defaults(func=run_whatif)
+
+
+def _check(args: argparse.Namespace) -> None:
+    if not 1 <= args.registers <= 6:
+        raise SettingsError(f"--registers {args.registers} is out of range; give 1 to 6")
+    if not 300.0 <= args.a4 <= 500.0:
+        raise SettingsError(f"--a4 {args.a4:g} Hz is out of range; give 300-500 Hz (e.g. 440 or 415)")
+
+
+def _with_fingerings(geometry: Geometry) -> Geometry:
+    """The geometry itself, or a GeometryError when it names no fingering to predict."""
+    from bench.errors import GeometryError
+
+    if not geometry.fingerings:
+        example = "x" * len(geometry.holes)
+        raise GeometryError(
+            f"{geometry.source}: [fingerings]: none given; add a [fingerings] table, e.g. closed = \"{example}\""
+        )
+    return geometry
+
+
+def run_predict(args: argparse.Namespace) -> int:
+    from bench.model.acoustics import air_at
+    from bench.model.geometry import load_geometry
+    from bench.model.predict import format_predictions, predict, write_predictions_csv
+
+    _check(args)
+    if args.csv is not None and args.csv.exists() and not args.overwrite:
+        raise SettingsError(f"{args.csv} exists; give --overwrite to replace it or choose another file name")
+    geometry = _with_fingerings(load_geometry(args.geometry))
+    air = air_at(args.temp, args.rh)
+    preds = predict(geometry, air, args.registers, a4_hz=args.a4)
+    print(f"{geometry.title}: {len(geometry.fingerings)} fingerings, air {air.temp_c:g} degC "
+          f"{air.rh_percent:g} % RH (c = {air.speed_m_s:.2f} m/s), A4 = {args.a4:g} Hz")
+    print(format_predictions(preds), end="")
+    if args.csv is not None:
+        print(f"predictions written to {write_predictions_csv(preds, args.csv, args.overwrite)}")
+    return 0
+
+
+def run_fit(args: argparse.Namespace) -> int:
+    from bench.model.fit import (
+        fit_model,
+        fitted_geometry,
+        format_fit,
+        targets_from_captures,
+    )
+    from bench.model.geometry import geometry_to_toml, load_geometry
+    from bench.model.predict import write_text_new
+    from bench.workflow.captures import read_captures
+
+    if args.save is not None and args.save.exists() and not args.overwrite:
+        raise SettingsError(f"{args.save} exists; give --overwrite to replace it or choose another file name")
+    geometry = load_geometry(args.geometry)
+    targets = targets_from_captures(read_captures(args.captures), geometry, default_rh=args.rh)
+    result = fit_model(geometry, targets)
+    print(f"{geometry.title}: fitted to {len(targets)} captured notes of {args.captures}")
+    print(format_fit(result), end="")
+    if args.save is not None:
+        offsets = ", ".join(f"register {k} {v:+.1f} c" for k, v in result.offsets_cents.items())
+        header = (
+            f"{geometry.title}, fitted by bench to {args.captures} ({len(targets)} notes).\n"
+            f"Hole diameters are effective ones; the bore was {result.warming_c:.1f} degC above the room; "
+            f"offsets: {offsets or 'none'}."
+        )
+        print(f"fitted geometry written to {write_text_new(args.save, geometry_to_toml(fitted_geometry(result), header), args.overwrite)}")
+    return 0
+
+
+def run_whatif(args: argparse.Namespace) -> int:
+    from bench.model.acoustics import air_at
+    from bench.model.geometry import load_geometry
+    from bench.model.whatif import (
+        enlarge_hole,
+        format_change,
+        format_sensitivity,
+        predict_change,
+        sensitivity,
+        shorten_foot,
+    )
+
+    _check(args)
+    if (args.hole is None) != (args.diameter is None):
+        raise SettingsError("--hole and --diameter go together; give both, e.g. --hole h4 --diameter 6.5")
+    if args.hole is None and args.shorten_foot is None and not args.sensitivity:
+        raise SettingsError("nothing to try; give --hole LABEL --diameter MM, --shorten-foot MM or --sensitivity")
+    geometry = _with_fingerings(load_geometry(args.geometry))
+    air = air_at(args.temp, args.rh)
+    print(f"{geometry.title}: air {air.temp_c:g} degC {air.rh_percent:g} % RH")
+    if args.hole is not None:
+        changed = enlarge_hole(geometry, args.hole, args.diameter)
+        old = next(h for h in geometry.holes if h.label == args.hole).outer_diameter_mm
+        desc = f"hole {args.hole} from {old:g} to {args.diameter:g} mm: change in cents"
+        print(format_change(predict_change(geometry, changed, desc, air, args.registers)), end="")
+    if args.shorten_foot is not None:
+        changed = shorten_foot(geometry, args.shorten_foot)
+        desc = f"foot shortened by {args.shorten_foot:g} mm: change in cents"
+        print(format_change(predict_change(geometry, changed, desc, air, args.registers)), end="")
+    if args.sensitivity:
+        print(format_sensitivity(*sensitivity(geometry, air, args.registers)), end="")
+    return 0

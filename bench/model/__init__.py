@@ -1,0 +1,1 @@
+"""The instrument model: geometry files, duct-flute acoustics, predictions and fits."""

@@ -1,0 +1,195 @@
+"""What a change to the instrument would do, before wood comes off.
+
+Two kinds of change: a tone hole enlarged (or reduced) to a new diameter, and the foot
+shortened. Each gives the predicted change in cents of every fingering in every register. The
+sensitivity table gives, for every hole, the change in cents of every fingering and register
+per 0.1 mm more diameter (a one-sided difference of the model).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+from numpy.typing import NDArray
+
+from bench.errors import SettingsError
+from bench.model.acoustics import Air
+from bench.model.geometry import Geometry, Hole
+from bench.model.instrument import (
+    ModelOptions,
+    playing_frequencies,
+    refine_minima,
+    states_of,
+)
+
+__all__ = [
+    "Change",
+    "enlarge_hole",
+    "format_change",
+    "format_sensitivity",
+    "predict_change",
+    "sensitivity",
+    "shorten_foot",
+]
+
+_BRACKET = 0.08  # relative half-width of the search around the unchanged frequency
+
+
+@dataclass(frozen=True, slots=True)
+class Change:
+    """Predicted effect of a change.
+
+    Attributes
+    ----------
+    description : str
+    fingerings : tuple of str
+    before_hz, after_hz : float ndarray, shape (F, K), Hz
+    """
+
+    description: str
+    fingerings: tuple[str, ...]
+    before_hz: NDArray[np.float64]
+    after_hz: NDArray[np.float64]
+
+    @property
+    def cents(self) -> NDArray[np.float64]:
+        """After minus before, cents, shape (F, K)."""
+        out: NDArray[np.float64] = 1200.0 * np.log2(self.after_hz / self.before_hz)
+        return out
+
+
+def _hole_index(geometry: Geometry, label: str) -> int:
+    for i, h in enumerate(geometry.holes):
+        if h.label == label:
+            return i
+    raise SettingsError(
+        f"no hole {label!r} in {geometry.name}; use one of {', '.join(h.label for h in geometry.holes)}"
+    )
+
+
+def enlarge_hole(geometry: Geometry, label: str, diameter_mm: float) -> Geometry:
+    """The geometry with hole ``label`` bored to ``diameter_mm`` (inner and outer alike unless
+    undercut, where the outer grows and the undercut's excess is kept).
+
+    Raises
+    ------
+    SettingsError
+        Unknown hole, or a diameter not between 0.5 mm and the bore.
+    """
+    i = _hole_index(geometry, label)
+    hole = geometry.holes[i]
+    bore_d = geometry.diameter_at(hole.position_mm)
+    if not (math.isfinite(diameter_mm) and 0.5 <= diameter_mm < bore_d):
+        raise SettingsError(
+            f"diameter {diameter_mm:g} mm for hole {label} is out of range; give 0.5 mm to less than the bore ({bore_d:.3g} mm)"
+        )
+    excess = hole.inner_diameter_mm - hole.outer_diameter_mm
+    inner = min(diameter_mm + max(excess, 0.0), bore_d * 0.999)
+    new = replace(hole, inner_diameter_mm=inner, outer_diameter_mm=diameter_mm)
+    holes = geometry.holes[:i] + (new,) + geometry.holes[i + 1:]
+    return replace(geometry, holes=holes)
+
+
+def shorten_foot(geometry: Geometry, cut_mm: float) -> Geometry:
+    """The geometry with ``cut_mm`` taken off the foot (the bore ends shorter).
+
+    Raises
+    ------
+    SettingsError
+        A cut that is not positive or that reaches the lowest hole.
+    """
+    new_len = geometry.length_mm - cut_mm
+    lowest = max((h.position_mm + h.inner_diameter_mm for h in geometry.holes), default=0.0)
+    if not (math.isfinite(cut_mm) and cut_mm > 0 and new_len > max(lowest, 1.0)):
+        raise SettingsError(
+            f"cutting {cut_mm:g} mm off the foot is out of range; give more than 0 and less than "
+            f"{geometry.length_mm - max(lowest, 1.0):.1f} mm (the lowest hole must stay inside)"
+        )
+    pts = [(z, d) for z, d in geometry.bore_mm if z < new_len]
+    pts.append((new_len, geometry.diameter_at(new_len)))
+    return replace(geometry, bore_mm=tuple(pts))
+
+
+def _after(
+    changed: Geometry, patterns: list[str], before_hz: NDArray[np.float64], air: Air, options: ModelOptions
+) -> NDArray[np.float64]:
+    """Resonances of the changed geometry near the unchanged ones."""
+    states = states_of(patterns) if changed.holes else np.zeros((len(patterns), 0), dtype=np.int8)
+    return refine_minima(changed, states, before_hz * (1 - _BRACKET), before_hz * (1 + _BRACKET), air, options, 34)
+
+
+def predict_change(
+    geometry: Geometry,
+    changed: Geometry,
+    description: str,
+    air: Air,
+    registers: int = 3,
+    options: ModelOptions | None = None,
+) -> Change:
+    """Predicted frequencies of every fingering before and after a change.
+
+    The changed geometry's modes are searched within 8 % of the unchanged ones, so that mode k
+    stays mode k (a change of more than a semitone and a third is followed only that far).
+    """
+    options = options or ModelOptions()
+    patterns = [f.holes for f in geometry.fingerings]
+    before = playing_frequencies(geometry, patterns, air, registers, options).freq_hz
+    after = _after(changed, patterns, before, air, options)
+    return Change(description, tuple(f.name for f in geometry.fingerings), before, after)
+
+
+def sensitivity(
+    geometry: Geometry, air: Air, registers: int = 3, step_mm: float = 0.1, options: ModelOptions | None = None
+) -> tuple[tuple[str, ...], tuple[str, ...], NDArray[np.float64]]:
+    """Cents per ``step_mm`` more diameter, for every hole, fingering and register.
+
+    Returns
+    -------
+    holes : tuple of str
+        Hole labels.
+    fingerings : tuple of str
+    cents : float ndarray, shape (holes, fingerings, registers), cents per ``step_mm``
+    """
+    options = options or ModelOptions()
+    patterns = [f.holes for f in geometry.fingerings]
+    before = playing_frequencies(geometry, patterns, air, registers, options).freq_hz
+    table = np.empty((len(geometry.holes), len(patterns), registers))
+    for i, hole in enumerate(geometry.holes):
+        bigger = _grow(hole, step_mm)
+        changed = replace(geometry, holes=geometry.holes[:i] + (bigger,) + geometry.holes[i + 1:])
+        table[i] = 1200.0 * np.log2(_after(changed, patterns, before, air, options) / before)
+    return tuple(h.label for h in geometry.holes), tuple(f.name for f in geometry.fingerings), table
+
+
+def _grow(hole: Hole, step_mm: float) -> Hole:
+    """The hole with both diameters larger by ``step_mm``."""
+    return replace(hole, inner_diameter_mm=hole.inner_diameter_mm + step_mm,
+                   outer_diameter_mm=hole.outer_diameter_mm + step_mm)
+
+
+def format_change(change: Change) -> str:
+    """Text table: fingering, then the change in cents per register."""
+    k = change.before_hz.shape[1]
+    lines = [change.description, f"{'fingering':<10}" + "".join(f"{f'R{r + 1} c':>9}" for r in range(k))]
+    cents = change.cents
+    for name, row in zip(change.fingerings, cents, strict=True):
+        cells = "".join(f"{c:+9.1f}" if math.isfinite(c) else f"{'-':>9}" for c in row)
+        lines.append(f"{name:<10}{cells}")
+    return "\n".join(lines) + "\n"
+
+
+def format_sensitivity(
+    holes: tuple[str, ...], fingerings: tuple[str, ...], table: NDArray[np.float64], step_mm: float = 0.1
+) -> str:
+    """Text table per register: rows fingerings, columns holes, cents per ``step_mm``."""
+    lines: list[str] = []
+    for r in range(table.shape[2]):
+        lines.append(f"register {r + 1}: cents per {step_mm:g} mm more hole diameter")
+        lines.append(f"{'fingering':<10}" + "".join(f"{h:>8}" for h in holes))
+        for j, name in enumerate(fingerings):
+            cells = "".join(f"{table[i, j, r]:+8.2f}" if math.isfinite(table[i, j, r]) else f"{'-':>8}" for i in range(len(holes)))
+            lines.append(f"{name:<10}{cells}")
+        lines.append("")
+    return "\n".join(lines)

@@ -1,0 +1,66 @@
+"""What-if: enlarging a hole, shortening the foot, the sensitivity table."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from bench.cli import main
+from bench.errors import SettingsError
+from bench.model.acoustics import air_at
+from bench.model.geometry import builtin_geometry, parse_geometry_text
+from bench.model.instrument import ModelOptions
+from bench.model.whatif import enlarge_hole, predict_change, sensitivity, shorten_foot
+
+AIR = air_at(25.0, 60.0)
+
+
+def test_shortening_an_ideal_tube_follows_the_half_wave_law():
+    # Fletcher & Rossing (1998), ch. 8: f = n c / 2L for an ideal open-open pipe, so cutting
+    # 600 mm to 588 mm raises every mode by 1200 log2(600 / 588) cents.
+    g = parse_geometry_text('[instrument]\nname = "t"\n[bore]\npoints_mm = [[0, 14.0], [600, 14.0]]\n[top]\nkind = "open"\n'
+                            '[fingerings]\nplain = ""\n')
+    change = predict_change(g, shorten_foot(g, 12.0), "cut", AIR, 3, ModelOptions(losses=False, radiation="ideal"))
+    assert np.allclose(change.cents, 1200 * math.log2(600 / 588), atol=0.01)
+
+
+def test_enlarging_a_hole_raises_the_notes_it_vents_and_barely_moves_the_others():
+    # *common practice*: a larger open tone hole raises the note it ends; notes fingered with
+    # the hole closed hardly move.
+    g = builtin_geometry("wren-alto")
+    change = predict_change(g, enlarge_hole(g, "h4", 7.4), "h4", AIR, registers=1)
+    by_name = dict(zip(change.fingerings, change.cents[:, 0], strict=True))
+    assert by_name["C5"] > 5.0  # h4 is the first open hole of C5
+    assert abs(by_name["F4"]) < 1.0 and abs(by_name["A4"]) < 1.0  # h4 closed
+
+
+def test_sensitivity_matches_a_direct_change_and_smaller_holes_fall():
+    g = builtin_geometry("wren-alto")
+    holes, names, table = sensitivity(g, AIR, registers=1)
+    i, j = holes.index("h7"), names.index("G4")
+    direct = predict_change(g, enlarge_hole(g, "h7", g.holes[i].outer_diameter_mm + 0.1), "d", AIR, 1)
+    assert table[i, j, 0] == pytest.approx(direct.cents[j, 0], abs=1e-3)
+    # *common practice*: the note falls as its hole shrinks, i.e. rises as it grows
+    assert table[i, j, 0] > 0.5
+
+
+@pytest.mark.parametrize(
+    ("call", "match"),
+    [
+        (lambda g: enlarge_hole(g, "h9", 6.0), r"no hole 'h9' in wren-alto; use one of thumb, h1"),
+        (lambda g: enlarge_hole(g, "h4", 30.0), r"diameter 30 mm for hole h4 is out of range"),
+        (lambda g: shorten_foot(g, 200.0), r"cutting 200 mm off the foot is out of range"),
+    ],
+)
+def test_bad_changes_are_one_line(call, match):
+    with pytest.raises(SettingsError, match=match):
+        call(builtin_geometry("wren-alto"))
+
+
+def test_whatif_command_needs_something_to_try(capsys):
+    assert main(["model", "whatif", "wren-alto"]) == 2
+    assert "nothing to try" in capsys.readouterr().err
+    assert main(["model", "whatif", "wren-alto", "--hole", "h4"]) == 2
+    assert "--hole and --diameter go together" in capsys.readouterr().err
