@@ -29,7 +29,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.optimize import least_squares  # type: ignore[import-untyped]
+from scipy.optimize import least_squares
 
 from bench.errors import SettingsError
 from bench.model.acoustics import air_at
@@ -40,8 +40,8 @@ from bench.model.instrument import (
     refine_minima,
     states_of,
 )
+from bench.tuning.notes import note_name, parse_note
 from bench.workflow.captures import Capture
-from bench.workflow.notenames import note_name, parse_note
 
 __all__ = [
     "PINNED_FRACTION",

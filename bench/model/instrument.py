@@ -20,7 +20,7 @@ from itertools import pairwise
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.signal import find_peaks  # type: ignore[import-untyped]
+from scipy.signal import find_peaks
 
 from bench.model.acoustics import (
     Air,

@@ -22,7 +22,7 @@ from bench.errors import SettingsError
 from bench.model.acoustics import Air
 from bench.model.geometry import Geometry
 from bench.model.instrument import ModelOptions, playing_frequencies
-from bench.workflow.notenames import freq_of_midi, note_name, parse_note
+from bench.tuning.notes import note_name, parse_note
 
 __all__ = [
     "PREDICTION_COLUMNS",
@@ -89,7 +89,7 @@ def target_hz_of(name: str, register: int, mode: int, a4_hz: float = 440.0) -> f
         midi = parse_note(name)
     except SettingsError:
         return None
-    return freq_of_midi(midi, a4_hz) * mode / register
+    return float(a4_hz * 2.0 ** ((midi - 69) / 12)) * mode / register  # 12-TET (ISO 16 on A4)
 
 
 def _nearest(freq_hz: float, a4_hz: float) -> tuple[str, float]:

@@ -16,8 +16,8 @@ from bench.model.acoustics import air_at
 from bench.model.fit import fit_model, targets_from_captures
 from bench.model.geometry import builtin_geometry, load_geometry
 from bench.model.instrument import ModelOptions, playing_frequencies
+from bench.tuning.notes import parse_note
 from bench.workflow.captures import Capture, read_captures, write_captures
-from bench.workflow.notenames import freq_of_midi, parse_note
 
 ROOM_C, RH = 21.0, 50.0
 TRUE_EC_MM, TRUE_WARMING_C = 7.3, 4.0
@@ -27,7 +27,7 @@ NOTES = ["F4", "G4", "A4", "Bb4", "C5", "D5", "E5", "F#5", "G#5", "A5", "C6", "D
 
 def _capture(index: int, name: str, register: int, f0_hz: float) -> Capture:
     midi = parse_note(name)
-    target = freq_of_midi(midi)
+    target = 440.0 * 2.0 ** ((midi - 69) / 12)  # 12-TET on A4 = 440 Hz (ISO 16)
     return Capture(
         index=index, label="", source="manual", note=name, midi=midi, register=register, mode=None, jump="",
         start_s=0.0, end_s=1.0, frames=50, cents=0.0, cents_spread=1.0,

@@ -52,7 +52,7 @@ def test_bad_geometry_is_one_error_line(tmp_path, capsys):
 def test_builtin_geometries_cover_their_compass_with_note_names(name, profile):
     # Fingerings are keyed by the note names of the family profiles (bench.workflow.profiles):
     # one per note of the compass, each in the register the profile puts its note in.
-    from bench.workflow.notenames import parse_note
+    from bench.tuning.notes import parse_note
 
     g = builtin_geometry(name)
     prof = get_profile(profile)
