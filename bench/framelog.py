@@ -65,7 +65,10 @@ def number_cell(value: float | None, digits: int) -> str:
     """
     if value is None or not math.isfinite(value):
         return "" if value is None or math.isnan(value) else ("-inf" if value < 0 else "inf")
-    return f"{value:.{digits}f}"
+    return _FIXED[digits](value) if digits in _FIXED else f"{value:.{digits}f}"
+
+
+_FIXED = {d: f"{{:.{d}f}}".format for d in range(7)}  # a bound format per precision: no spec parsing per cell
 
 
 def frame_row(reading: Reading) -> list[str]:

@@ -49,11 +49,24 @@ class SettingsKey:
 
     @classmethod
     def of(cls, settings: TuningSettings) -> SettingsKey:
-        """The key of a :class:`~bench.tuning.TuningSettings`."""
-        return cls(
+        """The key of a :class:`~bench.tuning.TuningSettings`.
+
+        The same settings object gives the same key object, so that the readings of a held
+        note compare their keys by identity (consumers compare keys on every reading).
+        """
+        global _KEY_CACHE
+        cached = _KEY_CACHE  # one tuple, read and replaced whole: safe from any thread
+        if cached is not None and cached[0] is settings:
+            return cached[1]
+        key = cls(
             settings.temperament, settings.tonic, settings.a4_hz, settings.temp_c,
             settings.ref_temp_c, settings.rh_percent,
         )  # fmt: skip
+        _KEY_CACHE = (settings, key)
+        return key
+
+
+_KEY_CACHE: tuple[TuningSettings, SettingsKey] | None = None
 
 
 def map_or_none(freq_hz: float | None, settings: TuningSettings, locked_midi: int | None = None) -> NoteMapping | None:
