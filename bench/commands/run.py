@@ -8,7 +8,6 @@ cents, register events), the frame log on disk, and Ctrl-C leaves a complete log
 from __future__ import annotations
 
 import argparse
-import inspect
 import queue
 import sys
 import time
@@ -27,7 +26,9 @@ from bench.errors import (
 from bench.tuning import TuningSettings
 
 if TYPE_CHECKING:
-    from bench.engine import EngineEvent
+    from bench.airtemp import AirTemperatureFollower
+    from bench.engine import Engine, EngineEvent
+    from bench.sources.base import AudioSource
 
 INPUT_HELP = "mic (default for run), demo (the built-in instrument), or an audio FILE"
 TEMP_INTERVAL_S = 5.0
@@ -96,7 +97,7 @@ def _say(message: str) -> None:
     write_line(message, sys.stderr)  # a closed stderr stops the messages, not the run
 
 
-def build_source(args: argparse.Namespace, *, realtime_file: bool) -> tuple[Any, str | None]:
+def build_source(args: argparse.Namespace, *, realtime_file: bool) -> tuple[AudioSource, str | None]:
     """The source ``--input`` names, and a one-line notice when a missing microphone made
     it fall back to the demo instrument (None otherwise)."""
     from bench.sources.base import DEFAULT_BLOCK_SIZE
@@ -204,7 +205,9 @@ def run_command(args: argparse.Namespace) -> int:
     return _run_screen(args, source, settings, log_path, log_rate, notice)
 
 
-def _start_follower(args: argparse.Namespace, engine: Any, report: Callable[[str], None]) -> Any:
+def _start_follower(
+    args: argparse.Namespace, engine: Engine, report: Callable[[str], None]
+) -> AirTemperatureFollower | None:
     if args.temp_source is None:
         return None
     from bench.airtemp import AirTemperatureFollower, AirTemperatureSource
@@ -261,8 +264,8 @@ def _prepare_analyser() -> None:
 
 
 def _start_engine(
-    make: Callable[[Any], Any], source: Any, args: argparse.Namespace
-) -> tuple[Any, str | None]:
+    make: Callable[[AudioSource], Engine], source: AudioSource, args: argparse.Namespace
+) -> tuple[Engine, str | None]:
     """Build and start the engine; an unusable default microphone falls back to the demo.
 
     Returns the engine and a one-line notice when it fell back (None otherwise).
@@ -275,7 +278,7 @@ def _start_engine(
             raise
         from bench.sources.demo import DemoSource
 
-        engine = make(DemoSource(source.sample_rate, block_size=getattr(source, "block_size", 512)))
+        engine = make(DemoSource(source.sample_rate, block_size=source.block_size))
         engine.start()
         return engine, f"{exc}; playing the demo instrument instead"
     return engine, None
@@ -283,7 +286,7 @@ def _start_engine(
 
 def _run_screen(
     args: argparse.Namespace,
-    source: Any,
+    source: AudioSource,
     settings: TuningSettings,
     log_path: Path | None,
     log_rate: float | None,
@@ -307,15 +310,14 @@ def _run_screen(
     notice = fallback or notice
     follower = _start_follower(args, engine, lambda message: _tell_screen(engine, f"air temperature: {message}"))
     try:
-        accepted = inspect.signature(run_app).parameters
-        extras = {
-            "log_dir": args.log_dir or default_log_dir(),
-            "temp_follower": follower,
-            "notice": notice,
-            "profile": args.profile,
-            "label": args.label,
-        }
-        result = run_app(engine, **{k: v for k, v in extras.items() if k in accepted})
+        result = run_app(
+            engine,
+            log_dir=args.log_dir or default_log_dir(),
+            temp_follower=follower,
+            notice=notice,
+            profile=args.profile,
+            label=args.label,
+        )
     finally:
         if follower is not None:
             follower.stop()
@@ -325,7 +327,7 @@ def _run_screen(
 
 def _run_unattended(
     args: argparse.Namespace,
-    source: Any,
+    source: AudioSource,
     settings: TuningSettings,
     log_path: Path | None,
     log_rate: float | None,
@@ -475,7 +477,7 @@ def _restore_sigterm(previous: Any) -> None:
         signal.signal(signum, handler)
 
 
-def _tell_screen(engine: Any, message: str) -> None:
+def _tell_screen(engine: Engine, message: str) -> None:
     """Pass a problem to the screen through the engine's event handler (set by the app)."""
     from bench.engine import EngineEvent
 
@@ -485,7 +487,7 @@ def _tell_screen(engine: Any, message: str) -> None:
         handler(EngineEvent("source_error", message, latest.stream_time_s if latest else 0.0))
 
 
-def _is_live(engine: Any) -> bool:
+def _is_live(engine: Engine) -> bool:
     """True for a microphone or a real-time paced source (wall time counts too)."""
-    return bool(getattr(engine.source, "realtime", True))
+    return engine.source.realtime
 

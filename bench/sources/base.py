@@ -42,13 +42,23 @@ class AudioSource(Protocol):
     input_latency_s : float >= 0, seconds
         Delay the driver reports between sound reaching the input and its block being
         handed out (0 for a file or the demo).
+    block_size : int, samples
+        Samples per block handed out (the last block of a file may be shorter).
+    realtime : bool
+        Blocks come at the pace of real time (a microphone; a paced file or the demo), not as
+        fast as they are read.
     """
 
     sample_rate: int
-    dropped_blocks: int
     ended: bool
     description: str
     input_latency_s: float
+    block_size: int
+    realtime: bool
+
+    @property
+    def dropped_blocks(self) -> int:
+        """Blocks lost so far (an attribute or a property)."""
 
     def start(self) -> None:
         """Open the source and begin delivering blocks; raises ``DeviceError`` or

@@ -326,6 +326,7 @@ class MicSource:
             raise DeviceError(f"mix_channels {mix_channels} must be at least 1")
         self.device_spec = device
         self.block_size = int(block_size)
+        self.realtime = True  # a sound card delivers at the pace of the sound
         self.mix_channels = int(mix_channels)
         self.stall_timeout_s = float(stall_timeout_s)
         self._requested_rate = sample_rate
