@@ -41,6 +41,23 @@ class CaptureLine(LineView):
     """Why captures are not written to file ("" while all is well)."""
 
     def render(self) -> Text:
+        # Whole items only: on a narrow line the instrument goes first, then the label is
+        # shortened, then "unchecked" -- never a word cut in two.
+        width = self.content_size.width
+        label = repr(self.label) if self.label else "(no label)"
+        short_label = label if len(label) <= 16 else repr(self.label[:12] + "\u2026")
+        for instrument, pass_label, unchecked in (
+            (True, label, True),
+            (False, label, True),
+            (False, short_label, True),
+            (False, short_label, False),
+        ):
+            text = self._line(instrument, pass_label, unchecked)
+            if text.cell_len <= width:
+                return text
+        return text
+
+    def _line(self, instrument: bool, pass_label: str, unchecked: bool) -> Text:
         label = self.get_component_rich_style("capture-line--label")
         value = self.get_component_rich_style("capture-line--value")
         alarm = self.get_component_rich_style("capture-line--alarm")
@@ -55,15 +72,17 @@ class CaptureLine(LineView):
         if self.last:
             text.append("  last ", label)
             text.append(self.last, value)
-        text.append("  unchecked ", label)
-        text.append(f"{self.unchecked}/{self.compass}", value)
+        if unchecked:
+            text.append("  unchecked ", label)
+            text.append(f"{self.unchecked}/{self.compass}", value)
         text.append("  pass ", label)
-        text.append(repr(self.label) if self.label else "(no label)", value)
+        text.append(pass_label, value)
         if self.problem:
             text.append("  ")
             text.append(f" captures not saved: {self.problem} ", alarm)
-        text.append("  instrument ", label)
-        text.append(self.instrument or "?", value)
+        if instrument:
+            text.append("  instrument ", label)
+            text.append(self.instrument or "?", value)
         return text
 
 

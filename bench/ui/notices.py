@@ -49,7 +49,10 @@ class NoticeLine(LineView):
         if not self.notices:
             text.append("\u2014", self.get_component_rich_style("notice-line--quiet"))
             return text
+        width = self.content_size.width
         for i, notice in enumerate(self.notices):
+            if i and text.cell_len + 5 + len(notice.text) > width:
+                break  # older notices only where they fit whole (the newest may be cut at the end)
             if i:
                 text.append("  \u00b7  ", self.get_component_rich_style("notice-line--quiet"))
             text.append(notice.text, self.get_component_rich_style(f"notice-line--{notice.severity}"))

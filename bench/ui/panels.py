@@ -52,13 +52,24 @@ class SessionBar(LineView):
 
     def render(self) -> Text:
         # Short, vital items first (state, level, drops, log); the long source description
-        # last, where the line may cut it. A log path too long for the line shows its name.
-        text = self._line(self.log_path)
-        if self.log_path and text.cell_len > self.content_size.width:
-            text = self._line(Path(self.log_path).name)
+        # last. On a narrow line: the log's file name for its path, then the source's first
+        # words, then no source at all -- whole words, never a word cut in two.
+        width = self.content_size.width
+        log_name = Path(self.log_path).name if self.log_path else None
+        source = self.source or "?"
+        short_source = source.split(",")[0].split(" (")[0].split(":")[0]
+        for log_shown, source_shown in (
+            (self.log_path, source),
+            (log_name, source),
+            (log_name, short_source),
+            (log_name, None),
+        ):
+            text = self._line(log_shown, source_shown)
+            if text.cell_len <= width:
+                return text
         return text
 
-    def _line(self, log_shown: str | None) -> Text:
+    def _line(self, log_shown: str | None, source_shown: str | None) -> Text:
         label = self.get_component_rich_style("session-bar--label")
         value = self.get_component_rich_style("session-bar--value")
         alarm = self.get_component_rich_style("session-bar--alarm")
@@ -91,8 +102,9 @@ class SessionBar(LineView):
             # near a whole core, input will soon be dropped
             text.append("  dsp ", label)
             text.append(f"{self.analysis_load_pct:.0f} %", alarm if self.analysis_load_pct >= 80.0 else value)
-        text.append("  source ", label)
-        text.append(self.source or "?", value)
+        if source_shown is not None:
+            text.append("  source ", label)
+            text.append(source_shown, value)
         return text
 
 
@@ -129,10 +141,14 @@ class SettingsPanel(LineView):
             return Text("\n").join(lines)
         lines.append(Text(self.temperament_name or s.temperament, style=value + Style(bold=True)))
         row("tonic", s.tonic + ("   spelt with flats" if s.flats else ""))
+        room = self.content_size.width - 7  # what a row holds after its name
+        a4 = f"{s.a4_hz:.1f} Hz"
         standard = f"  {self.standard_name}" if self.standard_name else ""
-        row("A4", f"{s.a4_hz:.1f} Hz{standard}")
-        humid = f"  {s.rh_percent:.0f}%RH" if s.rh_percent is not None else ""
-        row("air", f"{s.temp_c:.1f}\u00b0C tuned {s.ref_temp_c:.1f}\u00b0C{humid}")
+        row("A4", a4 + standard if len(a4 + standard) <= room else a4)  # the name only where it fits whole
+        air = f"{s.temp_c:.1f}\u00b0C tuned {s.ref_temp_c:.1f}\u00b0C"
+        if s.rh_percent is not None and len(air + f"  {s.rh_percent:.0f}%RH") <= room:
+            air += f"  {s.rh_percent:.0f}%RH"  # (a narrow panel keeps its rows for fix and target)
+        row("air", air)
         row("fix", f"{_signed(self.correction_cents, 'c')} for the air")
         row("target", f"LOCKED {self.locked_note}" if self.locked_note else "nearest note")
         return Text("\n").join(lines)

@@ -93,6 +93,9 @@ class RegisterBanner(LineView):
             middle = look.title if len(look.title) <= width else look.title[:width]
         text = Text(no_wrap=True, overflow="crop", justify="center")
         text.append(border + "\n")
+        if self.content_size.height < 3:  # a short screen: one edge is enough to tell the look
+            text.append(middle.center(width), style="bold")
+            return text
         text.append(middle.center(width) + "\n", style="bold")
         text.append(border)
         return text
