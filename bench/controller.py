@@ -14,7 +14,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Literal
+from typing import Literal, TypeVar
 
 from bench.engine import Engine
 from bench.errors import BenchError, SettingsError
@@ -39,6 +39,7 @@ __all__ = ["LABEL_MAX_CHARS", "Notice", "SessionController", "check_label"]
 LABEL_MAX_CHARS = 80
 """Longest session label, characters."""
 
+_T = TypeVar("_T")
 Severity = Literal["information", "warning", "error"]
 TemperatureField = Literal["temp_c", "ref_temp_c"]
 _WHAT: dict[TemperatureField, str] = {"temp_c": "air temperature", "ref_temp_c": "tuned-at temperature"}
@@ -243,15 +244,21 @@ class SessionController:
             tonic = s.tonic
         return self.change(flats=not s.flats, tonic=tonic)
 
-    def type_a4(self, text: str | None) -> Notice | None:
-        """A typed A4 (Hz, or a standard's name); None text is a cancelled dialog."""
+    @staticmethod
+    def _typed(text: str | None, parse: Callable[[str], _T], apply: Callable[[_T], Notice | None]) -> Notice | None:
+        """A typed value: None (a cancelled dialog) does nothing, a refused one is one error
+        line and changes nothing, an accepted one is applied."""
         if text is None:
             return None
         try:
-            a4_hz = parse_a4(text)
+            value = parse(text)
         except SettingsError as exc:
             return Notice(str(exc), "error")
-        return self.change(a4_hz=a4_hz)
+        return apply(value)
+
+    def type_a4(self, text: str | None) -> Notice | None:
+        """A typed A4 (Hz, or a standard's name); None text is a cancelled dialog."""
+        return self._typed(text, parse_a4, lambda a4_hz: self.change(a4_hz=a4_hz))
 
     def type_temperature(self, field: TemperatureField, text: str | None) -> Notice | None:
         """A typed temperature in degC ("21.5", "21.5 °C"); None text is a cancelled dialog."""
@@ -294,13 +301,7 @@ class SessionController:
 
     def type_lock(self, text: str | None) -> Notice | None:
         """Lock to a typed note ("F4", "Bb5"); a bad name leaves the lock as it was."""
-        if text is None:
-            return None
-        try:
-            midi = parse_note(text)
-        except SettingsError as exc:
-            return Notice(str(exc), "error")
-        return self.lock(midi)
+        return self._typed(text, parse_note, self.lock)
 
     # -- log and captures -------------------------------------------------------------------------
 
@@ -341,12 +342,9 @@ class SessionController:
 
     def type_label(self, text: str | None) -> Notice | None:
         """Put a typed label on the next captures; one too long is refused in one line."""
-        if text is None:
-            return None
-        try:
-            label = check_label(text)
-        except SettingsError as exc:
-            return Notice(str(exc), "error")
+        return self._typed(text, check_label, self._set_label)
+
+    def _set_label(self, label: str) -> Notice | None:
         self.label = label
         if self.workflow is not None:
             self.workflow.label = label
