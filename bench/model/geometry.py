@@ -450,21 +450,14 @@ def load_geometry(path: str | Path) -> Geometry:
     if text_path in BUILTIN_GEOMETRIES:
         return builtin_geometry(text_path)
     p = Path(path)
-    try:
-        size = p.stat().st_size
-        if size > MAX_FILE_BYTES:
-            raise GeometryError(
-                f"{p}: file: {size} bytes is larger than {MAX_FILE_BYTES // 1024} KiB; a geometry is a few KiB, check the file"
-            )
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise GeometryError(
-            f"{p}: file: not found; give a geometry .toml or one of {', '.join(BUILTIN_GEOMETRIES)}"
-        ) from None
-    except UnicodeDecodeError:
-        raise GeometryError(f"{p}: file: not UTF-8 text; save the geometry as UTF-8 TOML") from None
-    except OSError as exc:
-        raise GeometryError(f"{p}: file: cannot be read ({exc.strerror or exc}); check the path") from None
+    if not p.exists() and not p.is_symlink():
+        raise GeometryError(f"{p}: file: not found; give a geometry .toml or one of {', '.join(BUILTIN_GEOMETRIES)}")
+    from bench.safeio import FileRefused, read_text_file
+
+    try:  # bounded, and only a regular file: a pipe or /dev/zero is refused, never read forever
+        text = read_text_file(p, limit_bytes=MAX_FILE_BYTES)
+    except FileRefused as exc:
+        raise GeometryError(f"{p}: file: cannot be used ({exc}); give a geometry .toml") from None
     return parse_geometry_text(text, str(p))
 
 

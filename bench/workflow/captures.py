@@ -105,6 +105,10 @@ if no break was seen), break_level_dbfs (level at the break), then the settings:
 tonic, a4_hz (Hz), temp_c and ref_temp_c (degC), rh_percent (blank: dry air)."""
 
 
+CAPTURES_LIMIT_BYTES = 64 << 20
+"""Largest captures file read, bytes (a capture is a row of about 300 bytes)."""
+
+
 @dataclass(frozen=True, slots=True)
 class CaptureThresholds:
     """When a note counts as settled (see the module docstring).
@@ -743,16 +747,15 @@ def read_captures(path: str | Path) -> list[Capture]:
         Missing file, wrong header, or a cell that is not a number where one belongs
         (the message names file, line and column).
     """
+    from bench.safeio import FileRefused, read_text_file
+
     path = Path(path)
-    try:
-        with path.open(encoding="utf-8", newline="") as f:  # keep CRs inside quoted cells
-            text = f.read()
-    except FileNotFoundError:
-        raise LogError(f"no such captures file: {path}") from None
-    except UnicodeDecodeError:
-        raise LogError(f"{path} is not a UTF-8 captures file") from None
-    except OSError as exc:
-        raise LogError(f"cannot read {path}: {exc.strerror or exc}") from None
+    if not path.exists() and not path.is_symlink():
+        raise LogError(f"no such captures file: {path}")
+    try:  # bounded, and only a regular file: a pipe or /dev/zero is refused, never read forever
+        text = read_text_file(path, limit_bytes=CAPTURES_LIMIT_BYTES)
+    except FileRefused as exc:
+        raise LogError(f"{path} cannot be read as a captures file ({exc}); give a .captures.csv written by bench") from None
     if text and not text.endswith("\n"):
         text = text[: text.rfind("\n") + 1]
     reader = csv.reader(io.StringIO(text, newline=""))

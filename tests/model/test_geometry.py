@@ -84,5 +84,18 @@ def test_missing_and_oversized_files(tmp_path):
         load_geometry(tmp_path / "nope.toml")
     big = tmp_path / "big.toml"
     big.write_text(MINIMAL + "#" * (MAX_FILE_BYTES + 1), encoding="utf-8")
-    with pytest.raises(GeometryError, match=r"big\.toml: file: .* larger than"):
+    with pytest.raises(GeometryError, match=r"big\.toml: file: .* more than the \d+ a file"):
         load_geometry(big)
+
+
+def test_a_device_or_a_pipe_is_refused_not_read_forever(tmp_path):
+    # /dev/zero never ends and a named pipe with no writer never answers: both must be refused
+    # in one line (they hung `bench model predict` before)
+    import os
+
+    with pytest.raises(GeometryError, match=r"/dev/zero: file: .*character device"):
+        load_geometry("/dev/zero")
+    fifo = tmp_path / "pipe.toml"
+    os.mkfifo(fifo)
+    with pytest.raises(GeometryError, match=r"pipe\.toml: file: .*named pipe"):
+        load_geometry(fifo)

@@ -130,3 +130,10 @@ def test_a_file_larger_than_the_limit_is_refused(tmp_path):
     big.write_text("# " + "x" * 200_000 + "\n", encoding="utf-8")
     with pytest.raises(SettingsError, match="more than the 100000"):
         load_temperament(big)
+
+
+def test_a_captures_file_that_is_a_device_is_refused_not_read_forever():
+    # `bench model fit wren-alto /dev/zero` read /dev/zero until memory ran out
+    from bench.cli import main
+
+    assert main(["model", "fit", "wren-alto", "/dev/zero"]) == 2
