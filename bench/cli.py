@@ -1,4 +1,4 @@
-"""Command line entry point: ``bench [run|demo|notes|temperaments|analyze|devices] ...``."""
+"""Command line entry point: ``bench [run|demo|notes|temperaments|analyze|devices|calibrate] ...``."""
 
 from __future__ import annotations
 
@@ -17,6 +17,7 @@ COMMAND_MODULES = (
     "bench.commands.notes",  # notes, temperaments
     "bench.commands.analyze",
     "bench.commands.chart",  # chart, compare
+    "bench.commands.calibrate",
 )
 DEFAULT_COMMAND = "run"
 

@@ -64,6 +64,9 @@ _MAX_SEGMENT_S = 0.5  # phase step per segment stays far below pi for a coarse e
 _COARSE_MAX_SAMPLES = 1 << 19
 _LEVEL_SPREAD = 4.0  # a segment's tone amplitude may sit this factor from the median (12 dB)
 _LOW_HZ = 20.0
+_WANDER_RATIO = 4.0  # phase scatter (rad) over relative level scatter above which the tone wanders
+_PHASE_FLOOR_RAD = 0.01  # phase scatter always tolerated (a clean tone's rounding)
+_PHASE_LIMIT_RAD = 0.3  # phase scatter never tolerated: a segment SNR near 10 dB, or a moving tone
 
 
 @dataclass(frozen=True, slots=True)
@@ -297,7 +300,7 @@ def measure_tone(
     omega = 2 * math.pi * coarse_hz / sample_rate
     for _ in range(2):  # the second pass demodulates at the refined frequency: small residual phases
         centres, phases, amplitude = _segment_phases(x, omega, seg_len, n_seg)
-        slope, slope_se, _, _resid = _line_fit(centres, phases)
+        slope, slope_se, _, resid = _line_fit(centres, phases)
         omega += slope
 
     median_amp = float(np.median(amplitude))
@@ -307,6 +310,18 @@ def measure_tone(
         raise ValueError(
             f"the tone is not steady: its level changes more than {20 * math.log10(_LEVEL_SPREAD):.0f} dB "
             f"(first at {at_s:.1f} s); record a tone that sounds evenly all through"
+        )
+
+    # Additive noise moves a segment's complex amplitude as much across (phase) as along
+    # (level); a frequency that wanders moves only the phase. Phase scatter well beyond the
+    # level's is a wandering tone, whatever the noise's spectrum near it.
+    phase_rms = float(np.sqrt(np.mean(resid**2)))
+    level_rel = float(np.std(amplitude) / np.mean(amplitude))
+    if phase_rms > min(max(_WANDER_RATIO * level_rel, _PHASE_FLOOR_RAD), _PHASE_LIMIT_RAD):
+        raise ValueError(
+            f"the tone is not steady: its phase wanders {phase_rms:.2f} rad rms about a steady tone's "
+            f"(level scatter {100 * level_rel:.0f} %); use a steady, clean reference "
+            "(a played note or a moving microphone will not do)"
         )
 
     freq_hz = omega * sample_rate / (2 * math.pi)

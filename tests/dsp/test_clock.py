@@ -112,7 +112,7 @@ def test_a_gliding_tone_is_refused():
     t = np.arange(8 * SR) / SR
     f = 440.0 * (1 + 200e-6 * t / 8)
     x = 0.4 * np.sin(2 * np.pi * np.cumsum(f) / SR)
-    with pytest.raises(ValueError, match="not steady: quarter"):
+    with pytest.raises(ValueError, match="not steady"):
         measure_tone(x, SR, 440.0)
 
 
