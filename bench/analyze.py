@@ -40,6 +40,7 @@ class FileAnalysis:
     notes: tuple[HeldNote, ...]
     warnings: tuple[str, ...]
     csv_path: Path | None
+    clock_ppm: float | None = None  # the recording card's clock error applied, ppm
 
 
 def _open(path: Path):  # type: ignore[no-untyped-def]
@@ -162,6 +163,7 @@ def analyse_file(
     csv_path: Path | None = None,
     locked_midi: int | None = None,
     progress: Callable[[float], None] | None = None,
+    clock_ppm: float | None = None,
 ) -> FileAnalysis:
     """Analyse one audio file; write its frame log to ``csv_path`` when given.
 
@@ -172,6 +174,8 @@ def analyse_file(
     csv_path : frame log to write (replaced if it exists), or None
     locked_midi : judge every frame against this note (MIDI number), or None
     progress : called with the fraction done, 0..1
+    clock_ppm : error of the recording card's clock, ppm (``bench calibrate``): the analyser
+        runs at the true rate ``nominal * (1 + ppm / 1e6)``, so every frequency is corrected
 
     Raises
     ------
@@ -185,14 +189,14 @@ def analyse_file(
     f = _open(path)
     with f:
         rate = f.samplerate if MIN_RATE_HZ <= f.samplerate <= MAX_RATE_HZ else RESAMPLE_RATE_HZ
-        analyser = StreamingAnalyser(sample_rate=rate)
+        analyser = StreamingAnalyser(sample_rate=rate * (1.0 + clock_ppm * 1e-6) if clock_ppm else rate)
         if locked_midi is not None:
             from bench.tuning.mapping import target_hz_at_air
 
             analyser.lock(target_hz_at_air(locked_midi, settings))  # where it sounds in this air
         tracker = HeldNoteTracker()
         notes: list[HeldNote] = []
-        log = CsvFrameLog(csv_path, overwrite=True, flush_interval_s=1.0) if csv_path else None
+        log = CsvFrameLog(csv_path, overwrite=True, flush_interval_s=1.0, clock_ppm=clock_ppm) if csv_path else None
         n_frames = voiced = 0
         locked_note = None
         if locked_midi is not None:
@@ -232,7 +236,7 @@ def analyse_file(
             )
         return FileAnalysis(
             path, duration_s, f.samplerate, f.channels, n_frames, voiced,
-            tuple(notes), tuple(warnings), csv_path,
+            tuple(notes), tuple(warnings), csv_path, clock_ppm,
         )  # fmt: skip
 
 
@@ -270,7 +274,8 @@ def format_summary(result: FileAnalysis, settings: TuningSettings) -> str:
         f"{result.path}: {result.duration_s:.2f} s, {result.sample_rate} Hz, "
         f"{result.channels} ch; {result.voiced_frames} of {result.frames} frames voiced",
         f"  settings: {settings.temperament} on {settings.tonic}, A4 = {settings.a4_hz:.2f} Hz, "
-        f"air {settings.temp_c:.1f} °C, cents corrected to {settings.ref_temp_c:.1f} °C",
+        f"air {settings.temp_c:.1f} °C, cents corrected to {settings.ref_temp_c:.1f} °C"
+        + (f", clock {result.clock_ppm:+.2f} ppm" if result.clock_ppm is not None else ""),
     ]
     lines += [f"  warning: {w}" for w in result.warnings]
     if result.notes:

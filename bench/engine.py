@@ -185,6 +185,9 @@ class Engine:
         Called from the engine thread with every reading (unattended logging summaries).
     clock : Clock, optional
         Used for back-off waits and latency; the system clock by default.
+    clock_ppm : float or None, ppm
+        The input clock's error (``bench calibrate``): the analyser runs at the true rate
+        ``nominal * (1 + ppm / 1e6)``, so every frequency is corrected; written in the log.
     """
 
     def __init__(
@@ -199,6 +202,7 @@ class Engine:
         on_reading: Callable[[Reading], None] | None = None,
         clock: Clock | None = None,
         batch_s: float = BATCH_S,
+        clock_ppm: float | None = None,
     ) -> None:
         if not isinstance(settings, TuningSettings):
             raise TypeError(f"settings must be TuningSettings, not {type(settings).__name__}")
@@ -213,6 +217,8 @@ class Engine:
         self._analyser_factory = analyser_factory or _default_analyser_factory
         self._clock = clock
         self._analyser: Any = None
+        self.clock_ppm = clock_ppm
+        self._clock_factor = 1.0 + (clock_ppm or 0.0) * 1e-6
 
         self._latest: Reading | None = None
         self._history: collections.deque[Reading] = collections.deque()
@@ -348,7 +354,7 @@ class Engine:
             The folder cannot be created or written (logging stays as it was).
         """
         path = new_log_path(folder)
-        new_log = CsvFrameLog(path)
+        new_log = CsvFrameLog(path, clock_ppm=self.clock_ppm)
         self._swap_log(new_log)
         self._emit("log_started", f"logging to {path}")
         return path
@@ -389,7 +395,7 @@ class Engine:
             return
         self._analyser = self._build_analyser()
         self._source.start()
-        if int(self._source.sample_rate) != int(self._analyser.sample_rate):
+        if int(self._source.sample_rate) != round(self._analyser.sample_rate / self._clock_factor):
             # A microphone may only learn its rate on opening.
             try:
                 self._analyser = self._build_analyser()
@@ -398,7 +404,7 @@ class Engine:
                 raise
         if self._initial_log_path is not None:
             try:
-                self._swap_log(CsvFrameLog(self._initial_log_path))
+                self._swap_log(CsvFrameLog(self._initial_log_path, clock_ppm=self.clock_ppm))
                 self._emit("log_started", f"logging to {self._initial_log_path}")
             except LogError as exc:
                 self._emit("log_error", f"{exc}; measuring goes on without a log")
@@ -411,7 +417,7 @@ class Engine:
         """The analyser for the source's rate; a rate it refuses is one SettingsError line."""
         rate = int(self._source.sample_rate)
         try:
-            return self._analyser_factory(rate)
+            return self._analyser_factory(rate * self._clock_factor if self.clock_ppm else rate)
         except ValueError as exc:
             raise SettingsError(f"cannot analyse {self._source.description}: {exc}") from None
 

@@ -29,7 +29,7 @@ FRAME_LOG_COLUMNS: tuple[str, ...] = (
 )  # fmt: skip
 """Columns every frame log starts with, in this order."""
 
-EXTRA_COLUMNS: tuple[str, ...] = ("clipped", "held_f0_hz", "locked_note", "rh_percent")
+EXTRA_COLUMNS: tuple[str, ...] = ("clipped", "held_f0_hz", "locked_note", "rh_percent", "clock_ppm")
 """Columns that follow, in this order (more may be added at the end)."""
 
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
@@ -67,8 +67,12 @@ def frame_row(
     mapping: NoteMapping | None,
     settings: TuningSettings,
     locked_note: str | None = None,
+    clock_ppm: float | None = None,
 ) -> list[str]:
-    """One CSV row (all cells as text) for a frame, its mapping and the settings in force."""
+    """One CSV row (all cells as text) for a frame, its mapping and the settings in force.
+
+    ``clock_ppm``: the input clock's error the frequencies were corrected by (empty: none).
+    """
     voiced = frame.f0_hz is not None and mapping is not None
     harm = frame.harmonics_db if voiced and frame.harmonics_db is not None else (None,) * 8
     row = [
@@ -94,6 +98,7 @@ def frame_row(
         number_cell(frame.held_f0_hz, 4) if voiced else "",
         safe_cell(locked_note or ""),
         number_cell(settings.rh_percent, 1) if settings.rh_percent is not None else "",
+        number_cell(clock_ppm, 3),
     ]
     return row
 
@@ -126,6 +131,8 @@ class CsvFrameLog:
         Also ask the OS to put flushed rows on disk (survives power loss, costs time).
     clock : callable returning seconds
         Monotonic clock used for the flush interval (injected in tests).
+    clock_ppm : float or None, ppm
+        The input clock's error the frequencies were corrected by, written in every row.
 
     Raises
     ------
@@ -141,8 +148,10 @@ class CsvFrameLog:
         fsync: bool = False,
         overwrite: bool = False,
         clock=time.monotonic,
+        clock_ppm: float | None = None,
     ) -> None:
         self.path = Path(path)
+        self.clock_ppm = clock_ppm
         self.flush_interval_s = float(flush_interval_s)
         self._fsync = fsync
         self._clock = clock
@@ -175,7 +184,7 @@ class CsvFrameLog:
         locked_note: str | None = None,
     ) -> None:
         """Append one row; flushes when the interval has passed. Raises LogError on failure."""
-        self.write_row(frame_row(frame, mapping, settings, locked_note))
+        self.write_row(frame_row(frame, mapping, settings, locked_note, self.clock_ppm))
 
     def write_row(self, row: list[str]) -> None:
         """Append one prepared row (see :func:`frame_row`)."""

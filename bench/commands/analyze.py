@@ -25,6 +25,8 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     out.add_argument("--csv", type=Path, metavar="PATH", help="frame log of the single input")
     out.add_argument("--csv-dir", type=Path, metavar="DIR", help="one <stem>.csv per input")
     p.add_argument("--lock", metavar="NOTE", help="judge every frame against this note, e.g. F4")
+    p.add_argument("--clock-ppm", default=None, metavar="PPM",
+                   help="clock error of the card that recorded the files, ppm (from 'bench calibrate')")  # fmt: skip
     add_tuning_options(p)
     p.set_defaults(func=run_analyze)
 
@@ -44,6 +46,9 @@ def run_analyze(args: argparse.Namespace) -> int:
     from bench.analyze import ProgressBar, analyse_file, format_summary
 
     settings = settings_from_args(args)
+    from bench.clockfile import parse_clock_ppm
+
+    clock_ppm = parse_clock_ppm(args.clock_ppm)
     locked = None
     if args.lock:
         from bench.tuning.notes import parse_note
@@ -68,7 +73,7 @@ def run_analyze(args: argparse.Namespace) -> int:
         csv_path = args.csv if args.csv else (args.csv_dir / f"{path.stem}.csv" if args.csv_dir else None)
         bar = ProgressBar(path.name)
         try:
-            result = analyse_file(path, settings, csv_path=csv_path, locked_midi=locked, progress=bar)
+            result = analyse_file(path, settings, csv_path=csv_path, locked_midi=locked, progress=bar, clock_ppm=clock_ppm)
         except BenchError as exc:
             bar.close()
             failed.append(str(exc))

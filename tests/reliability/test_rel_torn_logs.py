@@ -8,7 +8,13 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from bench.errors import LogError
-from bench.framelog import CsvFrameLog, frame_row, read_frame_log
+from bench.framelog import (
+    EXTRA_COLUMNS,
+    FRAME_LOG_COLUMNS,
+    CsvFrameLog,
+    frame_row,
+    read_frame_log,
+)
 from bench.tuning import TuningSettings, map_frequency
 from dsp.frame import Frame
 
@@ -78,7 +84,7 @@ def test_a_log_that_is_not_utf8_or_not_csv_gives_one_line(tmp_path):
 def test_a_cell_with_a_quoted_line_end_reads_back_exactly(tmp_path):
     s = TuningSettings()
     row = frame_row(_frame(1), map_frequency(440.0, s), s)
-    row[-2] = "line one\r\nline two\rthree"  # locked_note cell, quoted by the csv writer
+    row[(*FRAME_LOG_COLUMNS, *EXTRA_COLUMNS).index("locked_note")] = "line one\r\nline two\rthree"  # quoted by the csv writer
     path = tmp_path / "take.csv"
     with CsvFrameLog(path) as log:
         log.write_row(row)
