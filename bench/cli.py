@@ -1,4 +1,4 @@
-"""Command line entry point: ``bench [run|demo|notes|temperaments|analyze|devices|calibrate] ...``."""
+"""Command line entry point: ``bench [run|demo|notes|temperaments|analyze|devices|calibrate|tone] ...``."""
 
 from __future__ import annotations
 
@@ -18,6 +18,7 @@ COMMAND_MODULES = (
     "bench.commands.analyze",
     "bench.commands.chart",  # chart, compare
     "bench.commands.calibrate",
+    "bench.commands.tone",
 )
 DEFAULT_COMMAND = "run"
 

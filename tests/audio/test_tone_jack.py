@@ -1,0 +1,74 @@
+"""``bench tone`` played into a JACK dummy server and captured back by JACK-Client.
+
+Outside references: the target pitches F4 = 349.2282 Hz in equal temperament at A4 = 440 Hz
+and A4 = 415 Hz (/work/shared/REFERENCES.md section 1: ISO 16:1975; 415 Hz the baroque pitch
+standard, *common practice*); the captured tone read by Praat's autocorrelation pitch
+(praat-parselmouth, Boersma 1993), precise to ~0.1 ppm (0.0002 cent) on a clean tone
+(measured, tests/dsp/test_clock.py); and the clock arithmetic: an output running ``ppm`` fast
+plays ``f * (1 + ppm/1e6)``, so with ``--clock-ppm`` the samples hold ``f / (1 + ppm/1e6)``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+import soundfile as sf
+from conftest import SAMPLE_RATE
+from test_clock_jack import _env
+
+pytestmark = pytest.mark.audio
+
+CAPTURE = Path(__file__).with_name("jack_capture.py")
+
+
+def _praat_hz(x: np.ndarray, rate: int) -> float:
+    import parselmouth
+
+    pitch = parselmouth.Sound(x.astype(np.float64), sampling_frequency=rate).to_pitch_ac(
+        time_step=0.01, pitch_floor=150, pitch_ceiling=900, very_accurate=True
+    )
+    f0 = pitch.selected_array["frequency"]
+    return float(np.mean(f0[f0 > 0]))
+
+
+@pytest.mark.parametrize(
+    ("argv", "target_hz", "ppm"),
+    [
+        (["F4", "--timbre", "sine"], 349.2282, 0.0),
+        (["A4", "--a4", "415", "--timbre", "reed", "--clock-ppm", "100"], 415.0, 100.0),
+    ],
+)
+def test_tone_captured_back_reads_the_target_within_a_hundredth_of_a_cent(jack_server, tmp_path, argv, target_hz, ppm):
+    env = _env(jack_server.name)
+    wav = tmp_path / "captured.wav"
+    capture = subprocess.Popen([sys.executable, str(CAPTURE), str(wav), "5"], env=env, stdout=subprocess.PIPE, text=True)
+    try:
+        done = subprocess.run([sys.executable, "-m", "bench", "tone", *argv, "--seconds", "7", "--device", "system"],
+                              env=env, capture_output=True, text=True, timeout=60, check=False)  # fmt: skip
+        out, _ = capture.communicate(timeout=30)
+    finally:
+        if capture.poll() is None:
+            capture.kill()
+            capture.communicate()
+    assert done.returncode == 0, done.stderr
+    info = json.loads(out)
+    assert info["frames"] == 5 * SAMPLE_RATE, info
+    x, rate = sf.read(wav, dtype="float32")
+    x = x[int(0.2 * rate) :]  # past the fade-in
+    assert np.max(np.abs(x)) > 0.05
+    sample_hz = target_hz / (1 + ppm * 1e-6)  # what the samples hold for an output running ppm fast
+    praat_hz = _praat_hz(x, rate)
+    print(f"{done.stderr.strip()}; Praat reads {praat_hz:.5f} Hz, samples should hold {sample_hz:.5f} Hz")
+    assert abs(1200 * math.log2(praat_hz / sample_hz)) < 0.01
+    from dsp.clock import measure_tone
+
+    tone = measure_tone(x, rate, sample_hz)
+    assert abs(1200 * math.log2(tone.freq_hz / sample_hz)) < 0.01
+    # played on a card that runs ppm fast, the tone sounds at the target
+    assert abs(1200 * math.log2(tone.freq_hz * (1 + ppm * 1e-6) / target_hz)) < 0.01
