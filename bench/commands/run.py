@@ -49,6 +49,8 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
         src.add_argument("--device", default=None, metavar="INDEX|NAME", help="input device: index or part of its name (see 'bench devices')")
         src.add_argument("--rate", default=None, metavar="HZ", help="sample rate of the microphone or demo, Hz (default: the device's)")
         src.add_argument("--block", default=None, metavar="N", help="samples per input block (default 512)")
+        src.add_argument("--drone", default=None, metavar="NOTE",
+                         help="sound NOTE's target through the default output from the start (see 'bench tone')")  # fmt: skip
         src.add_argument("--clock-ppm", default=None, metavar="PPM",
                          help="the input's clock error, ppm (default: what 'bench calibrate' stored for the device)")  # fmt: skip
         log = p.add_argument_group("session log")
@@ -171,11 +173,18 @@ def run_command(args: argparse.Namespace) -> int:
     source, notice = build_source(args, realtime_file=not args.no_ui)
     args.clock_ppm = _clock_ppm(args, source)
     log_path = _log_file(args)
-    if args.no_ui:
-        if notice:
-            _say(notice)
-        return _run_unattended(args, source, settings, log_path, log_rate, duration_s)
-    return _run_screen(args, source, settings, log_path, log_rate, notice)
+    from bench.commands.tone import start_drone
+
+    drone = start_drone(args.drone, settings, report=_say)  # its own output stream; None without --drone
+    try:
+        if args.no_ui:
+            if notice:
+                _say(notice)
+            return _run_unattended(args, source, settings, log_path, log_rate, duration_s)
+        return _run_screen(args, source, settings, log_path, log_rate, notice)
+    finally:
+        if drone is not None:
+            drone.stop()
 
 
 def _clock_ppm(args: argparse.Namespace, source: Any) -> float | None:

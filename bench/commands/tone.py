@@ -5,9 +5,12 @@ from __future__ import annotations
 import argparse
 import math
 import sys
+from collections.abc import Callable
+from typing import Any
 
 from bench.commands.options import add_tuning_options, settings_from_args
 from bench.errors import SettingsError
+from bench.tuning import TuningSettings
 
 
 def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
@@ -58,8 +61,46 @@ def tone_hz(note: str, args: argparse.Namespace) -> tuple[float, str]:
     return freq_hz, text
 
 
+def _clock_for(device: Any, given: float | None) -> float | None:
+    """The output's clock error: ``given``, else what was stored for a device of that name and host API."""
+    from bench.clockfile import find_calibration
+
+    if given is not None:
+        return given
+    stored = find_calibration(device.name, device.host_api)  # the same card's input clock
+    return stored.clock_ppm if stored is not None else None
+
+
+def start_drone(note: str | None, settings: TuningSettings, *, report: Callable[[str], None]) -> Any:
+    """For ``bench run --drone NOTE``: start the note's target on the default output; None without a note.
+
+    Runs on its own output stream and callback, never in the input's path. Returns the
+    started :class:`~bench.sources.tone_out.TonePlayer` (call ``stop()``).
+    """
+    if note is None:
+        return None
+    from bench.sources.tone_out import (
+        DEFAULT_LEVEL_DBFS,
+        ToneGenerator,
+        TonePlayer,
+        resolve_output_device,
+    )
+    from bench.tuning import target_hz_at_air
+    from bench.tuning.notes import note_name, parse_note
+
+    midi = parse_note(note)
+    freq_hz = target_hz_at_air(midi, settings)
+    device = resolve_output_device(None)
+    ppm = _clock_for(device, None)
+    generator = ToneGenerator(round(device.default_rate_hz), freq_hz / (1.0 + (ppm or 0.0) * 1e-6), DEFAULT_LEVEL_DBFS)
+    player = TonePlayer(device, generator)
+    player.start()
+    report(f"drone: {note_name(midi, settings.flats)} {freq_hz:.4f} Hz on {device.label()}")
+    return player
+
+
 def run_tone(args: argparse.Namespace) -> int:
-    from bench.clockfile import find_calibration, parse_clock_ppm
+    from bench.clockfile import parse_clock_ppm
     from bench.sources.tone_out import (
         DEFAULT_LEVEL_DBFS,
         ToneGenerator,
@@ -73,9 +114,7 @@ def run_tone(args: argparse.Namespace) -> int:
     ppm = parse_clock_ppm(args.clock_ppm)
     freq_hz, text = tone_hz(args.note, args)
     device = resolve_output_device(args.device)
-    if ppm is None:
-        stored = find_calibration(device.name, device.host_api)  # the same card's input clock
-        ppm = stored.clock_ppm if stored is not None else None
+    ppm = _clock_for(device, ppm)
     sample_rate = int(rate or round(device.default_rate_hz))
     generator = ToneGenerator(sample_rate, freq_hz / (1.0 + (ppm or 0.0) * 1e-6),
                               DEFAULT_LEVEL_DBFS if level is None else level, args.timbre)  # fmt: skip

@@ -1,7 +1,8 @@
 """Capture what another program plays into a JACK server, through JACK-Client (not PortAudio).
 
 ``python jack_capture.py OUT.wav SECONDS``: registers an input port, connects it to the first
-audio output port that is neither the server's own (``system:``) nor this client's, records
+audio output port that is not the server's own (``system:``), this client's or the test feeder's
+(``bench-feeder:``), keeps any other program's connection off its input, records
 SECONDS from the moment of connection into OUT.wav (float) and prints one JSON line.
 """
 
@@ -38,7 +39,7 @@ def main() -> int:
     source = None
     while source is None and time.monotonic() < deadline:
         ports = [p for p in client.get_ports(is_audio=True, is_output=True)
-                 if not p.name.startswith(("system:", "bench-capture:"))]  # fmt: skip
+                 if not p.name.startswith(("system:", "bench-capture:", "bench-feeder:"))]  # fmt: skip
         if ports:
             source = ports[0].name
             client.connect(source, port)
@@ -46,6 +47,9 @@ def main() -> int:
         else:
             time.sleep(0.01)
     while source is not None and pos[0] < len(buf) and time.monotonic() < deadline + seconds + 5:
+        for other in client.get_all_connections(port):
+            if other.name != source:  # the feeder connects to every input it finds
+                client.disconnect(other, port)
         time.sleep(0.05)
     client.deactivate()
     client.close()

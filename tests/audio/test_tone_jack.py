@@ -27,6 +27,23 @@ pytestmark = pytest.mark.audio
 CAPTURE = Path(__file__).with_name("jack_capture.py")
 
 
+def _wait_for_input_ports(server: str, timeout_s: float = 30.0) -> None:
+    import time
+
+    import jack
+
+    client = jack.Client("bench-test-watch", servername=server, no_start_server=True)
+    try:
+        deadline = time.monotonic() + timeout_s
+        while time.monotonic() < deadline:
+            if [p for p in client.get_ports(is_audio=True, is_input=True) if not p.name.startswith(("system:", "bench-"))]:
+                return
+            time.sleep(0.05)
+        pytest.fail("bench run's input ports never appeared")
+    finally:
+        client.close()
+
+
 def _praat_hz(x: np.ndarray, rate: int) -> float:
     import parselmouth
 
@@ -72,3 +89,48 @@ def test_tone_captured_back_reads_the_target_within_a_hundredth_of_a_cent(jack_s
     assert abs(1200 * math.log2(tone.freq_hz / sample_hz)) < 0.01
     # played on a card that runs ppm fast, the tone sounds at the target
     assert abs(1200 * math.log2(tone.freq_hz * (1 + ppm * 1e-6) / target_hz)) < 0.01
+
+
+def test_drone_sounds_beside_a_live_run_without_holding_up_the_input(jack_server, tmp_path):
+    # bench run listens to F4 fed into its input while its drone sounds A4 on the output: the
+    # input loses nothing and reads F4, and the drone captured back reads A4 = 440 Hz.
+    from conftest import LIVE_CASE
+
+    from bench.framelog import read_frame_log
+
+    env = _env(jack_server.name)
+    fed = tmp_path / "f4.wav"
+    t = np.arange(8 * SAMPLE_RATE) / SAMPLE_RATE
+    sf.write(fed, (0.3 * np.sin(2 * np.pi * 349.2282 * t)).astype(np.float32), SAMPLE_RATE, subtype="FLOAT")
+    wav, log = tmp_path / "drone.wav", tmp_path / "run.csv"
+    run = subprocess.Popen([sys.executable, "-m", "bench", "run", "--no-ui", "--input", "mic", "--device", "system",
+                            "--drone", "A4", "--duration", "6", "--log", str(log)],
+                           env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)  # fmt: skip
+    procs = [run]
+    try:
+        _wait_for_input_ports(jack_server.name)  # the feeder connects to the inputs it finds once
+        procs.append(subprocess.Popen([sys.executable, str(LIVE_CASE), "feed", str(fed), "0"], env=env,
+                                      stdout=subprocess.PIPE, text=True))  # fmt: skip
+        capture = subprocess.Popen([sys.executable, str(CAPTURE), str(wav), "4"], env=env, stdout=subprocess.PIPE,
+                                   text=True)  # fmt: skip
+        procs.append(capture)
+        _, err = run.communicate(timeout=90)
+        out, _ = capture.communicate(timeout=30)
+        done = subprocess.CompletedProcess(run.args, run.returncode, "", err)
+    finally:
+        for proc in procs:
+            if proc.poll() is None:
+                proc.kill()
+            proc.communicate()
+    assert done.returncode == 0, done.stderr
+    print(done.stderr)
+    assert "drone: A4 440.0000 Hz" in done.stderr
+    dropped = int(done.stderr.strip().splitlines()[-1].split(" frames, ")[1].split()[0])
+    assert dropped <= 2  # a loaded machine may cost the server a cycle; the drone must not
+    rows = [r for r in read_frame_log(log) if r["note"] == "F4"]
+    assert len(rows) > 300
+    assert abs(float(np.median([float(r["cents_raw"]) for r in rows]))) < 0.01  # F4 = 349.2282 Hz
+    assert json.loads(out)["frames"] == 4 * SAMPLE_RATE
+    x, rate = sf.read(wav, dtype="float32")
+    x = x[rate:]  # past the fade-in and any moment the feeder was connected too
+    assert abs(1200 * math.log2(_praat_hz(x, rate) / 440.0)) < 0.01
