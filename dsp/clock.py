@@ -33,6 +33,7 @@ Pure: numpy in, frozen results out; no files, devices or clocks.
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass
 
@@ -111,7 +112,17 @@ class FrameRateFit:
     ----------
     rate_hz : float, frames per second of the reference clock
     rate_se_hz : float >= 0, frames per second
-        Standard error of the slope (ordinary least squares).
+        Standard error of the slope: ``hypot(fit_se_hz, parts_se_hz)``.
+    fit_se_hz : float >= 0, frames per second
+        Standard error of the slope from the least-squares residuals (holds for independent
+        timing scatter of the points).
+    parts_se_hz : float >= 0, frames per second
+        The wander of the rate itself (timing errors that accumulate, which leave the residuals
+        correlated and the least-squares error too small): lines are fitted to contiguous
+        parts of the run, and the variance of their slopes beyond what their own least-squares
+        errors explain, divided by the number of parts, is its square (batch means; the
+        average of the parts' rates is the whole's). 0 when the parts agree as independent
+        scatter predicts, or the run has too few points to be cut.
     duration_s : float, s
         Time the fitted points span.
     points : int
@@ -122,9 +133,16 @@ class FrameRateFit:
 
     rate_hz: float
     rate_se_hz: float
+    fit_se_hz: float
+    parts_se_hz: float
     duration_s: float
     points: int
     residual_rms_frames: float
+
+    @property
+    def rate_wanders(self) -> bool:
+        """True when the rate's wander is the larger part of the standard error."""
+        return self.parts_se_hz > self.fit_se_hz
 
 
 def clock_ppm(true_over_read: float) -> float:
@@ -369,7 +387,7 @@ def measure_tone(
     )
 
 
-def fit_frame_rate(time_s: ArrayLike, frames: ArrayLike, *, reject_late: bool = True) -> FrameRateFit:
+def fit_frame_rate(time_s: ArrayLike, frames: ArrayLike, *, reject_late: bool = True, parts: int = 8) -> FrameRateFit:
     """Fit ``frames = a + rate * time_s`` by least squares over the whole run.
 
     Parameters
@@ -382,6 +400,9 @@ def fit_frame_rate(time_s: ArrayLike, frames: ArrayLike, *, reject_late: bool = 
         Leave out points more than 6 median absolute deviations off a first fit, then fit
         again. A callback run late (the machine busy) is counted at a later time than its
         frames arrived; such delays are one-sided outliers that would tilt the line.
+    parts : int >= 2
+        Contiguous parts (equal numbers of points) whose own slopes give the second standard
+        error (batch means; needs 5 points a part).
 
     Returns
     -------
@@ -418,9 +439,19 @@ def fit_frame_rate(time_s: ArrayLike, frames: ArrayLike, *, reject_late: bool = 
         if keep.sum() >= 10 and not keep.all():
             tt, f = tt[keep], f[keep]
             rate, se, _, resid = _line_fit(tt, f)
+    parts_se = 0.0
+    if parts >= 2 and len(tt) >= 5 * parts:
+        bounds = np.linspace(0, len(tt), parts + 1).astype(int)
+        fits = [_line_fit(tt[a:b], f[a:b]) for a, b in itertools.pairwise(bounds)]
+        slopes = np.array([fit[0] for fit in fits])
+        own_var = float(np.mean([fit[1] ** 2 for fit in fits]))  # what independent scatter explains
+        excess_var = float(np.var(slopes, ddof=1)) - own_var
+        parts_se = math.sqrt(max(excess_var, 0.0) / parts)
     return FrameRateFit(
         rate_hz=rate,
-        rate_se_hz=se,
+        rate_se_hz=math.hypot(se, parts_se),
+        fit_se_hz=se,
+        parts_se_hz=parts_se,
         duration_s=float(tt[-1] - tt[0]),
         points=len(tt),
         residual_rms_frames=float(math.sqrt(float(resid @ resid) / len(resid))),

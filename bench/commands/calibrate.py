@@ -156,16 +156,26 @@ def _calibrate_mic(spec: str | None, reference_hz: float, seconds: float, rate: 
     return 0
 
 
-def minutes_for(target_se_ppm: float, se_ppm: float, duration_s: float) -> float:
-    """Minutes of counting for a standard error of ``target_se_ppm``, from one run's.
+def minutes_for(target_se_ppm: float, fit_se_ppm: float, wander_se_ppm: float, duration_s: float) -> float:
+    """Minutes of counting for a standard error of ``target_se_ppm``, from one run's two parts.
 
-    With independent timing scatter of the callbacks, the slope's standard error falls as
-    ``T^-1.5`` (points ~ T, spread of times ~ T).
+    Independent timing scatter of the callbacks (``fit_se_ppm``) falls as ``T^-1.5`` (points
+    ~ T, spread of times ~ T); the wander of the rate itself (``wander_se_ppm``) only as
+    ``T^-0.5`` (the average of independent stretches). Solved for T by bisection.
 
-    >>> round(minutes_for(1.0, 8.0, 60.0), 3)
+    >>> round(minutes_for(1.0, 8.0, 0.0, 60.0), 3)
+    4.0
+    >>> round(minutes_for(0.1, 0.0, 0.2, 60.0), 3)
     4.0
     """
-    return float(duration_s / 60.0 * (se_ppm / target_se_ppm) ** (2.0 / 3.0))
+    def se_at(ratio: float) -> float:
+        return math.sqrt(fit_se_ppm**2 / ratio**3 + wander_se_ppm**2 / ratio)
+
+    lo, hi = 1e-6, 1e12
+    for _ in range(200):
+        mid = math.sqrt(lo * hi)
+        lo, hi = (mid, hi) if se_at(mid) > target_se_ppm else (lo, mid)
+    return duration_s / 60.0 * math.sqrt(lo * hi)
 
 
 def _calibrate_counting(spec: str | None, minutes: float, rate: int | None, *, save: bool) -> int:
@@ -195,8 +205,10 @@ def _calibrate_counting(spec: str | None, minutes: float, rate: int | None, *, s
     print(f"clock: {ppm:+.2f} ppm ± {se:.2g} (standard error); the input runs {'fast' if ppm > 0 else 'slow'}")
     print(f"  {fit.rate_hz:.3f} frames per system second at a nominal {count.sample_rate} Hz; "
           f"{fit.duration_s / 60:.2f} min, {fit.points} callbacks, scatter {fit.residual_rms_frames:.1f} frames rms")  # fmt: skip
-    print(f"  ± 1 ppm takes about {minutes_for(1.0, se, fit.duration_s):.1f} min on this input, "
-          f"± 0.1 ppm about {minutes_for(0.1, se, fit.duration_s):.0f} min")  # fmt: skip
+    fit_se, wander_se = (1e6 * v / count.sample_rate for v in (fit.fit_se_hz, fit.parts_se_hz))
+    print(f"  timing scatter {fit_se:.2g} ppm, the rate's own wander {wander_se:.2g} ppm; ± 1 ppm takes about "
+          f"{minutes_for(1.0, fit_se, wander_se, fit.duration_s):.1f} min on this input, "
+          f"± 0.1 ppm about {minutes_for(0.1, fit_se, wander_se, fit.duration_s):.0f} min")  # fmt: skip
     print("  against the computer's clock: it is as true as that clock (kept true by network time, or not)")
     if save:
         _save(count.device, ppm, se, "system clock",
