@@ -106,16 +106,25 @@ def _measure(samples: Any, sample_rate: float, reference_hz: float, where: str) 
     return tone, ppm, se
 
 
-def _calibrate_file(path: Path, reference_hz: float) -> int:
+def _read_mono(path: Path) -> tuple[Any, int]:
+    """The whole recording mixed to mono (float64) and its rate; one-line AudioFileError otherwise."""
     import numpy as np
+    import soundfile as sf  # type: ignore[import-untyped]
 
-    from bench.analyze import _open
+    if not path.is_file():
+        raise AudioFileError(f"{path}: no such file" if not path.exists() else f"{path}: is a folder; give an audio file")
+    try:
+        audio, rate = sf.read(str(path), dtype="float32", always_2d=True)
+    except (RuntimeError, TypeError, sf.LibsndfileError) as exc:
+        msg = str(exc).split(":")[-1].strip().rstrip(".").lower() or "unknown format"
+        raise AudioFileError(f"{path}: not readable as audio ({msg}); give WAV, FLAC or OGG") from None
+    if len(audio) == 0:
+        raise AudioFileError(f"{path}: holds no audio samples")
+    return audio.mean(axis=1, dtype=np.float64), int(rate)
 
-    f = _open(path)  # one-line errors for a missing, empty or unreadable file
-    with f:
-        audio = f.read(dtype="float32", always_2d=True)
-        rate = f.samplerate
-    mono = audio.mean(axis=1, dtype=np.float64)
+
+def _calibrate_file(path: Path, reference_hz: float) -> int:
+    mono, rate = _read_mono(path)
     tone, ppm, se = _measure(mono, float(rate), reference_hz, str(path))
     for line in _tone_lines(tone, reference_hz, ppm, se):
         print(line)
