@@ -95,7 +95,8 @@ def start_drone(note: str | None, settings: TuningSettings, *, report: Callable[
     generator = ToneGenerator(round(device.default_rate_hz), freq_hz / (1.0 + (ppm or 0.0) * 1e-6), DEFAULT_LEVEL_DBFS)
     player = TonePlayer(device, generator)
     player.start()
-    report(f"drone: {note_name(midi, settings.flats)} {freq_hz:.4f} Hz on {device.label()}")
+    clock = f"; output clock {ppm:+.2f} ppm taken out" if ppm is not None else ""
+    report(f"drone: {note_name(midi, settings.flats)} {freq_hz:.4f} Hz on {device.label()}{clock}")
     return player
 
 

@@ -93,10 +93,18 @@ def test_tone_captured_back_reads_the_target_within_a_hundredth_of_a_cent(jack_s
 
 def test_drone_sounds_beside_a_live_run_without_holding_up_the_input(jack_server, tmp_path):
     # bench run listens to F4 fed into its input while its drone sounds A4 on the output: the
-    # input loses nothing and reads F4, and the drone captured back reads A4 = 440 Hz.
+    # input loses nothing and reads F4, and the drone captured back reads A4 = 440 Hz. The JACK
+    # device 'system' has a stored clock error of +50 ppm (as 'bench calibrate' keeps it): the
+    # run applies it to the input (F4 then reads 1200*log2(1 + 5e-5) = 0.0866 cents high, the
+    # ppm arithmetic) and takes it out of the drone (its samples hold 440/(1 + 5e-5) Hz).
     from conftest import LIVE_CASE
 
+    from bench.clockfile import ClockCalibration, save_calibration
     from bench.framelog import read_frame_log
+
+    ppm = 50.0
+    save_calibration(ClockCalibration("system", "JACK Audio Connection Kit", ppm, 0.5, "system clock", "test",
+                                      SAMPLE_RATE, "2026-12-04T18:00:00"))  # fmt: skip
 
     env = _env(jack_server.name)
     fed = tmp_path / "f4.wav"
@@ -124,13 +132,15 @@ def test_drone_sounds_beside_a_live_run_without_holding_up_the_input(jack_server
             proc.communicate()
     assert done.returncode == 0, done.stderr
     print(done.stderr)
-    assert "drone: A4 440.0000 Hz" in done.stderr
+    assert "drone: A4 440.0000 Hz" in done.stderr and "clock +50.00 ppm" in done.stderr
     dropped = int(done.stderr.strip().splitlines()[-1].split(" frames, ")[1].split()[0])
     assert dropped <= 2  # a loaded machine may cost the server a cycle; the drone must not
     rows = [r for r in read_frame_log(log) if r["note"] == "F4"]
     assert len(rows) > 300
-    assert abs(float(np.median([float(r["cents_raw"]) for r in rows]))) < 0.01  # F4 = 349.2282 Hz
+    cents = float(np.median([float(r["cents_raw"]) for r in rows]))  # against F4 = 349.2282 Hz
+    assert abs(cents - 1200 * math.log2(1 + ppm * 1e-6)) < 0.01
+    assert {r["clock_ppm"] for r in rows} == {"50.000"}
     assert json.loads(out)["frames"] == 4 * SAMPLE_RATE
     x, rate = sf.read(wav, dtype="float32")
     x = x[rate:]  # past the fade-in and any moment the feeder was connected too
-    assert abs(1200 * math.log2(_praat_hz(x, rate) / 440.0)) < 0.01
+    assert abs(1200 * math.log2(_praat_hz(x, rate) / (440.0 / (1 + ppm * 1e-6)))) < 0.01
