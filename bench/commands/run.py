@@ -176,6 +176,7 @@ def run_command(args: argparse.Namespace) -> int:
     from bench.commands.tone import start_drone
 
     drone = start_drone(args.drone, settings, report=_say)  # its own output stream; None without --drone
+    args.drone_player = drone  # _start_engine makes it follow the engine's target
     try:
         if args.no_ui:
             if notice:
@@ -258,6 +259,8 @@ def _start_engine(
         engine = make(DemoSource(source.sample_rate, block_size=getattr(source, "block_size", 512)))
         engine.start()
         return engine, f"{exc}; playing the demo instrument instead"
+    if getattr(args, "drone_player", None) is not None:
+        args.drone_player.follow(engine)
     return engine, None
 
 

@@ -94,3 +94,27 @@ def test_bad_tone_options_are_one_line(argv, message, capsys):
     assert main(argv) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and message in err[0]
+
+
+def test_drone_follows_the_locked_note_and_the_settings():
+    # the drone's target is the engine's locked note (its own note when none) under the settings
+    # in force: F4 = 349.2282 Hz at A4 = 440, 329.3857 Hz at A4 = 415 (REFERENCES section 1)
+    import dataclasses
+    import types
+
+    from bench.commands.tone import Drone
+    from bench.tuning import TuningSettings
+
+    generator = ToneGenerator(SR, 440.0)
+    player = types.SimpleNamespace(generator=generator, stop=lambda: None)
+    s440 = TuningSettings()
+    drone = Drone(player, 69, s440, clock_ppm=100.0)
+    engine = types.SimpleNamespace(locked_midi=None, settings=s440)
+    assert drone.update_from(engine) == pytest.approx(440.0)
+    engine.locked_midi = 65  # the player locks F4
+    assert drone.update_from(engine) == pytest.approx(349.2282, abs=5e-5)
+    assert generator.freq_hz == pytest.approx(349.2282 / (1 + 1e-4), abs=5e-5)  # clock taken out
+    engine.settings = dataclasses.replace(s440, a4_hz=415.0)
+    assert drone.update_from(engine) == pytest.approx(329.3857, abs=5e-5)
+    engine.locked_midi = None
+    assert drone.update_from(engine) == pytest.approx(415.0)
