@@ -18,9 +18,9 @@ import math
 import numpy as np
 import pytest
 import soundfile as sf
-from conftest import SAMPLE_RATE, project_analyser_available, run_live_case
 
 from bench.framelog import read_frame_log
+from conftest import SAMPLE_RATE, project_analyser_available, run_live_case
 
 pytestmark = pytest.mark.audio
 
