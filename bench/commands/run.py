@@ -199,7 +199,6 @@ def _clock_ppm(args: argparse.Namespace, source: Any) -> float | None:
 
     if given is not None or not isinstance(source, MicSource):
         return given
-
     try:
         device = resolve_input_device(source.device_spec)
     except DeviceError:
