@@ -65,6 +65,7 @@ _MAX_SEGMENT_S = 0.5  # phase step per segment stays far below pi for a coarse e
 _COARSE_MAX_SAMPLES = 1 << 19
 _LEVEL_SPREAD = 4.0  # a segment's tone amplitude may sit this factor from the median (12 dB)
 _LOW_HZ = 20.0
+_NEAR_PEAK_DB = 30.0  # the tone near the stated frequency may sit this far below the strongest (its harmonics)
 _WANDER_RATIO = 4.0  # phase scatter (rad) over relative level scatter above which the tone wanders
 _PHASE_FLOOR_RAD = 0.01  # phase scatter always tolerated (a clean tone's rounding)
 _PHASE_LIMIT_RAD = 0.3  # phase scatter never tolerated: a segment SNR near 10 dB, or a moving tone
@@ -192,18 +193,27 @@ def clock_ppm_from_tone(reference_hz: float, tone: ToneFrequency) -> tuple[float
     return ppm, se_ppm
 
 
-def _coarse_peak_hz(x: NDArray[np.float64], sample_rate: float) -> tuple[float, float]:
-    """Strongest spectral peak above 20 Hz (Hann, zero-padded x4, parabolic on log magnitude): Hz, bin width."""
+def _coarse_peaks_hz(x: NDArray[np.float64], sample_rate: float, lo_hz: float, hi_hz: float) -> tuple[float, float, float]:
+    """Hann, zero-padded x4 spectrum: the strongest peak above 20 Hz, the strongest between
+    ``lo_hz`` and ``hi_hz`` (Hz, parabolic on log magnitude), and the second's level below the
+    first (dB >= 0)."""
     n = min(len(x), _COARSE_MAX_SAMPLES)
     seg = x[:n] * np.hanning(n)
     nfft = 1 << math.ceil(math.log2(4 * n))
     mag = np.abs(np.fft.rfft(seg, nfft))
-    lo = max(1, math.ceil(_LOW_HZ * nfft / sample_rate))
-    k = lo + int(np.argmax(mag[lo:-1]))
-    a, b, c = (math.log(max(v, 1e-300)) for v in mag[k - 1 : k + 2])
-    denom = a - 2 * b + c
-    delta = 0.5 * (a - c) / denom if denom < 0 else 0.0
-    return (k + delta) * sample_rate / nfft, sample_rate / n
+
+    def peak(lo: int, hi: int) -> tuple[float, float]:
+        k = lo + int(np.argmax(mag[lo:hi]))
+        a, b, c = (math.log(max(v, 1e-300)) for v in mag[k - 1 : k + 2])
+        denom = a - 2 * b + c
+        delta = 0.5 * (a - c) / denom if denom < 0 else 0.0
+        return (k + delta) * sample_rate / nfft, float(mag[k])
+
+    top_hz, top_mag = peak(max(1, math.ceil(_LOW_HZ * nfft / sample_rate)), len(mag) - 1)
+    lo = max(1, math.floor(lo_hz * nfft / sample_rate))
+    hi = min(len(mag) - 1, math.ceil(hi_hz * nfft / sample_rate) + 1)
+    near_hz, near_mag = peak(lo, hi)
+    return top_hz, near_hz, 20 * math.log10(top_mag / max(near_mag, 1e-300))
 
 
 def _segment_phases(
@@ -305,11 +315,14 @@ def measure_tone(
     if power <= 0.0:
         raise ValueError("the recording is silent; play the reference tone while recording")
 
-    coarse_hz, _ = _coarse_peak_hz(x, sample_rate)
-    if abs(coarse_hz / reference_hz - 1.0) > max_offset:
-        cents = 1200 * math.log2(coarse_hz / reference_hz)
+    # the peak near the stated frequency; the strongest peak anywhere only names a wrong tone
+    top_hz, coarse_hz, below_db = _coarse_peaks_hz(x, sample_rate, reference_hz * (1 - 2 * max_offset),
+                                                   reference_hz * (1 + 2 * max_offset))  # fmt: skip
+    if below_db > _NEAR_PEAK_DB or abs(coarse_hz / reference_hz - 1.0) > max_offset:
+        found_hz = top_hz if below_db > _NEAR_PEAK_DB else coarse_hz
+        cents = 1200 * math.log2(found_hz / reference_hz)
         raise ValueError(
-            f"the strongest tone is at {coarse_hz:.2f} Hz, {cents:+.0f} cents from the stated {reference_hz:g} Hz "
+            f"the strongest tone is at {found_hz:.2f} Hz, {cents:+.0f} cents from the stated {reference_hz:g} Hz "
             f"(more than {100 * max_offset:g} %); check --reference-hz or the tone played"
         )
 

@@ -202,3 +202,12 @@ def test_frame_rate_standard_error_matches_the_scatter_of_repeated_runs(wander):
     assert 0.6 < spread / float(np.median(reported)) < 1.6
     if wander:
         assert spread / float(np.median(fit_only)) > 2.0  # what the parts' scatter adds is needed
+
+
+def test_a_reference_whose_second_harmonic_is_the_strongest_is_taken():
+    # a pipe-like reference tone: H2 6 dB above H1; the fundamental is still the one stated
+    t = np.arange(6 * SR) / SR
+    f_hz = 392.0 / (1 + 40e-6)
+    x = 0.2 * np.sin(2 * np.pi * f_hz * t) + 0.4 * np.sin(4 * np.pi * f_hz * t) + 0.1 * np.sin(6 * np.pi * f_hz * t)
+    ppm, se = clock_ppm_from_tone(392.0, measure_tone(x, SR, 392.0))
+    assert ppm == pytest.approx(40.0, abs=max(2.0, 5 * se))
