@@ -13,7 +13,8 @@ Two pure estimators for calibrating an input's sample clock (``bench calibrate``
   (frequency estimation by linear regression of the phase, Tretter, IEEE Trans. Inf. Theory
   31(6):832-835, 1985, *from memory*). The standard error of the slope comes from the fit's own
   residuals, so it includes any wander of the tone and the room, and it is never reported
-  below the Cramer-Rao bound of Rife & Boorstyn (IEEE Trans. Inf. Theory 20(5):591-598, 1974):
+  below the Cramer-Rao bound of Rife & Boorstyn (IEEE Trans. Inf. Theory, 1974; volume and pages
+  20(5):591-598 *from memory*):
   ``var(omega) >= 12 / (SNR N (N^2 - 1))`` (rad/sample)^2 with ``SNR = A^2 / (2 sigma^2)``.
 * :func:`fit_frame_rate` fits ``frames = a + rate * t`` by ordinary least squares to
   (monotonic time, frames delivered) pairs gathered over a whole run, and gives the slope with
@@ -57,7 +58,8 @@ MAX_OFFSET = 0.01
 STEADY_PPM = 20.0
 """Largest distance (ppm) of a quarter of the recording's frequency from the whole's, beyond
 five of the quarter's standard errors, for the tone to count as steady (moving 1 cm/s towards
-the microphone shifts a tone by ~29 ppm: hold still)."""
+the microphone shifts a tone by v/c = 0.01/343 = 29 ppm, c at 20 degC from REFERENCES section 3:
+hold still)."""
 MIN_TONE_S = 2.0
 """Shortest recording :func:`measure_tone` takes, seconds."""
 MIN_SEGMENTS = 16
