@@ -46,6 +46,7 @@ class FileAnalysis:
     csv_path: Path | None
     captures: tuple[Capture, ...] = ()
     captures_path: Path | None = None
+    clock_ppm: float | None = None  # the recording card's clock error applied, ppm
 
 
 class _FrameCounter:
@@ -73,6 +74,7 @@ def analyse_file(
     profile: InstrumentProfile | None = None,
     label: str = "",
     overwrite: bool = False,
+    clock_ppm: float | None = None,
 ) -> FileAnalysis:
     """Analyse one audio file; write its frame log to ``csv_path`` (and its captures beside it,
     ``<stem>.captures.csv``) when given.
@@ -87,6 +89,8 @@ def analyse_file(
     profile : instrument profile the captures are filed under (the alto if None)
     label : label put on the captures
     overwrite : replace an existing frame log at ``csv_path`` and the captures file beside it
+    clock_ppm : error of the recording card's clock, ppm (``bench calibrate``): the analyser
+        runs at the true rate ``nominal * (1 + ppm / 1e6)``, so every frequency is corrected
 
     Raises
     ------
@@ -111,7 +115,7 @@ def analyse_file(
         consumers.append(workflow)
     events: list[EngineEvent] = []
     engine = Engine(source, settings, log_path=csv_path, log_overwrite=overwrite, on_event=events.append,
-                    consumers=consumers)  # fmt: skip
+                    consumers=consumers, clock_ppm=clock_ppm)  # fmt: skip
     if locked_midi is not None:
         engine.lock(locked_midi)
     engine.start()
@@ -144,7 +148,7 @@ def analyse_file(
     return FileAnalysis(
         path, duration_s, source.file_rate, source.channels, counter.frames, counter.voiced,
         tuple(held.notes), tuple(warnings), csv_path,
-        captures, captures_path,
+        captures, captures_path, clock_ppm,
     )  # fmt: skip
 
 
@@ -186,6 +190,7 @@ def format_summary(result: FileAnalysis, settings: TuningSettings) -> str:
         (
             f"  settings: {settings.temperament} on {settings.tonic}, A4 = {settings.a4_hz:.2f} Hz, "
             f"air {settings.temp_c:.1f} °C, cents corrected to {settings.ref_temp_c:.1f} °C"
+            + (f", clock {result.clock_ppm:+.2f} ppm" if result.clock_ppm is not None else "")
         ),
     ]
     lines += [f"  warning: {w}" for w in result.warnings]

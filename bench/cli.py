@@ -1,4 +1,4 @@
-"""Command line entry point: ``bench [run|demo|notes|temperaments|analyze|devices] ...``."""
+"""Command line entry point: ``bench [run|demo|notes|temperaments|analyze|devices|calibrate|tone] ...``."""
 
 from __future__ import annotations
 
@@ -20,6 +20,8 @@ COMMAND_MODULES = (
     "bench.commands.analyze",
     "bench.commands.chart",  # chart, compare
     "bench.commands.model",  # model predict|fit|whatif
+    "bench.commands.calibrate",
+    "bench.commands.tone",
 )
 DEFAULT_COMMAND = "run"
 

@@ -191,7 +191,7 @@ class Analyser(Protocol):
     def reset(self) -> None: ...
 
 
-def _default_analyser_factory(sample_rate: int) -> Analyser:
+def _default_analyser_factory(sample_rate: float) -> Analyser:
     """The project's streaming analyser at ``sample_rate``."""
     from dsp.analyser import StreamingAnalyser
 
@@ -224,6 +224,9 @@ class Engine:
         stops; more can be attached with :meth:`add_consumer`.
     clock : Clock, optional
         Used for back-off waits and latency; the system clock by default.
+    clock_ppm : float or None, ppm
+        The input clock's error (``bench calibrate``): the analyser runs at the true rate
+        ``nominal * (1 + ppm / 1e6)``, so every frequency is corrected; written in the log.
     """
 
     def __init__(
@@ -235,10 +238,11 @@ class Engine:
         log_overwrite: bool = False,
         log_rows_per_s: float | None = None,
         on_event: Callable[[EngineEvent], None] | None = None,
-        analyser_factory: Callable[[int], Analyser] | None = None,
+        analyser_factory: Callable[[float], Analyser] | None = None,
         consumers: Sequence[ReadingConsumer] = (),
         clock: Clock | None = None,
         batch_s: float = BATCH_S,
+        clock_ppm: float | None = None,
     ) -> None:
         if not isinstance(settings, TuningSettings):
             raise TypeError(f"settings must be TuningSettings, not {type(settings).__name__}")
@@ -256,6 +260,8 @@ class Engine:
         self._clock = clock
         self._analyser: Analyser | None = None
         self._settings_lock = threading.Lock()
+        self.clock_ppm = clock_ppm
+        self._clock_factor = 1.0 + (clock_ppm or 0.0) * 1e-6
 
         self._latest: Reading | None = None
         self._history: collections.deque[Reading] = collections.deque()
@@ -417,7 +423,7 @@ class Engine:
             The folder cannot be created or written (logging stays as it was).
         """
         path = new_log_path(folder)
-        new_log = CsvFrameLog(path)
+        new_log = CsvFrameLog(path, clock_ppm=self.clock_ppm)
         self._swap_log(new_log)
         self._emit("log_started", f"logging to {path}")
         return path
@@ -458,7 +464,7 @@ class Engine:
             return
         self._analyser = self._build_analyser()
         self._source.start()
-        if int(self._source.sample_rate) != int(self._analyser.sample_rate):
+        if int(self._source.sample_rate) != round(self._analyser.sample_rate / self._clock_factor):
             # A microphone may only learn its rate on opening.
             try:
                 self._analyser = self._build_analyser()
@@ -467,7 +473,9 @@ class Engine:
                 raise
         if self._initial_log_path is not None:
             try:
-                self._swap_log(CsvFrameLog(self._initial_log_path, overwrite=self._log_overwrite))
+                self._swap_log(
+                    CsvFrameLog(self._initial_log_path, overwrite=self._log_overwrite, clock_ppm=self.clock_ppm)
+                )
                 self._emit("log_started", f"logging to {self._initial_log_path}")
             except LogError as exc:
                 self._emit("log_error", f"{exc}; measuring goes on without a log")
@@ -480,7 +488,7 @@ class Engine:
         """The analyser for the source's rate; a rate it refuses is one SettingsError line."""
         rate = int(self._source.sample_rate)
         try:
-            return self._analyser_factory(rate)
+            return self._analyser_factory(rate * self._clock_factor if self.clock_ppm else rate)
         except ValueError as exc:
             raise SettingsError(f"cannot analyse {self._source.description}: {exc}") from None
 

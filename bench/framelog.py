@@ -32,7 +32,7 @@ FRAME_LOG_COLUMNS: tuple[str, ...] = (
 )  # fmt: skip
 """Columns every frame log starts with, in this order."""
 
-EXTRA_COLUMNS: tuple[str, ...] = ("clipped", "held_f0_hz", "locked_note", "rh_percent", "held_note")
+EXTRA_COLUMNS: tuple[str, ...] = ("clipped", "held_f0_hz", "locked_note", "rh_percent", "held_note", "clock_ppm")
 """Columns that follow, in this order (more may be added at the end)."""
 
 MAX_LINE_BYTES = 1 << 20
@@ -71,8 +71,11 @@ def number_cell(value: float | None, digits: int) -> str:
 _FIXED = {d: f"{{:.{d}f}}".format for d in range(7)}  # a bound format per precision: no spec parsing per cell
 
 
-def frame_row(reading: Reading) -> list[str]:
-    """One CSV row (all cells as text) for a reading: its frame, note and settings."""
+def frame_row(reading: Reading, clock_ppm: float | None = None) -> list[str]:
+    """One CSV row (all cells as text) for a reading: its frame, note and settings.
+
+    ``clock_ppm``: the input clock's error the frequencies were corrected by (empty: none).
+    """
     frame, mapping, settings = reading.frame, reading.mapping, reading.settings
     voiced = reading.voiced
     harm = reading.harmonics_db
@@ -100,6 +103,7 @@ def frame_row(reading: Reading) -> list[str]:
         safe_cell(reading.locked_note or "") if reading.locked_midi is not None else "",
         number_cell(settings.rh_percent, 1) if settings.rh_percent is not None else "",
         safe_cell(reading.held_note) if voiced else "",
+        number_cell(clock_ppm, 3),
     ]
     return row
 
@@ -132,6 +136,8 @@ class CsvFrameLog:
         Also ask the OS to put flushed rows on disk (survives power loss, costs time).
     clock : callable returning seconds
         Monotonic clock used for the flush interval (injected in tests).
+    clock_ppm : float or None, ppm
+        The input clock's error the frequencies were corrected by, written in every row.
 
     Raises
     ------
@@ -147,8 +153,10 @@ class CsvFrameLog:
         fsync: bool = False,
         overwrite: bool = False,
         clock: Callable[[], float] = time.monotonic,
+        clock_ppm: float | None = None,
     ) -> None:
         self.path = Path(path)
+        self.clock_ppm = clock_ppm
         self.flush_interval_s = float(flush_interval_s)
         self._fsync = fsync
         self._clock = clock
@@ -183,7 +191,7 @@ class CsvFrameLog:
 
     def write(self, reading: Reading) -> None:
         """Append one reading's row; flushes when the interval has passed. Raises LogError on failure."""
-        self.write_row(frame_row(reading))
+        self.write_row(frame_row(reading, self.clock_ppm))
 
     def write_row(self, row: list[str]) -> None:
         """Append one prepared row (see :func:`frame_row`)."""

@@ -89,7 +89,7 @@ class StreamingAnalyser:
 
     Parameters
     ----------
-    sample_rate : int, 16000..96000, Hz
+    sample_rate : float, 16000..96000, Hz (a calibrated input's true rate may be fractional)
     frame_size : int or None, samples
         Analysis window; default the power of two nearest 85 ms (4096 at 48 kHz), at
         least 2048 so that 60 Hz has five periods.
@@ -119,7 +119,7 @@ class StreamingAnalyser:
 
     def __init__(
         self,
-        sample_rate: int = 48000,
+        sample_rate: float = 48000,
         *,
         frame_size: int | None = None,
         hop_size: int | None = None,

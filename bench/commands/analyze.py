@@ -27,6 +27,8 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     p.add_argument("--overwrite", action="store_true",
                    help="replace an existing CSV (or a link of that name; never the file it points to)")
     p.add_argument("--lock", metavar="NOTE", help="judge every frame against this note, e.g. F4")
+    p.add_argument("--clock-ppm", default=None, metavar="PPM",
+                   help="clock error of the card that recorded the files, ppm (from 'bench calibrate')")  # fmt: skip
     add_tuning_options(p)
     p.set_defaults(func=run_analyze)
 
@@ -79,6 +81,9 @@ def run_analyze(args: argparse.Namespace) -> int:
     from bench.pipes import write_line
 
     settings = settings_from_args(args)
+    from bench.clockfile import parse_clock_ppm
+
+    clock_ppm = parse_clock_ppm(args.clock_ppm)
     locked = None
     if args.lock:
         from bench.tuning.notes import parse_note
@@ -110,8 +115,9 @@ def run_analyze(args: argparse.Namespace) -> int:
         bar = ProgressBar(path.name)
         try:
             result = analyse_file(
-                path, settings, csv_path=csv_path, locked_midi=locked, progress=bar, overwrite=args.overwrite
-            )
+                path, settings, csv_path=csv_path, locked_midi=locked, progress=bar, overwrite=args.overwrite,
+                clock_ppm=clock_ppm,
+            )  # fmt: skip
         except BenchError as exc:
             bar.close()
             from bench.textsafe import one_line

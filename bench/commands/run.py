@@ -53,6 +53,10 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
         src.add_argument("--device", default=None, metavar="INDEX|NAME", help="input device: index or part of its name (see 'bench devices')")
         src.add_argument("--rate", default=None, metavar="HZ", help="sample rate of the microphone or demo, Hz (default: the device's)")
         src.add_argument("--block", default=None, metavar="N", help="samples per input block (default 512)")
+        src.add_argument("--drone", default=None, metavar="NOTE",
+                         help="sound NOTE's target through the default output from the start (see 'bench tone')")  # fmt: skip
+        src.add_argument("--clock-ppm", default=None, metavar="PPM",
+                         help="the input's clock error, ppm (default: what 'bench calibrate' stored for the device)")  # fmt: skip
         log = p.add_argument_group("session log")
         where = log.add_mutually_exclusive_group()
         where.add_argument("--log", default=None, type=Path, metavar="FILE", help="write the frame log to FILE (must not exist)")
@@ -186,7 +190,10 @@ def run_command(args: argparse.Namespace) -> int:
         temp_source = AirTemperatureSource(args.temp_source)
         settings = settings_from_args(argparse.Namespace(temp=temp_source.read_temp_c()), settings)
     source, notice = build_source(args, realtime_file=not args.no_ui)
+    args.clock_ppm = _clock_ppm(args, source)
     log_path = _log_file(args)
+    from bench.commands.tone import start_drone
+
     if args.no_ui:
         from bench import unattended
 
@@ -197,12 +204,38 @@ def run_command(args: argparse.Namespace) -> int:
         if problem is not None:
             _say(f"error: {problem}")
             return unattended.EXIT_LOG
-        origins = unattended.setting_origins(args, saved.from_file, saved.path)
-        _say(unattended.describe_origins(settings, origins, args.label))
-        return _run_unattended(args, source, settings, log_path, log_rate, duration_s, origins)
-    if saved.problems:
-        notice = "; ".join([*saved.problems, *([notice] if notice else [])])
-    return _run_screen(args, source, settings, log_path, log_rate, notice)
+    drone = start_drone(args.drone, settings, report=_say)  # its own output stream; None without --drone
+    args.drone_player = drone  # _start_engine makes it follow the engine's target
+    try:
+        if args.no_ui:
+            origins = unattended.setting_origins(args, saved.from_file, saved.path)
+            _say(unattended.describe_origins(settings, origins, args.label))
+            return _run_unattended(args, source, settings, log_path, log_rate, duration_s, origins)
+        if saved.problems:
+            notice = "; ".join([*saved.problems, *([notice] if notice else [])])
+        return _run_screen(args, source, settings, log_path, log_rate, notice)
+    finally:
+        if drone is not None:
+            drone.stop()
+
+
+def _clock_ppm(args: argparse.Namespace, source: Any) -> float | None:
+    """--clock-ppm, or for a microphone the value stored for its device; None for none."""
+    from bench.clockfile import find_calibration, parse_clock_ppm
+
+    given = parse_clock_ppm(args.clock_ppm)
+    if given is not None and args.input == "demo":
+        raise SettingsError("--clock-ppm applies to a microphone or a recording, not to the demo instrument")
+    from bench.sources.mic import MicSource, resolve_input_device
+
+    if given is not None or not isinstance(source, MicSource):
+        return given
+    try:
+        device = resolve_input_device(source.device_spec)
+    except DeviceError:
+        return None
+    stored = find_calibration(device.name, device.host_api)
+    return stored.clock_ppm if stored is not None else None
 
 
 def _start_follower(
@@ -281,6 +314,8 @@ def _start_engine(
         engine = make(DemoSource(source.sample_rate, block_size=source.block_size))
         engine.start()
         return engine, f"{exc}; playing the demo instrument instead"
+    if getattr(args, "drone_player", None) is not None:
+        args.drone_player.follow(engine)
     return engine, None
 
 
@@ -305,7 +340,9 @@ def _run_screen(
     # Started here so a device that cannot open is one line before the screen appears;
     # the app connects its event handler through the settable ``on_event``.
     engine, fallback = _start_engine(
-        lambda src: Engine(src, settings, log_path=log_path, log_rows_per_s=log_rate), source, args
+        lambda src: Engine(src, settings, log_path=log_path, log_rows_per_s=log_rate, clock_ppm=args.clock_ppm),
+        source,
+        args,
     )
     notice = fallback or notice
     follower = _start_follower(args, engine, lambda message: _tell_screen(engine, f"air temperature: {message}"))
@@ -389,6 +426,7 @@ def _run_unattended(
                 log_rows_per_s=log_rate,
                 on_event=on_event,
                 consumers=[held_notes, workflow],
+                clock_ppm=args.clock_ppm,
             ),
             source,
             args,
@@ -406,7 +444,8 @@ def _run_unattended(
     if fallback:
         _say(fallback)
     follower = _start_follower(args, engine, lambda message: lines.put(("err", f"temperature: {message}")))
-    _say(f"listening to {engine.source.description}; log {engine.log_path or 'off'}; Ctrl-C stops")
+    clock = f"; clock {engine.clock_ppm:+.2f} ppm" if engine.clock_ppm is not None else ""
+    _say(f"listening to {engine.source.description}{clock}; log {engine.log_path or 'off'}; Ctrl-C stops")
     wall0_s = time.monotonic()
     previous_term = _raise_on_sigterm()
     try:

@@ -10,7 +10,8 @@ import sys
 
 import pytest
 
-MODULES = ["dsp", "dsp.analyser", "bench.engine", "bench.tuning", "bench.sources.wavfile", "bench.sources.demo"]
+MODULES = ["dsp", "dsp.analyser", "dsp.clock", "bench.engine", "bench.tuning", "bench.sources.wavfile", "bench.sources.demo",
+           "bench.clockfile", "bench.sources.device_clock", "bench.sources.tone_out"]  # fmt: skip
 
 
 @pytest.mark.parametrize("module", MODULES)
