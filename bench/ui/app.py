@@ -499,6 +499,7 @@ class BenchApp(App[int]):
         stats = self.engine.stats
         bar = self._view(SessionBar)
         bar.source = stats.source
+        bar.clock_ppm = self.engine.clock_ppm
         bar.state = stats.state
         bar.dropped_blocks = stats.dropped_blocks
         bar.analysis_load_pct = self._analysis_load_pct(stats.cpu_s)

@@ -49,6 +49,8 @@ class SessionBar(LineView):
     """True while the user holds the view still."""
     problem: reactive[str] = reactive("")
     """The engine's last word on why input stopped or failed ("" while all is well)."""
+    clock_ppm: reactive[float | None] = reactive(None)
+    """The input clock's error taken out of every reading, ppm; None when not calibrated."""
 
     def render(self) -> Text:
         # Short, vital items first (state, level, drops, log); the long source description
@@ -98,6 +100,9 @@ class SessionBar(LineView):
             text.append(f" {log_shown}", value)
         else:
             text.append("off", value)
+        if self.clock_ppm is not None:
+            text.append("  clock ", label)
+            text.append(f"{self.clock_ppm:+.1f} ppm", value)
         if self.analysis_load_pct is not None:
             # near a whole core, input will soon be dropped
             text.append("  dsp ", label)

@@ -48,3 +48,18 @@ def test_newest_notice_comes_first_and_old_ones_go(make_app, engine):
     both, later = asyncio.run(scenario())
     assert both.index("second") < both.index("first")
     assert "second" not in later
+
+
+def test_a_calibrated_clock_is_shown_on_the_session_line(make_app, engine):
+    # the clock's error taken out of every reading is said where the input is described
+    from bench.ui.panels import SessionBar
+
+    engine.clock_ppm = 42.5
+
+    async def scenario():
+        app = make_app(engine)
+        async with app.run_test(size=(120, 36)) as pilot:
+            await until(pilot, lambda: "clock" in app.query_one(SessionBar).render().plain)
+            return app.query_one(SessionBar).render().plain
+
+    assert "clock +42.5 ppm" in asyncio.run(scenario())

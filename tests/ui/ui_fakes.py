@@ -43,6 +43,7 @@ class FakeEngine:
         self.start_error: Exception | None = None
         self.settings_seen: list[TuningSettings] = []
         self.consumers: list[object] = []
+        self.clock_ppm: float | None = None  # the input clock's error, as the engine holds it
 
     # engine API
     def start(self) -> None:
