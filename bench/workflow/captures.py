@@ -225,11 +225,10 @@ def _median_or_none(values: Iterable[float | None]) -> float | None:
     return statistics.median(got) if got else None
 
 
-def _register_for(point: Reading, profile: InstrumentProfile | None) -> int:
+def _register_for(midi: int, profile: InstrumentProfile | None) -> int:
     """Register of the fingered note: the profile's, else 1."""
-    held = point.held_midi
-    if profile is not None and held is not None:
-        return profile.register_of(held)
+    if profile is not None:
+        return profile.register_of(midi)
     return 1
 
 
@@ -290,7 +289,10 @@ def capture_from_points(
     margin = None
     if break_level_dbfs is not None and math.isfinite(level):
         margin = break_level_dbfs - level
-    held = first.held
+    # the fingered note: the one the register monitor held when the note broke; else the
+    # note sounding (a note fingered in the second register from the start is that note)
+    named = first.held if jumped is not None and first.held is not None else first.mapping
+    assert named is not None  # voiced
     mode = first.mode
     if jumped is not None:
         mode = jump_mode if jump_mode is not None else jumped.mode
@@ -299,9 +301,9 @@ def capture_from_points(
         index=index,
         label=label,
         source=source,
-        note=first.held_note,
-        midi=int(first.held_midi) if first.held_midi is not None else 0,
-        register=_register_for(first, profile),
+        note=named.note,
+        midi=named.midi,
+        register=_register_for(named.midi, profile),
         mode=mode,
         jump=((jumped.jump or "jumped") if jumped is not None else ""),
         start_s=voiced[0].time_s,
@@ -311,7 +313,7 @@ def capture_from_points(
         cents_spread=nan if no_steady else scaled_mad(cents),
         cents_raw=nan if no_steady else (_median_or_none(p.cents_raw for p in voiced) or 0.0),
         f0_hz=nan if no_steady else (_median_or_none(p.f0_hz for p in voiced) or 0.0),
-        target_hz=(held.target_hz if held is not None else (first.target_hz or 0.0)),
+        target_hz=named.target_hz,
         level_dbfs=level,
         level_min_dbfs=min(levels) if levels and not no_steady else -math.inf,
         level_max_dbfs=max(levels) if levels and not no_steady else -math.inf,
@@ -389,9 +391,9 @@ def find_steady_part(
     t = np.asarray(times_s, dtype=np.float64)
     # decisions on values rounded coarser than the frame log keeps them (cents 3 decimals,
     # level 2), so a session live and read back from its log is cut at the same frames
-    c: NDArray[np.float64] = np.round(np.asarray(cents, dtype=np.float64), 2)
+    c = np.asarray(np.round(np.asarray(cents, dtype=np.float64), 2), dtype=np.float64)
     raw_lv = np.asarray(levels_dbfs, dtype=np.float64)
-    lv: NDArray[np.float64] = np.round(np.where(np.isfinite(raw_lv), raw_lv, -200.0), 1)
+    lv = np.asarray(np.round(np.where(np.isfinite(raw_lv), raw_lv, -200.0), 1), dtype=np.float64)
     n = t.size
     if n == 0:
         return SteadyPart(0, -1, "too short (no voiced frames)")
