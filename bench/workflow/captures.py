@@ -671,7 +671,8 @@ class CaptureDetector:
 
     def _below_crescendo(self, steady: list[Reading]) -> list[Reading]:
         """A steady part whose level climbs (a crescendo): keep the level it was played at
-        (frames within 1.5 dB of the level of its first ``settle_s``)."""
+        (frames within 1.5 dB of the level of its first ``settle_s``, up to the first one
+        blown harder); when that leaves less than ``settle_s``, the whole part."""
         if len(steady) < 3:
             return steady
         drift = fit_line([q.time_s for q in steady], [q.level_dbfs for q in steady])
@@ -683,8 +684,12 @@ class CaptureDetector:
         kept: list[Reading] = []
         for q in steady:
             if abs(q.level_dbfs - ref) > 1.5:
-                break
+                if q.level_dbfs > ref:
+                    break  # blown harder than the note was played at
+                continue
             kept.append(q)
+        if not kept or kept[-1].time_s - kept[0].time_s < self.thresholds.settle_s:
+            return steady  # no steady level to keep: the whole steady part, as played
         return kept
 
     def _skip(self, frames: Sequence[Reading], reason: str) -> None:
