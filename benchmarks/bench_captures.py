@@ -38,13 +38,13 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
-import numpy as np  # noqa: E402
+import numpy as np
 
-from bench.reading import make_reading  # noqa: E402
-from bench.tuning import TuningSettings  # noqa: E402
-from bench.workflow.captures import Capture, CaptureDetector  # noqa: E402
-from dsp.analyser import StreamingAnalyser  # noqa: E402
-from dsp.synth import NoteEvent, render  # noqa: E402
+from bench.reading import make_reading
+from bench.tuning import TuningSettings
+from bench.workflow.captures import Capture, CaptureDetector
+from dsp.analyser import StreamingAnalyser
+from dsp.synth import NoteEvent, render
 
 SAMPLE_RATE = 48000
 TUNING_SEEDS = tuple(range(100, 116))
@@ -66,7 +66,7 @@ class PlayedNote:
 
 def equal_hz(midi: int) -> float:
     """12-TET on A4 = 440 Hz (ISO 16:1975)."""
-    return 440.0 * 2.0 ** ((midi - 69) / 12.0)
+    return float(440.0 * 2.0 ** ((midi - 69) / 12.0))
 
 
 def scene(seed: int, n_notes: int) -> tuple[list[NoteEvent], list[PlayedNote], dict[str, float]]:

@@ -83,6 +83,7 @@ __all__ = [
     "find_steady_part",
     "read_captures",
     "scaled_mad",
+    "skipped_notes",
     "write_captures",
 ]
 
@@ -791,6 +792,21 @@ def captures_from_readings(
         det.push(reading)
     det.finish()
     return list(det.captures)
+
+
+def skipped_notes(
+    readings: Iterable[Reading],
+    *,
+    profile: InstrumentProfile | None = None,
+    thresholds: CaptureThresholds | None = None,
+) -> list[Skip]:
+    """Held notes of a recording's readings that gave no automatic capture, with the reason
+    (too short, unsteady, locked to another note)."""
+    det = CaptureDetector(profile=profile, thresholds=thresholds)
+    for reading in readings:
+        det.push(reading)
+    det.finish()
+    return list(det.skips)
 
 
 # --- files --------------------------------------------------------------------------------
