@@ -64,7 +64,7 @@ from numpy.typing import NDArray
 from bench.errors import LogError
 from bench.framelog import number_cell, safe_cell
 from bench.reading import Reading, SettingsKey
-from bench.segment import GAP_S, NoteSegmenter
+from bench.segment import GAP_S, MIN_NOTE_S, NoteSegmenter
 from bench.workflow.blowing import LevelHistory, fit_line
 from bench.workflow.profiles import InstrumentProfile
 
@@ -650,6 +650,8 @@ class CaptureDetector:
         frames, self._note = self._note, []
         if not frames or not self.auto:
             return None
+        if frames[-1].time_s - frames[0].time_s < MIN_NOTE_S:
+            return None  # a blip, not a note (bench.segment)
         first_jump = next((q for q in frames if q.register_state == "jumped"), None)
         pre = frames
         if first_jump is not None:
@@ -760,7 +762,7 @@ class CaptureDetector:
                 self._breaks[self._held_key] = level
                 self._fill_margins(self._held_key, level)
             return
-        self._held_levels.add(p.time_s, p.level_dbfs)
+        self._held_levels.add(p.time_s, p.level_dbfs, weakening=p.register_state == "weakening")
 
     def _fill_margins(self, key: tuple[int, SettingsKey], break_level_dbfs: float) -> None:
         """Give every capture of the held note ``key`` its margin to the newest break."""

@@ -152,7 +152,7 @@ class LiveWorkflow:
                 out.append(cap)
             out += self._detector.take_updates()
             brk = self._blowing.push(reading)
-            if brk is not None:
+            if brk is not None and brk.jump_kind != "vented":  # a leak is no limit of the breath
                 self._last_break = brk
             self._store(out)
         self._tell(out)
@@ -238,7 +238,8 @@ class LiveWorkflow:
             return self._blowing.current()
 
     def last_break(self) -> BlowingCurve | None:
-        """Blowing curve up to the newest register break seen, None before any."""
+        """Blowing curve up to the newest register break seen (overblown: a vented jump is a
+        leak, not the top of the note's dynamic range), None before any."""
         with self._lock:
             return self._last_break
 

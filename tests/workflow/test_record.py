@@ -18,8 +18,11 @@ import pytest
 from bench.cli import main
 from bench.framelog import CsvFrameLog
 from bench.reading import make_reading
-from bench.tuning import TuningSettings
-from bench.workflow.captures import CaptureDetector, captures_from_readings, skipped_notes
+from bench.workflow.captures import (
+    CaptureDetector,
+    captures_from_readings,
+    skipped_notes,
+)
 from bench.workflow.chart import build_chart, format_text_chart, write_summary_csv
 from bench.workflow.compare import compare_captures, format_comparison
 from bench.workflow.live import LiveWorkflow
