@@ -38,6 +38,7 @@ from bench.workflow.profiles import InstrumentProfile
 
 if TYPE_CHECKING:
     from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
 
     from bench.workflow.blowing import BlowingCurve
 
@@ -47,6 +48,7 @@ __all__ = [
     "TuningChart",
     "build_chart",
     "capture_register",
+    "chart_figure",
     "describe_settings",
     "format_text_chart",
     "plot_chart",
@@ -167,8 +169,8 @@ def build_chart(
     label : str or None
         Use only captures with this session label (one pass of a session).
     flats : bool
-        Spell every note of the chart with flats (default: sharps), whatever the captures
-        were spelt with.
+        Spell every note of the chart with flats (default: sharps, as profiles are written),
+        whatever each capture was spelt with: one spelling per chart.
 
     Examples
     --------
@@ -483,6 +485,36 @@ def draw_blowing_axes(ax: Axes, curves: Sequence[BlowingCurve]) -> None:
     ax.legend(loc="upper left", fontsize=8, frameon=False)
 
 
+def chart_figure(
+    chart: TuningChart,
+    *,
+    blowing: Sequence[BlowingCurve] = (),
+    title: str | None = None,
+) -> Figure:
+    """The chart's matplotlib figure (Agg), laid out; the caller closes it
+    (``matplotlib.pyplot.close``). See :func:`plot_chart`."""
+    use_agg_backend()
+    import matplotlib.pyplot as plt
+
+    n_notes = len({e.midi for e in chart.entries})
+    width = max(7.0, 0.32 * n_notes + 2.0)
+    rows = 2 if blowing else 1
+    fig, axes = plt.subplots(rows, 1, figsize=(width, 4.2 * rows), squeeze=False)
+    draw_chart_axes(axes[0][0], chart)
+    p = chart.profile
+    head = title or f"{p.title}: tuning per note and register"
+    sub = "; ".join(describe_settings(s) for s in chart.settings[:2])
+    if chart.labels and any(chart.labels):
+        sub = " / ".join(lab for lab in chart.labels if lab) + (" | " + sub if sub else "")
+    chars = max(40, int(width * 11))  # about 13 characters of 10 pt type per inch, less a margin
+    wrapped = "\n".join(textwrap.wrap(head, chars) + textwrap.wrap(sub, chars))
+    axes[0][0].set_title(wrapped, fontsize=10, pad=16)  # room for the strip of marks
+    if blowing:
+        draw_blowing_axes(axes[1][0], blowing)
+    fig.tight_layout()
+    return fig
+
+
 def plot_chart(
     chart: TuningChart,
     path: str | Path,
@@ -490,7 +522,7 @@ def plot_chart(
     blowing: Sequence[BlowingCurve] = (),
     title: str | None = None,
 ) -> Path:
-    """Save the chart as PNG or SVG (by the suffix of ``path``).
+    """Save the chart as PNG or SVG (by the suffix of ``path``; an SVG keeps its text as text).
 
     One series per register (markers and error bars = spread; open markers for notes outside
     the profile's plan; small grey "+N dB" above a note: its register margin), grey ±5 c
@@ -508,27 +540,13 @@ def plot_chart(
     use_agg_backend()
     import matplotlib.pyplot as plt
 
-    n_notes = len({e.midi for e in chart.entries})
-    width = max(7.0, 0.32 * n_notes + 2.0)
-    rows = 2 if blowing else 1
-    fig, axes = plt.subplots(rows, 1, figsize=(width, 4.2 * rows), squeeze=False)
-    try:
-        draw_chart_axes(axes[0][0], chart)
-        p = chart.profile
-        head = title or f"{p.title}: tuning per note and register"
-        sub = "; ".join(describe_settings(s) for s in chart.settings[:2])
-        if chart.labels and any(chart.labels):
-            sub = " / ".join(lab for lab in chart.labels if lab) + (" | " + sub if sub else "")
-        chars = max(40, int(width * 13))  # about 13 characters of 10 pt type per inch
-        wrapped = "\n".join(textwrap.wrap(head, chars) + textwrap.wrap(sub, int(chars * 1.1)))
-        axes[0][0].set_title(wrapped, fontsize=10, pad=16)  # room for the strip of marks
-        if blowing:
-            draw_blowing_axes(axes[1][0], blowing)
-        fig.tight_layout()
-        path.parent.mkdir(parents=True, exist_ok=True)
-        fig.savefig(path, dpi=110, bbox_inches="tight", pad_inches=0.15)  # nothing clipped
-    except OSError as exc:
-        raise BenchError(f"cannot write the picture {path}: {exc.strerror or exc}") from None
-    finally:
-        plt.close(fig)
+    with plt.rc_context({"svg.fonttype": "none"}):
+        fig = chart_figure(chart, blowing=blowing, title=title)
+        try:
+            path.parent.mkdir(parents=True, exist_ok=True)
+            fig.savefig(path, dpi=110, bbox_inches="tight", pad_inches=0.15)  # nothing clipped
+        except OSError as exc:
+            raise BenchError(f"cannot write the picture {path}: {exc.strerror or exc}") from None
+        finally:
+            plt.close(fig)
     return path

@@ -15,7 +15,6 @@ import scipy.stats
 from bench.errors import LogError
 from bench.framelog import reading_from_row
 from bench.reading import make_reading
-from bench.segment import ATTACK_S
 from bench.tuning import TuningSettings
 from bench.workflow.captures import (
     CAPTURE_COLUMNS,

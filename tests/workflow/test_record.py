@@ -72,7 +72,8 @@ def test_chart_summary_and_compare_show_a_broken_note_as_broken(tmp_path):
     line = next(ln for ln in text.splitlines() if ln.startswith("C5 "))
     assert "BROKE (overblown into mode 2)" in line and "+14.0 c before the break" in line
     assert text.splitlines()[-1].startswith("0 of 27 notes checked") and "1 broke: C5 R1" in text
-    rows = list(csv.DictReader(open(write_summary_csv(chart, tmp_path / "s.csv"), encoding="utf-8")))
+    with open(write_summary_csv(chart, tmp_path / "s.csv"), encoding="utf-8") as f:
+        rows = list(csv.DictReader(f))
     by_note = {(r["note"], r["register"]): r for r in rows}
     assert by_note[("C5", "1")]["status"] == "broken" and by_note[("C5", "1")]["jump"] == "overblown"
     assert by_note[("C6", "2")]["status"] == "unchecked" and by_note[("C6", "2")]["jump"] == ""
@@ -201,3 +202,57 @@ def test_manual_capture_still_works_and_files_a_break_under_the_fingered_note():
             break
     cap = det2.capture_now()
     assert cap is not None and cap.jump == "" and cap.cents == pytest.approx(14.0, abs=0.1)
+
+
+# --- 6. charts drawn to be read from the bench -------------------------------------------
+
+
+def _chart_with_everything():
+    played = captures_from_readings(
+        truth_rows(render_events([NoteEvent(equal_hz(65), 1.2, gap_s=0.2), NoteEvent(_cents_hz(70, -6.0), 1.2, gap_s=0.2)])),
+        profile=ALTO,
+    )
+    broken = [dataclasses.replace(c, index=c.index + 10) for c in captures_from_readings(truth_rows(_overblown_c5()), profile=ALTO)]
+    return build_chart([*played, *broken], ALTO)
+
+
+def test_picture_title_wraps_inside_the_figure_and_marks_sit_off_the_cents_scale():
+    import matplotlib.pyplot as plt
+
+    from bench.workflow.chart import chart_figure
+
+    chart = _chart_with_everything()
+    long_title = ("Hollin Lane Flute Works Wren alto in F, as made, before undercutting the thumb hole "
+                  "and the A4 tone hole, first pass of the morning with the window open") * 2
+    fig = chart_figure(chart, title=long_title)
+    try:
+        fig.canvas.draw()
+        ax = fig.axes[0]
+        title = ax.title
+        assert "\n" in title.get_text()
+        box = title.get_window_extent()
+        assert box.x0 >= 0 and box.x1 <= fig.bbox.width and box.y1 <= fig.bbox.height  # never clipped
+        lines = {ln.get_label(): ln for ln in ax.get_lines()}
+        for label in ("not yet checked (strip above the plot)", "broke into another register: not checked"):
+            ys = lines[label].get_ydata()
+            assert all(y > 1.0 for y in ys)  # axes fraction: above the cents scale, never on it
+        texts = {t.get_text() for t in ax.texts}
+        assert {"R1", "R2", "R3"} <= texts
+        names = [t.get_text() for t in ax.get_xticklabels()]
+        assert any("#" in n for n in names) and not any("b" in n[1:2] for n in names)  # one spelling
+    finally:
+        plt.close(fig)
+    flat = build_chart([e.capture for e in chart.entries if e.capture is not None], ALTO, flats=True)
+    assert {e.note for e in flat.entries if e.midi == 70} == {"Bb4"}
+    assert not any("#" in e.note for e in flat.entries)
+
+
+def test_svg_keeps_its_text_and_labels(tmp_path):
+    import xml.etree.ElementTree as ET
+
+    from bench.workflow.chart import plot_chart
+
+    svg = plot_chart(_chart_with_everything(), tmp_path / "c.svg", title="Wren alto, as made")
+    text = " ".join(t.text or "" for t in ET.parse(svg).getroot().iter() if t.tag.endswith("text"))
+    for want in ("Wren alto, as made", "R1", "R2", "R3", "not yet checked", "broke into another register"):
+        assert want in text
