@@ -1,44 +1,47 @@
-"""Captures: what each note did, kept once it has settled.
+"""Captures: what each held note did, kept once it is over.
 
-A *capture* sums up one steady stretch of one note: its median corrected cents, how much the
-frames spread, its level and harmonic balance, the settings it was measured under, and how
+A *capture* sums up the steady state of one held note: its median corrected cents, how much
+its frames spread, its level and harmonic balance, the settings it was measured under, and how
 much louder it could be blown before it broke into the next register (when that was seen).
 
-When is a note settled?  (defaults of :class:`CaptureThresholds`)
+One capture per held note and pass (defaults of :class:`CaptureThresholds`):
 
-* a *run* is a sequence of voiced readings mapped to the same note, in the same sounding mode
-  and under the same settings, cut by the held-note rule of :mod:`bench.segment` (a gap over
-  :data:`~bench.segment.GAP_S`, 60 ms, beyond the spacing of the readings, or another note
-  lasting :data:`~bench.segment.STRAY_S`; shorter strays are skipped);
-* the first :data:`~bench.segment.ATTACK_S` (150 ms) of a run are the attack and are never used;
-* the run is *settled* once every frame of the last ``settle_s`` (300 ms) lies within
-  ``tolerance_cents`` (±3 c) of those frames' median; that median is the stretch's reference;
-* the steady stretch goes on while frames stay within ±3 c of the reference (stray frames,
-  off in pitch, are skipped for up to :data:`~bench.segment.GAP_S`); it ends when frames stay
-  outside for that long, when the run ends, or when the sound stops. Its frames make one
-  capture.
+* a *held note* is cut by the one rule of :mod:`bench.segment` (:class:`~bench.segment.NoteSegmenter`,
+  keyed on the fingered note and the settings); it is judged when it ends;
+* a capture describes the *fingered* note. When the held note broke into another register
+  (the register monitor's "jumped" state: overblown or vented while the fingering was held),
+  the capture stays under the fingered note, marked with the jump kind and the mode it
+  sounded in, its cents from the steady part before the break (the frames from
+  :data:`~bench.segment.GAP_S` before the break and the "weakening" that announced it are left
+  out); without a steady part before the break its cents are empty. Frames of another
+  sounding note or mode inside the held note (an octave slip) are left out;
+* the steady part runs from the end of the attack to the release, judged by what the signal
+  does, not by fixed times (:func:`find_steady_part`): the release is trimmed where the level
+  falls fast, the attack where the level still rises fast and where the pitch has not yet
+  settled on the note's later median (a decaying overshoot, the upper harmonics speaking
+  first, the chiff), judged on a running median of five frames so that the few cents of
+  frame-to-frame noise of a room or a breath do not cut the note;
+* its cents are the median of the steady part, its spread the scaled median absolute
+  deviation ``1.4826 * median(|c - median(c)|)`` (a robust standard deviation, equal to σ for
+  normal data; scipy.stats.median_abs_deviation with ``scale="normal"``): a slow breath
+  wander and a light vibrato widen the spread without moving the median far;
+* a steady part whose level climbs faster than ``max_level_drift_db_per_s`` (a crescendo)
+  keeps only its start, at the level the note was played at;
+* no capture, with the reason kept (:attr:`CaptureDetector.last_skip`,
+  :attr:`CaptureDetector.skips`): too short (a steady part under ``settle_s``), unsteady (the
+  pitch never settled, or spread over ``max_spread_cents``), or locked to another note (a
+  locked capture further than ``max_offset_cents`` from the locked note: no fingering of it
+  sounds there). Held notes shorter than :data:`~bench.segment.MIN_NOTE_S` are blips, not
+  notes.
 
-Spread is the scaled median absolute deviation of the stretch's corrected cents,
-``1.4826 * median(|c - median(c)|)``: a robust estimate of the frame-to-frame standard
-deviation (equals σ for normally distributed frames; scipy.stats.median_abs_deviation with
-``scale="normal"``).
+Register: the register the instrument profile gives the fingered note (without a profile, 1).
 
-A crescendo or diminuendo is a blowing curve, not a capture: a stretch whose level changes
-faster than ``max_level_drift_db_per_s`` (2 dB/s, least-squares slope of level against time)
-is not captured automatically.
-
-Register: when the frames are in a "jumped" state (the held note broke into another mode
-while the same fingering was held), the sounding mode from the ratio of the sounding to the
-held fundamental (2 octave, 3 twelfth ...); otherwise the register the instrument profile puts
-the sounding note in (the player chose the fingering); without a profile, the mode if known,
-else 1.
-
-Register margin: when the held note broke into the next register (the first frame of a held
-note whose register state is "jumped", e.g. at the top of a crescendo), the margin of every
-capture of that note under the same settings -- before or after -- is the newest such break
-level minus the capture's level, dB. The break level is read as in :mod:`bench.workflow.blowing` (median
-level from 100 ms to 40 ms before the first jumped frame: the blowing level that broke the
-note, clear of the change itself).
+Register margin: when the held note broke by overblowing (the first "jumped" frame, e.g. at
+the top of a crescendo), the margin of every capture of that note under the same settings --
+before or after, and the broken capture itself -- is the newest break level minus the
+capture's level, dB. The break level is read as in :mod:`bench.workflow.blowing` (median level
+from 100 ms to 40 ms before the first jumped frame, or before the weakening that led to it).
+A vented jump is a leak, not the top of the note's dynamic range: it gives no margin.
 
 File format (``<log stem>.captures.csv`` beside the frame log), UTF-8 CSV with ``\\r\\n`` line
 ends and a header row, columns :data:`CAPTURE_COLUMNS`; a row with an ``index`` seen before
@@ -100,10 +103,12 @@ CAPTURE_COLUMNS: tuple[str, ...] = (
 )  # fmt: skip
 """Columns of a captures file, in this order.
 
-index (1, 2 ...), label (session label in force), source (auto | manual), note (sounding,
-as the log spelled it), midi, register (1, 2, 3 ...), mode (sounding mode from the held note,
-blank if unknown), jump (overblown | vented when the capture is of a held note that broke
-into that mode, else blank), start_s / end_s (seconds, frame-log time of the first and last frame used),
+index (1, 2 ...), label (session label in force), source (auto | manual), note (the fingered
+note, as the log spelled it; the locked note when one was locked), midi, register (1, 2, 3 ...:
+the profile's register of the note), mode (sounding mode: the one it broke into when it broke;
+blank if unknown), jump (overblown | vented when the held note broke into another register,
+else blank; cents are then those of the steady part before the break, blank when there was
+none), start_s / end_s (seconds, frame-log time of the first and last frame used),
 frames (count), cents (median, corrected to the reference temperature), cents_spread (scaled
 MAD, cents), cents_raw (median, uncorrected), f0_hz / target_hz (median, Hz), level_dbfs
 (median), level_min_dbfs / level_max_dbfs, odd_even_db and h1_db..h8_db (medians, dB re the
