@@ -256,3 +256,29 @@ def test_svg_keeps_its_text_and_labels(tmp_path):
     text = " ".join(t.text or "" for t in ET.parse(svg).getroot().iter() if t.tag.endswith("text"))
     for want in ("Wren alto, as made", "R1", "R2", "R3", "not yet checked", "broke into another register"):
         assert want in text
+
+
+# --- 5. margins from the crescendo that broke the note -----------------------------------
+
+
+def test_a_vented_jump_gives_no_margin_and_an_overblown_crescendo_does():
+    # common practice: a vented jump is a leak (a half-open hole), not the top of the breath;
+    # the margin is the level the note could rise before it broke by blowing, in dB above the
+    # capture's level. Synth truth: a crescendo of 12 dB over 3 s from -28 dBFS, weakening
+    # 0.12 s before the change at 2.4 s: blown at -28 + 4 x (2.4 - 0.015 - 0.12 - 0.07) = -19.2
+    # dBFS when the weakening began (the break level is read 40-100 ms before it).
+    vented = captures_from_readings(truth_rows(render_events(
+        [NoteEvent(equal_hz(67), 1.6, jump_at_s=1.0, jump_kind="vented", gap_s=0.2)])), profile=ALTO)
+    assert [(c.note, c.jump, c.register_margin_db) for c in vented] == [("G4", "vented", None)]
+    r = render_events([
+        NoteEvent(equal_hz(67), 1.2, level_dbfs=-24.0, gap_s=0.3),
+        NoteEvent(equal_hz(67), 3.0, level_dbfs=-28.0, crescendo_db=12.0, cents_per_db=0.5, jump_at_s=2.4,
+                  jump_kind="overblown", weaken_s=0.12, gap_s=0.2),
+    ])
+    caps = captures_from_readings(truth_rows(r), profile=ALTO)
+    assert [(c.note, c.jump) for c in caps] == [("G4", ""), ("G4", "overblown")]
+    brk = caps[1].break_level_dbfs
+    assert brk == pytest.approx(-19.2, abs=0.3)
+    assert caps[0].register_margin_db == pytest.approx(brk + 24.0)  # above the earlier capture
+    assert caps[1].register_margin_db == pytest.approx(brk - caps[1].level_dbfs)
+    assert caps[1].level_dbfs < -26.0 and caps[1].register_margin_db > 6.0
