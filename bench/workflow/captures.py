@@ -92,6 +92,10 @@ __all__ = [
 
 CaptureSource = Literal["auto", "manual"]
 
+MAX_NOTE_FRAMES = 40_000
+"""Most readings of one held note kept for its capture (over three minutes at a 5 ms hop);
+a longer note is judged on its newest readings."""
+
 CAPTURE_COLUMNS: tuple[str, ...] = (
     "index", "label", "source", "note", "midi", "register", "mode", "jump",
     "start_s", "end_s", "frames",
@@ -543,7 +547,8 @@ class CaptureDetector:
         self._held = NoteSegmenter()
         self._held_key: tuple[int, SettingsKey] | None = None
         self._held_broken = False
-        self._note: list[Reading] = []
+        # the held note's readings, bounded (a drone of hours keeps its newest minutes)
+        self._note: deque[Reading] = deque(maxlen=MAX_NOTE_FRAMES)
         self._capture_held: dict[int, tuple[int, SettingsKey]] = {}
 
     def take_updates(self) -> list[Capture]:
@@ -652,7 +657,8 @@ class CaptureDetector:
 
     def _close_note(self) -> Capture | None:
         """The held note is over: its capture (when auto), or the reason there is none."""
-        frames, self._note = self._note, []
+        frames = list(self._note)
+        self._note.clear()
         if not frames or not self.auto:
             return None
         if frames[-1].time_s - frames[0].time_s < MIN_NOTE_S:
