@@ -95,6 +95,18 @@ class NoteEvent:
         Rise time of the tone (raised cosine). The attack counts as unvoiced in the truth.
     release_s : float > 0, seconds
         Fall time at the end of the note; counts as unvoiced in the truth.
+    onset_cents : float, cents
+        Pitch overshoot at the start of the note, decaying exponentially (a duct flute's
+        pitch starts sharp while the jet and the air column settle; 0: none).
+    onset_decay_s : float > 0, seconds
+        Time constant of that decay.
+    wander_cents : float >= 0, cents
+        Peak of a slow wander of the pitch (an unsteady breath): two incommensurate slow
+        sines, 0.6 and 0.4 of the peak, at ``wander_hz`` and 1.73 x ``wander_hz``.
+    wander_hz : float > 0, Hz
+        Rate of the slower of the two.
+    wander_phase : float, radians
+        Phase of the wander (different notes wander differently).
     """
 
     f0_hz: float
@@ -116,6 +128,11 @@ class NoteEvent:
     jump_level_db: float | None = None
     attack_s: float = 0.03
     release_s: float = 0.02
+    onset_cents: float = 0.0
+    onset_decay_s: float = 0.05
+    wander_cents: float = 0.0
+    wander_hz: float = 0.7
+    wander_phase: float = 0.0
 
     @property
     def jump_transition_s(self) -> float:
@@ -226,6 +243,13 @@ def _controls(ev: NoteEvent, t: NDArray[np.float64]) -> _Controls:
     cents = ev.cents_per_db * (level - ev.level_dbfs)
     if ev.vibrato_cents:
         cents = cents + ev.vibrato_cents * np.sin(2.0 * np.pi * ev.vibrato_hz * t)
+    if ev.onset_cents:
+        cents = cents + ev.onset_cents * np.exp(-t / ev.onset_decay_s)
+    if ev.wander_cents:
+        w = 2.0 * np.pi * ev.wander_hz * t
+        cents = cents + ev.wander_cents * (
+            0.6 * np.sin(w + ev.wander_phase) + 0.4 * np.sin(1.73 * w + 2.0 * ev.wander_phase + 1.0)
+        )
     fingered = ev.f0_hz * 2.0 ** (cents / 1200.0)
     env = _raised_cosine(t / ev.attack_s) * _raised_cosine((ev.duration_s - t) / ev.release_s)
     return _Controls(fingered, level, crossfade, weaken, env)
@@ -236,7 +260,8 @@ def _max_fingered_hz(ev: NoteEvent) -> float:
     lo = min(0.0, ev.crescendo_db) + min(0.0, ev.jump_step_db)
     hi = max(0.0, ev.crescendo_db) + max(0.0, ev.jump_step_db)
     drift = max(ev.cents_per_db * lo, ev.cents_per_db * hi)
-    return float(ev.f0_hz * 2.0 ** ((abs(ev.vibrato_cents) + max(0.0, drift)) / 1200.0))
+    extra = abs(ev.vibrato_cents) + max(0.0, drift) + max(0.0, ev.onset_cents) + ev.wander_cents
+    return float(ev.f0_hz * 2.0 ** (extra / 1200.0))
 
 
 def _validate(ev: NoteEvent, index: int, sample_rate: float) -> None:
@@ -262,6 +287,13 @@ def _validate(ev: NoteEvent, index: int, sample_rate: float) -> None:
         raise ValueError(
             f"{where}: vibrato_cents {ev.vibrato_cents} must be >= 0 and vibrato_hz "
             f"{ev.vibrato_hz} > 0"
+        )
+    if not (np.isfinite(ev.onset_cents) and ev.onset_decay_s > 0):
+        raise ValueError(f"{where}: onset_cents {ev.onset_cents} must be finite and onset_decay_s {ev.onset_decay_s} > 0")
+    if not (ev.wander_cents >= 0 and ev.wander_hz > 0 and np.isfinite(ev.wander_phase)):
+        raise ValueError(
+            f"{where}: wander_cents {ev.wander_cents} must be >= 0, wander_hz {ev.wander_hz} > 0 "
+            f"and wander_phase {ev.wander_phase} finite"
         )
     if ev.weaken_s < 0 or ev.weaken_db > 0:
         raise ValueError(f"{where}: weaken_s {ev.weaken_s} must be >= 0 and weaken_db {ev.weaken_db} <= 0")

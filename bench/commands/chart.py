@@ -119,6 +119,11 @@ def run_chart(args: argparse.Namespace) -> int:
         )
     print(f"captures: {session.captures_from} ({len(session.captures)})")
     print(format_text_chart(chart), end="")
+    if session.readings is not None:
+        from bench.workflow.captures import skipped_notes
+
+        for skip in skipped_notes(session.readings, profile=session.profile):
+            print(f"not captured: {skip}")
     curves = find_blowing_curves(session.readings) if session.readings is not None else []
     for curve in curves:
         print(curve.describe())

@@ -4,7 +4,11 @@
 The loop is rendered once by :mod:`dsp.synth` when the source starts, then handed out
 block by block at real-time pace, over and over. It climbs the first register and
 into the second, with a few things worth fixing on the bench: a flat A4, a sharp-ish
-C6, a slightly flat E5, one note overblown into the octave and one vented octave.
+C6, a slightly flat E5, one note blown in a crescendo until it breaks into the octave (the
+blowing curve then shows a slope and a break level) and one vented octave.
+
+Each member of the family plays its own instrument: the Wren's scale moved to the lowest note
+of the profile asked for (the soprano's scale starts on C5, the tenor's on C4 ...).
 """
 
 from __future__ import annotations
@@ -25,6 +29,7 @@ from bench.sources.base import (
 )
 
 if TYPE_CHECKING:
+    from bench.workflow.profiles import InstrumentProfile
     from dsp.synth import NoteEvent
 
 INSTRUMENT = "Hollin Lane Flute Works 'Wren' alto in F"
@@ -44,6 +49,10 @@ class DemoNote:
     duration_s : float, seconds
     jump : "overblown" | "vented" | None
         A register jump part-way through the note.
+    level_dbfs : float, dBFS
+        Level the note starts at.
+    crescendo_db : float, dB
+        Level rise over the note (a crescendo; an overblown note breaks at its top).
     """
 
     midi: int
@@ -51,6 +60,7 @@ class DemoNote:
     duration_s: float = 1.1
     jump: Literal["overblown", "vented"] | None = None
     level_dbfs: float = -20.0
+    crescendo_db: float = 0.0
 
 
 # F major over two registers, lowest note F4 (MIDI 65), then a short way down.
@@ -59,7 +69,8 @@ DEMO_SCALE: tuple[DemoNote, ...] = (
     DemoNote(67, -3),  # G4
     DemoNote(69, -19),  # A4: flat, the thumb hole wants undercutting
     DemoNote(70, +4),  # Bb4
-    DemoNote(72, +1, duration_s=1.6, jump="overblown"),  # C5 blown too hard: jumps up
+    DemoNote(72, +1),  # C5
+    DemoNote(72, +1, duration_s=3.0, jump="overblown", level_dbfs=-26.0, crescendo_db=12.0),  # C5 crescendo: breaks
     DemoNote(74, -2),  # D5
     DemoNote(76, -12),  # E5: a little flat
     DemoNote(77, +3),  # F5
@@ -74,33 +85,65 @@ DEMO_SCALE: tuple[DemoNote, ...] = (
 )
 
 
-def demo_events(a4_hz: float = 440.0) -> list[NoteEvent]:
-    """The demo loop as :class:`dsp.synth.NoteEvent` objects (pitch at ``a4_hz``)."""
+def demo_transpose(profile: str | InstrumentProfile | None) -> int:
+    """Semitones the Wren's scale moves for ``profile`` (its lowest note minus F4; 0 for None).
+
+    >>> demo_transpose("soprano"), demo_transpose("tenor"), demo_transpose(None)
+    (7, -5, 0)
+    """
+    if profile is None:
+        return 0
+    from bench.workflow.profiles import get_profile
+
+    prof = get_profile(profile) if isinstance(profile, str) else profile
+    return prof.lowest_midi - DEMO_SCALE[0].midi
+
+
+def demo_events(a4_hz: float = 440.0, profile: str | InstrumentProfile | None = None) -> list[NoteEvent]:
+    """The demo loop as :class:`dsp.synth.NoteEvent` objects (pitch at ``a4_hz``), played
+    on the family member ``profile`` (a name or a profile; None: the alto)."""
     from dsp.synth import NoteEvent
 
+    shift = demo_transpose(profile)
     events = []
     for i, note in enumerate(DEMO_SCALE):
-        f0_hz = a4_hz * 2 ** ((note.midi - 69) / 12) * 2 ** (note.cents / 1200)
+        f0_hz = a4_hz * 2 ** ((note.midi + shift - 69) / 12) * 2 ** (note.cents / 1200)
         events.append(
             NoteEvent(
                 f0_hz,
                 note.duration_s,
                 level_dbfs=note.level_dbfs,
-                vibrato_cents=4.0 if i % 3 == 2 else 0.0,
+                vibrato_cents=4.0 if i % 3 == 2 and not note.crescendo_db else 0.0,
                 gap_s=0.18,
-                jump_at_s=None if note.jump is None else note.duration_s * 0.45,
+                crescendo_db=note.crescendo_db,
+                # blowing harder sharpens a duct flute (common practice; ~0.5 c/dB from memory)
+                cents_per_db=0.5 if note.crescendo_db else 0.0,
+                jump_at_s=None if note.jump is None else note.duration_s * (0.8 if note.crescendo_db else 0.45),
                 jump_kind=note.jump,
+                weaken_s=0.12 if note.crescendo_db else 0.0,
             )
         )
     return events
 
 
-def render_demo_loop(sample_rate: int, seed: int = 7) -> NDArray[np.float32]:
-    """Render one pass of the demo loop (mono float32 at ``sample_rate`` Hz, ~25 s)."""
+def render_demo_loop(
+    sample_rate: int, seed: int = 7, profile: str | InstrumentProfile | None = None
+) -> NDArray[np.float32]:
+    """Render one pass of the demo loop (mono float32 at ``sample_rate`` Hz, ~30 s)."""
     from dsp.synth import render
 
-    audio = np.asarray(render(demo_events(), sample_rate, seed=seed).audio, dtype=np.float32)
+    audio = np.asarray(render(demo_events(profile=profile), sample_rate, seed=seed).audio, dtype=np.float32)
     return np.ascontiguousarray(audio.reshape(-1))
+
+
+def demo_instrument(profile: str | InstrumentProfile | None = None) -> str:
+    """What the demo plays for ``profile`` (the Wren alto for None)."""
+    if profile is None:
+        return INSTRUMENT
+    from bench.workflow.profiles import get_profile
+
+    prof = get_profile(profile) if isinstance(profile, str) else profile
+    return f"Hollin Lane Flute Works 'Wren' {prof.title}"
 
 
 class DemoSource:
@@ -117,6 +160,8 @@ class DemoSource:
         Time source for pacing; the system clock by default.
     loops : int or None
         Passes to play before ``ended`` turns True; None loops forever.
+    profile : str, InstrumentProfile or None
+        Family member to play (its own compass); None: the alto.
     """
 
     def __init__(
@@ -127,6 +172,7 @@ class DemoSource:
         realtime: bool = True,
         clock: Clock | None = None,
         loops: int | None = None,
+        profile: str | InstrumentProfile | None = None,
     ) -> None:
         if not 8000 <= sample_rate <= 192000:
             raise DeviceError(f"demo sample rate {sample_rate} Hz is out of range; use 8000-192000")
@@ -139,7 +185,8 @@ class DemoSource:
         self.dropped_blocks = 0
         self.input_latency_s = 0.0
         self.ended = False
-        self.description = f"demo: {INSTRUMENT}, {self.sample_rate} Hz"
+        self.profile = profile
+        self.description = f"demo: {demo_instrument(profile)}, {self.sample_rate} Hz"
         self._pacer = PacedBlocks(
             self.sample_rate, self.block_size, realtime=realtime, clock=clock or SystemClock()
         )
@@ -155,7 +202,7 @@ class DemoSource:
 
     def _rendered(self) -> NDArray[np.float32]:
         if self._audio is None:
-            self._audio = render_demo_loop(self.sample_rate)
+            self._audio = render_demo_loop(self.sample_rate, profile=self.profile)
         return self._audio
 
     def start(self) -> None:

@@ -16,8 +16,12 @@ Method
   ``slope = Sxy / Sxx``, standard error ``sqrt(sum(r**2) / (n - 2) / Sxx)`` -- the same as
   ``scipy.stats.linregress``. The standard error treats frames as independent; analysis
   frames overlap, so it is optimistic by roughly the square root of the overlap factor.
+* Frames the register monitor marks "weakening" (the harmonics the next mode lacks fading
+  before a break, which lowers the level) are left out of the fit.
 * Break level: the median level of the held note's frames from 100 ms to 40 ms before the
-  first "jumped" frame -- the blowing level that broke the note, clear of the change itself
+  first "jumped" frame, or before the start of the weakening that led to it (a weakening
+  drops the level several dB, and reading the level there put the break below the level the
+  note was played at) -- the blowing level that broke the note, clear of the change itself
   (which takes some 30 ms and is smeared by the analysis window; an overblown break often steps
   the level up several dB). When no frame lies in that span, the last frame before the jump.
   In a crescendo of R dB/s this reads about 0.07 R dB low. ``jumped_level_dbfs`` is the level of
@@ -66,25 +70,40 @@ class LineFit:
 
 
 class LevelHistory:
-    """Levels of the last few tenths of a second, to read the level just before a break."""
+    """Levels of the last few tenths of a second, to read the level just before a break.
+
+    A break is often announced by a *weakening* (the harmonics the next mode lacks fade,
+    which lowers the level by several dB before the jump): the break level is then read
+    before the weakening began, where the player was still blowing the note.
+    """
 
     def __init__(self, keep_s: float = 0.25) -> None:
         self.keep_s = keep_s
         self._items: deque[tuple[float, float]] = deque()
+        self._weak_since: float | None = None
 
     def clear(self) -> None:
         self._items.clear()
+        self._weak_since = None
 
-    def add(self, time_s: float, level_dbfs: float) -> None:
+    def add(self, time_s: float, level_dbfs: float, weakening: bool = False) -> None:
+        """One frame's level; ``weakening``: the register monitor warns of a break."""
+        if weakening:
+            if self._weak_since is None:
+                self._weak_since = time_s
+            return  # the fading level is not the blowing level
+        self._weak_since = None
         if not math.isfinite(level_dbfs):
             return
         self._items.append((time_s, level_dbfs))
-        while self._items and self._items[0][0] < time_s - self.keep_s:
+        while self._items and self._items[0][0] < time_s - max(self.keep_s, 2.0):
             self._items.popleft()
 
     def break_level(self, jump_time_s: float) -> float | None:
-        """Median level from 100 ms to 40 ms before ``jump_time_s``; else the last level."""
-        lo, hi = jump_time_s - BREAK_LOOKBACK_S[0], jump_time_s - BREAK_LOOKBACK_S[1]
+        """Median level from 100 ms to 40 ms before ``jump_time_s`` -- or before the start of
+        the weakening that led to it --; else the last level."""
+        ref = self._weak_since if self._weak_since is not None else jump_time_s
+        lo, hi = ref - BREAK_LOOKBACK_S[0], ref - BREAK_LOOKBACK_S[1]
         span = [lv for t, lv in self._items if lo - 1e-9 <= t <= hi + 1e-9]
         if span:
             return statistics.median(span)
@@ -372,7 +391,9 @@ class BlowingCurveTracker:
             return run.curve()
         if run.broken or p.cents is None or not math.isfinite(p.level_dbfs):
             return None
-        run.history.add(p.time_s, p.level_dbfs)
+        run.history.add(p.time_s, p.level_dbfs, weakening=p.register_state == "weakening")
+        if p.register_state == "weakening":
+            return None  # harmonics fading before a break: not the note as blown
         if p.time_s - run.start_s < ATTACK_S - 1e-9:
             return None
         run.offer(p.time_s, p.level_dbfs, p.cents)

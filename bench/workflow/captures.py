@@ -1,44 +1,47 @@
-"""Captures: what each note did, kept once it has settled.
+"""Captures: what each held note did, kept once it is over.
 
-A *capture* sums up one steady stretch of one note: its median corrected cents, how much the
-frames spread, its level and harmonic balance, the settings it was measured under, and how
+A *capture* sums up the steady state of one held note: its median corrected cents, how much
+its frames spread, its level and harmonic balance, the settings it was measured under, and how
 much louder it could be blown before it broke into the next register (when that was seen).
 
-When is a note settled?  (defaults of :class:`CaptureThresholds`)
+One capture per held note and pass (defaults of :class:`CaptureThresholds`):
 
-* a *run* is a sequence of voiced readings mapped to the same note, in the same sounding mode
-  and under the same settings, cut by the held-note rule of :mod:`bench.segment` (a gap over
-  :data:`~bench.segment.GAP_S`, 60 ms, beyond the spacing of the readings, or another note
-  lasting :data:`~bench.segment.STRAY_S`; shorter strays are skipped);
-* the first :data:`~bench.segment.ATTACK_S` (150 ms) of a run are the attack and are never used;
-* the run is *settled* once every frame of the last ``settle_s`` (300 ms) lies within
-  ``tolerance_cents`` (±3 c) of those frames' median; that median is the stretch's reference;
-* the steady stretch goes on while frames stay within ±3 c of the reference (stray frames,
-  off in pitch, are skipped for up to :data:`~bench.segment.GAP_S`); it ends when frames stay
-  outside for that long, when the run ends, or when the sound stops. Its frames make one
-  capture.
+* a *held note* is cut by the one rule of :mod:`bench.segment` (:class:`~bench.segment.NoteSegmenter`,
+  keyed on the fingered note and the settings); it is judged when it ends;
+* a capture describes the *fingered* note. When the held note broke into another register
+  (the register monitor's "jumped" state: overblown or vented while the fingering was held),
+  the capture stays under the fingered note, marked with the jump kind and the mode it
+  sounded in, its cents from the steady part before the break (the frames from
+  :data:`~bench.segment.GAP_S` before the break and the "weakening" that announced it are left
+  out); without a steady part before the break its cents are empty. Frames of another
+  sounding note or mode inside the held note (an octave slip) are left out;
+* the steady part runs from the end of the attack to the release, judged by what the signal
+  does, not by fixed times (:func:`find_steady_part`): the release is trimmed where the level
+  falls fast, the attack where the level still rises fast and where the pitch has not yet
+  settled on the note's later median (a decaying overshoot, the upper harmonics speaking
+  first, the chiff), judged on a running median of five frames so that the few cents of
+  frame-to-frame noise of a room or a breath do not cut the note;
+* its cents are the median of the steady part, its spread the scaled median absolute
+  deviation ``1.4826 * median(|c - median(c)|)`` (a robust standard deviation, equal to σ for
+  normal data; scipy.stats.median_abs_deviation with ``scale="normal"``): a slow breath
+  wander and a light vibrato widen the spread without moving the median far;
+* a steady part whose level climbs faster than ``max_level_drift_db_per_s`` (a crescendo)
+  keeps only its start, at the level the note was played at;
+* no capture, with the reason kept (:attr:`CaptureDetector.last_skip`,
+  :attr:`CaptureDetector.skips`): too short (a steady part under ``settle_s``), unsteady (the
+  pitch never settled, or spread over ``max_spread_cents``), or locked to another note (a
+  locked capture further than ``max_offset_cents`` from the locked note: no fingering of it
+  sounds there). Held notes shorter than :data:`~bench.segment.MIN_NOTE_S` are blips, not
+  notes.
 
-Spread is the scaled median absolute deviation of the stretch's corrected cents,
-``1.4826 * median(|c - median(c)|)``: a robust estimate of the frame-to-frame standard
-deviation (equals σ for normally distributed frames; scipy.stats.median_abs_deviation with
-``scale="normal"``).
+Register: the register the instrument profile gives the fingered note (without a profile, 1).
 
-A crescendo or diminuendo is a blowing curve, not a capture: a stretch whose level changes
-faster than ``max_level_drift_db_per_s`` (2 dB/s, least-squares slope of level against time)
-is not captured automatically.
-
-Register: when the frames are in a "jumped" state (the held note broke into another mode
-while the same fingering was held), the sounding mode from the ratio of the sounding to the
-held fundamental (2 octave, 3 twelfth ...); otherwise the register the instrument profile puts
-the sounding note in (the player chose the fingering); without a profile, the mode if known,
-else 1.
-
-Register margin: when the held note broke into the next register (the first frame of a held
-note whose register state is "jumped", e.g. at the top of a crescendo), the margin of every
-capture of that note under the same settings -- before or after -- is the newest such break
-level minus the capture's level, dB. The break level is read as in :mod:`bench.workflow.blowing` (median
-level from 100 ms to 40 ms before the first jumped frame: the blowing level that broke the
-note, clear of the change itself).
+Register margin: when the held note broke by overblowing (the first "jumped" frame, e.g. at
+the top of a crescendo), the margin of every capture of that note under the same settings --
+before or after, and the broken capture itself -- is the newest break level minus the
+capture's level, dB. The break level is read as in :mod:`bench.workflow.blowing` (median level
+from 100 ms to 40 ms before the first jumped frame, or before the weakening that led to it).
+A vented jump is a leak, not the top of the note's dynamic range: it gives no margin.
 
 File format (``<log stem>.captures.csv`` beside the frame log), UTF-8 CSV with ``\\r\\n`` line
 ends and a header row, columns :data:`CAPTURE_COLUMNS`; a row with an ``index`` seen before
@@ -58,10 +61,13 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Literal, Self
 
+import numpy as np
+from numpy.typing import NDArray
+
 from bench.errors import LogError
 from bench.framelog import number_cell, safe_cell
 from bench.reading import Reading, SettingsKey
-from bench.segment import ATTACK_S, GAP_S, NoteSegmenter
+from bench.segment import GAP_S, MIN_NOTE_S, NoteSegmenter
 from bench.workflow.blowing import LevelHistory, fit_line
 from bench.workflow.profiles import InstrumentProfile
 
@@ -71,16 +77,24 @@ __all__ = [
     "CaptureDetector",
     "CaptureFile",
     "CaptureThresholds",
+    "Skip",
+    "SteadyPart",
     "capture_from_points",
     "capture_row",
     "captures_from_readings",
     "captures_path_for",
+    "find_steady_part",
     "read_captures",
     "scaled_mad",
+    "skipped_notes",
     "write_captures",
 ]
 
 CaptureSource = Literal["auto", "manual"]
+
+MAX_NOTE_FRAMES = 40_000
+"""Most readings of one held note kept for its capture (over three minutes at a 5 ms hop);
+a longer note is judged on its newest readings."""
 
 CAPTURE_COLUMNS: tuple[str, ...] = (
     "index", "label", "source", "note", "midi", "register", "mode", "jump",
@@ -93,10 +107,12 @@ CAPTURE_COLUMNS: tuple[str, ...] = (
 )  # fmt: skip
 """Columns of a captures file, in this order.
 
-index (1, 2 ...), label (session label in force), source (auto | manual), note (sounding,
-as the log spelled it), midi, register (1, 2, 3 ...), mode (sounding mode from the held note,
-blank if unknown), jump (overblown | vented when the capture is of a held note that broke
-into that mode, else blank), start_s / end_s (seconds, frame-log time of the first and last frame used),
+index (1, 2 ...), label (session label in force), source (auto | manual), note (the fingered
+note, as the log spelled it; the locked note when one was locked), midi, register (1, 2, 3 ...:
+the profile's register of the note), mode (sounding mode: the one it broke into when it broke;
+blank if unknown), jump (overblown | vented when the held note broke into another register,
+else blank; cents are then those of the steady part before the break, blank when there was
+none), start_s / end_s (seconds, frame-log time of the first and last frame used),
 frames (count), cents (median, corrected to the reference temperature), cents_spread (scaled
 MAD, cents), cents_raw (median, uncorrected), f0_hz / target_hz (median, Hz), level_dbfs
 (median), level_min_dbfs / level_max_dbfs, odd_even_db and h1_db..h8_db (medians, dB re the
@@ -111,27 +127,48 @@ CAPTURES_LIMIT_BYTES = 64 << 20
 
 @dataclass(frozen=True, slots=True)
 class CaptureThresholds:
-    """When a note counts as settled (see the module docstring).
+    """How a held note's steady part is found (see the module docstring).
 
     Attributes
     ----------
     settle_s : float > 0, seconds
-        How long the note must stay within ``tolerance_cents`` before it counts (300 ms).
+        Shortest steady part that makes a capture (300 ms).
     tolerance_cents : float > 0, cents
-        Half-width of the steadiness band (3 c).
+        Least half-width of the band the pitch must settle in at the end of the attack (3 c;
+        wider for a note whose frames spread more: 2.5 x their scaled MAD).
     manual_s : float > 0, seconds
         Default span of :meth:`CaptureDetector.capture_now` (the last 0.5 s).
     max_level_drift_db_per_s : float > 0, dB/s
-        Automatic captures skip stretches whose level changes faster (a crescendo).
+        A steady part whose level climbs faster is a crescendo: only its start, at the
+        level the note was played at, is used.
+    level_lag_s : float > 0, seconds
+        Span over which a rise (attack) or fall (release) of level is judged (50 ms).
+    release_drop_db : float > 0, dB
+        Level change over ``level_lag_s`` that marks the attack or the release (3 dB: a
+        crescendo of 60 dB/s would be needed to reach it while playing).
+    hold_s : float > 0, seconds
+        How long the pitch must stay in the band for the attack to be over (60 ms).
+    max_spread_cents : float > 0, cents
+        A steady part spreading more (scaled MAD) is unsteady (25 c: wider than a light
+        vibrato of ±15 c, whose scaled MAD is about 16 c).
+    max_offset_cents : float > 0, cents
+        A locked capture further than this from the locked note is refused: no fingering
+        of the locked note sounds there (100 c, one semitone).
     """
 
     settle_s: float = 0.30
     tolerance_cents: float = 3.0
     manual_s: float = 0.5
     max_level_drift_db_per_s: float = 2.0
+    level_lag_s: float = 0.05
+    release_drop_db: float = 3.0
+    hold_s: float = 0.06
+    max_spread_cents: float = 25.0
+    max_offset_cents: float = 100.0
 
     def __post_init__(self) -> None:
-        for name in ("settle_s", "tolerance_cents", "manual_s", "max_level_drift_db_per_s"):
+        for name in ("settle_s", "tolerance_cents", "manual_s", "max_level_drift_db_per_s", "level_lag_s",
+                     "release_drop_db", "hold_s", "max_spread_cents", "max_offset_cents"):
             if not getattr(self, name) > 0:
                 raise ValueError(f"{name} {getattr(self, name)!r} must be > 0")
 
@@ -202,13 +239,11 @@ def _median_or_none(values: Iterable[float | None]) -> float | None:
     return statistics.median(got) if got else None
 
 
-def _register_for(point: Reading, profile: InstrumentProfile | None) -> int:
-    mode = point.mode
-    if point.register_state == "jumped" and mode is not None and mode > 1:
-        return mode
-    if profile is not None and point.midi is not None:
-        return profile.register_of(point.midi)
-    return mode or 1
+def _register_for(midi: int, profile: InstrumentProfile | None) -> int:
+    """Register of the fingered note: the profile's, else 1."""
+    if profile is not None:
+        return profile.register_of(midi)
+    return 1
 
 
 def capture_from_points(
@@ -219,22 +254,35 @@ def capture_from_points(
     source: CaptureSource = "auto",
     profile: InstrumentProfile | None = None,
     break_level_dbfs: float | None = None,
+    jumped: Reading | None = None,
+    jump_mode: int | None = None,
+    no_steady: bool = False,
 ) -> Capture:
-    """Sum up voiced points of one note as a :class:`Capture`.
+    """Sum up voiced points of one fingered note as a :class:`Capture`.
 
     Parameters
     ----------
     points : sequence of Reading
-        Voiced frames of one note (the first one gives note, mode and settings).
+        Steady voiced frames of one fingered note (the first one gives note, settings and
+        the mode it sounded in).
     index : int
         Capture number within the session.
     label : str
         Session label in force.
     source : "auto" | "manual"
     profile : InstrumentProfile or None
-        Gives the register of first-mode notes.
+        Gives the register of the fingered note.
     break_level_dbfs : float or None, dBFS
-        Level at which this note broke into the next register, if known.
+        Level at which this note broke into the next register (overblown), if known.
+    jumped : Reading or None
+        First frame of the note in another register when it broke: the capture is marked
+        with its jump kind and the mode it sounded in.
+    jump_mode : int or None
+        That mode when known from more frames than the first (which may still read the old
+        one); else ``jumped.mode``.
+    no_steady : bool
+        The note broke before it was ever steady: ``points`` only name the note; cents,
+        spread, f0 and level are left empty (NaN).
 
     Raises
     ------
@@ -245,37 +293,45 @@ def capture_from_points(
     if not voiced:
         raise ValueError("no voiced frames to capture; play a note first")
     first = voiced[0]
+    nan = math.nan
     cents = [p.cents for p in voiced if p.cents is not None]
     levels = [p.level_dbfs for p in voiced if math.isfinite(p.level_dbfs)]
-    level = statistics.median(levels) if levels else -math.inf
+    level = statistics.median(levels) if levels and not no_steady else -math.inf
     harmonics = tuple(_median_or_none(p.harmonics_db[k] for p in voiced) for k in range(8))
-    mode = first.mode
-    jumped = first.register_state == "jumped"
+    if no_steady:
+        harmonics = (None,) * 8
     margin = None
-    if break_level_dbfs is not None and not jumped and math.isfinite(level):
+    if break_level_dbfs is not None and math.isfinite(level):
         margin = break_level_dbfs - level
+    # the fingered note: the one the register monitor held when the note broke; else the
+    # note sounding (a note fingered in the second register from the start is that note)
+    named = first.held if jumped is not None and first.held is not None else first.mapping
+    assert named is not None  # voiced
+    mode = first.mode
+    if jumped is not None:
+        mode = jump_mode if jump_mode is not None else jumped.mode
     s = first.key
     return Capture(
         index=index,
         label=label,
         source=source,
-        note=first.note,
-        midi=int(first.midi) if first.midi is not None else 0,
-        register=_register_for(first, profile),
+        note=named.note,
+        midi=named.midi,
+        register=_register_for(named.midi, profile),
         mode=mode,
-        jump=(first.jump or "jumped") if jumped else "",
+        jump=((jumped.jump or "jumped") if jumped is not None else ""),
         start_s=voiced[0].time_s,
-        end_s=voiced[-1].time_s,
-        frames=len(voiced),
-        cents=statistics.median(cents),
-        cents_spread=scaled_mad(cents),
-        cents_raw=_median_or_none(p.cents_raw for p in voiced) or 0.0,
-        f0_hz=_median_or_none(p.f0_hz for p in voiced) or 0.0,
-        target_hz=_median_or_none(p.target_hz for p in voiced) or 0.0,
+        end_s=voiced[-1].time_s if not no_steady else voiced[0].time_s,
+        frames=0 if no_steady else len(voiced),
+        cents=nan if no_steady else statistics.median(cents),
+        cents_spread=nan if no_steady else scaled_mad(cents),
+        cents_raw=nan if no_steady else (_median_or_none(p.cents_raw for p in voiced) or 0.0),
+        f0_hz=nan if no_steady else (_median_or_none(p.f0_hz for p in voiced) or 0.0),
+        target_hz=named.target_hz,
         level_dbfs=level,
-        level_min_dbfs=min(levels) if levels else -math.inf,
-        level_max_dbfs=max(levels) if levels else -math.inf,
-        odd_even_db=_median_or_none(p.odd_even_db for p in voiced),
+        level_min_dbfs=min(levels) if levels and not no_steady else -math.inf,
+        level_max_dbfs=max(levels) if levels and not no_steady else -math.inf,
+        odd_even_db=None if no_steady else _median_or_none(p.odd_even_db for p in voiced),
         harmonics_db=harmonics,
         register_margin_db=margin,
         break_level_dbfs=break_level_dbfs if margin is not None else None,
@@ -288,15 +344,142 @@ def capture_from_points(
     )
 
 
-def _run_key_of(p: Reading) -> tuple[int, int | None, bool, SettingsKey] | None:
-    """Readings of one run share note, mode, jumped state and settings (None: unvoiced)."""
-    if not p.voiced or p.midi is None:
+def _run_key_of(p: Reading) -> tuple[int, SettingsKey] | None:
+    """Readings of one manual capture share the fingered note and settings (None: unvoiced)."""
+    if not p.voiced or p.held_midi is None:
         return None
-    return (p.midi, p.mode, p.register_state == "jumped", p.key)
+    return (p.held_midi, p.key)
+
+
+def _running_median(values: NDArray[np.float64], half: int) -> NDArray[np.float64]:
+    """Median of each value with ``half`` neighbours either side (fewer at the ends)."""
+    n = values.size
+    out = np.empty(n)
+    for i in range(n):
+        out[i] = float(np.median(values[max(0, i - half) : i + half + 1]))
+    return out
+
+
+@dataclass(frozen=True, slots=True)
+class SteadyPart:
+    """Where a held note was steady: indices into its pre-break frames, or why it was not."""
+
+    first: int
+    last: int
+    reason: str | None
+
+
+def find_steady_part(
+    times_s: Sequence[float],
+    cents: Sequence[float],
+    levels_dbfs: Sequence[float],
+    thresholds: CaptureThresholds,
+) -> SteadyPart:
+    """The steady part of one held note's voiced frames (before any break).
+
+    Judged from the signal, not by fixed times (see the module docstring):
+
+    1. the *release* is trimmed from the end while the level lies more than
+       ``release_drop_db`` under its level ``level_lag_s`` earlier (a note's level falls
+       fast when the breath stops; a room's decay is still a fall);
+    2. the *attack* is trimmed from the start while the level still rises by more than
+       ``release_drop_db`` over the next ``level_lag_s``;
+    3. the *reference* is the median of the second half of what is left; the attack ends at
+       the first frame from which the deviation from that reference, running median over
+       five frames (frame-to-frame noise), stays within ``max(tolerance_cents,
+       2.5 x scaled MAD of the second half)`` for ``hold_s`` (a decaying overshoot, the
+       upper harmonics speaking first, the chiff: all pull the pitch off at the start).
+
+    Parameters
+    ----------
+    times_s, cents, levels_dbfs : sequences of float (seconds, cents, dBFS), equal lengths
+    thresholds : CaptureThresholds
+
+    Returns
+    -------
+    SteadyPart
+        ``reason`` None when the part spans at least ``settle_s``; else "too short" or
+        "unsteady" with the figures.
+    """
+    th = thresholds
+    t = np.asarray(times_s, dtype=np.float64)
+    # decisions on values rounded coarser than the frame log keeps them (cents 3 decimals,
+    # level 2), so a session live and read back from its log is cut at the same frames
+    c = np.asarray(np.round(np.asarray(cents, dtype=np.float64), 2), dtype=np.float64)
+    raw_lv = np.asarray(levels_dbfs, dtype=np.float64)
+    lv = np.asarray(np.round(np.where(np.isfinite(raw_lv), raw_lv, -200.0), 1), dtype=np.float64)
+    n = t.size
+    if n == 0:
+        return SteadyPart(0, -1, "too short (no voiced frames)")
+    length_s = float(t[-1] - t[0])
+    if length_s < th.settle_s:
+        return SteadyPart(0, n - 1, f"too short ({length_s:.2f} s; hold it at least {th.settle_s + 0.2:.1f} s)")
+    lag = th.level_lag_s
+    # release: the level falls
+    last = n - 1
+    while last > 0:
+        j = int(np.searchsorted(t, t[last] - lag))
+        if lv[last] >= lv[min(j, last)] - th.release_drop_db:
+            break
+        last -= 1
+    # attack: the level still rises
+    first = 0
+    while first < last:
+        j = int(np.searchsorted(t, t[first] + lag, side="right")) - 1
+        if lv[max(j, first)] <= lv[first] + th.release_drop_db:
+            break
+        first += 1
+    if t[last] - t[first] < th.settle_s:
+        return SteadyPart(first, last, f"too short ({t[last] - t[first]:.2f} s at a steady level)")
+    # attack: the pitch settles on the note's later median
+    mid = int(np.searchsorted(t, 0.5 * (t[first] + t[last])))
+    later = c[mid : last + 1]
+    ref = float(np.median(later))
+    spread = scaled_mad(list(later))
+    limit = max(th.tolerance_cents, 2.5 * spread)
+    dev = np.abs(_running_median(np.asarray(c[first : last + 1] - ref, dtype=np.float64), 2))
+    inside = dev <= limit
+    start = None
+    k = 0
+    while k < inside.size:
+        if inside[k]:
+            end_k = k
+            while end_k + 1 < inside.size and inside[end_k + 1]:
+                end_k += 1
+            if t[first + end_k] - t[first + k] >= th.hold_s or end_k == inside.size - 1:
+                start = first + k
+                break
+            k = end_k + 1
+        else:
+            k += 1
+    if start is None or t[last] - t[start] < th.settle_s:
+        return SteadyPart(first, last, "unsteady (the pitch never settled)")
+    steady = list(c[start : last + 1])
+    if scaled_mad(steady) > th.max_spread_cents:
+        return SteadyPart(start, last, f"unsteady (spread {scaled_mad(steady):.1f} c)")
+    return SteadyPart(start, last, None)
+
+
+def _jump_mode(frames: Sequence[Reading]) -> int | None:
+    """The mode most jumped frames sounded in (None: no jumped frame with a known mode)."""
+    modes = [q.mode for q in frames if q.register_state == "jumped" and q.mode is not None]
+    return statistics.mode(modes) if modes else None
+
+
+@dataclass(frozen=True, slots=True)
+class Skip:
+    """A held note that gave no capture, and why."""
+
+    time_s: float
+    note: str
+    reason: str
+
+    def __str__(self) -> str:
+        return f"{self.note} at {self.time_s:.2f} s not captured: {self.reason}"
 
 
 class CaptureDetector:
-    """Find settled notes in a stream of frames, one frame at a time.
+    """One capture per held note: its steady state, filed under the fingered note.
 
     Parameters
     ----------
@@ -306,7 +489,7 @@ class CaptureDetector:
         Session label put on each capture; change it with :attr:`label` between passes
         ("after undercutting hole 3").
     auto : bool
-        Capture settled notes automatically. When False, :meth:`push` only tracks the
+        Capture held notes automatically. When False, :meth:`push` only tracks the
         stream, and captures come from :meth:`capture_now`.
     thresholds : CaptureThresholds
     first_index : int
@@ -331,7 +514,7 @@ class CaptureDetector:
     >>> got = [det.push(pt(i * 0.01, 2.0 + 0.1 * (i % 3))) for i in range(100)]
     >>> cap = det.finish()
     >>> cap.note, round(cap.cents, 1), cap.frames, cap.start_s
-    ('A4', 2.1, 85, 0.15)
+    ('A4', 2.1, 100, 0.0)
     """
 
     def __init__(
@@ -355,23 +538,21 @@ class CaptureDetector:
     def reset(self) -> None:
         """Forget everything: back to the state after construction (label and auto kept)."""
         self.captures: list[Capture] = []
+        self.skips: list[Skip] = []
+        """Held notes that gave no capture, with the reason, oldest first."""
+        self.last_skip: str | None = None
+        """One line: why the newest held note (or capture request) gave no capture; None
+        once a capture is taken."""
         self._next_index = self._first_index
         self._updates: list[Capture] = []
         self._breaks: dict[tuple[int, SettingsKey], float] = {}
         self._recent: deque[Reading] = deque()
         self._held_levels = LevelHistory()
-        # settle run: the held note cut further by sounding note, mode and jumped state
-        self._runs = NoteSegmenter(key=_run_key_of)
-        self._run_start_s = 0.0
-        self._window: list[Reading] = []
-        self._post_attack_s: float | None = None
-        self._steady: list[Reading] = []
-        self._ref_cents: float | None = None
-        self._outliers: list[Reading] = []
-        # held note (for register margins)
         self._held = NoteSegmenter()
         self._held_key: tuple[int, SettingsKey] | None = None
         self._held_broken = False
+        # the held note's readings, bounded (a drone of hours keeps its newest minutes)
+        self._note: deque[Reading] = deque(maxlen=MAX_NOTE_FRAMES)
         self._capture_held: dict[int, tuple[int, SettingsKey]] = {}
 
     def take_updates(self) -> list[Capture]:
@@ -384,13 +565,22 @@ class CaptureDetector:
 
     @property
     def settled(self) -> bool:
-        """True while the current note is in a steady stretch."""
-        return self._ref_cents is not None
+        """True while the current held note has sounded steadily for ``settle_s``."""
+        if not self._note:
+            return False
+        pre = [p for p in self._note if p.register_state != "jumped" and p.cents is not None]
+        if not pre:
+            return False
+        part = find_steady_part(
+            [p.time_s for p in pre], [float(p.cents or 0.0) for p in pre],
+            [p.level_dbfs for p in pre], self.thresholds,
+        )  # fmt: skip
+        return part.reason is None
 
     # -- feeding -----------------------------------------------------------------------------
 
     def push(self, p: Reading) -> Capture | None:
-        """Feed one reading; return a capture when a steady stretch has just ended.
+        """Feed one reading; return a capture when a held note has just ended.
 
         Parameters
         ----------
@@ -407,58 +597,40 @@ class CaptureDetector:
             self._recent.append(p)
             while self._recent and self._recent[0].time_s < p.time_s - max(th.manual_s, 5.0):
                 self._recent.popleft()
-        self._track_held(p)
-        step = self._runs.push(p)
-        result = self._end_run() if step.ended else None
+        step = self._held.push(p)
+        result = None
+        if step.ended or step.started:
+            result = self._close_note()
+        if step.ended:
+            self._held_key = None
         if step.note_id is None:
             return result
-        if step.started:
-            if not step.ended:
-                result = self._end_run() or result
-            self._run_start_s = step.start_s
-        return self._feed(p) or result
-
-    def _feed(self, p: Reading) -> Capture | None:
-        """Advance the run with one of its voiced readings."""
-        th = self.thresholds
-        result: Capture | None = None
-        if p.time_s - self._run_start_s < ATTACK_S - 1e-9:
-            return result
-        if self._post_attack_s is None:
-            self._post_attack_s = p.time_s
-        if self._ref_cents is None:
-            self._settle(p)
-            return result
-        assert p.cents is not None
-        if abs(p.cents - self._ref_cents) <= th.tolerance_cents:
-            self._steady.append(p)
-            self._outliers = []
-            return result
-        self._outliers.append(p)
-        if p.time_s - self._outliers[0].time_s >= GAP_S:
-            ended = self._emit_stretch()
-            outliers = self._outliers
-            self._outliers = []
-            self._post_attack_s = outliers[0].time_s
-            for q in outliers:
-                self._settle(q)
-            return ended or result
+        if step.started or self._held_key is None:
+            held = p.held_midi
+            assert held is not None
+            self._held_key = (held, p.key)
+            self._held_broken = False
+            self._held_levels.clear()
+        self._note.append(p)
+        self._track_break(p)
         return result
 
     def finish(self) -> Capture | None:
-        """End of the stream: close the current stretch; return its capture if any."""
-        self._runs.finish()
+        """End of the stream: close the current held note; return its capture if any."""
         self._held.finish()
+        cap = self._close_note()
         self._held_key = None
-        return self._end_run()
+        return cap
 
     def capture_now(self, last_s: float | None = None, *, last_frames: int | None = None) -> Capture | None:
         """Capture the current note from the last ``last_s`` seconds, settled or not.
 
-        Uses the voiced frames of the newest note (same note, mode and settings) within
+        Uses the voiced frames of the newest fingered note (same note and settings) within
         ``last_s`` (default ``thresholds.manual_s``) of the newest frame, or its last
-        ``last_frames`` frames when that is given. Works with :attr:`auto` on or off.
-        Returns None when no voiced frame is at hand.
+        ``last_frames`` frames when that is given. Works with :attr:`auto` on or off. A note
+        that broke is filed under the fingered note, marked with its jump. Returns None
+        when no voiced frame is at hand or the capture is refused (:attr:`last_skip` says
+        why).
         """
         span = self.thresholds.manual_s if last_s is None else float(last_s)
         if last_frames is not None:
@@ -466,99 +638,146 @@ class CaptureDetector:
                 raise ValueError(f"last_frames {last_frames} must be >= 1")
             span = max(self.thresholds.manual_s, 5.0)
         if not self._recent:
+            self.last_skip = "nothing is sounding to capture"
             return None
         newest = self._recent[-1]
-        key_of = _run_key_of
-        key = key_of(newest)
+        key = _run_key_of(newest)
         picked: list[Reading] = []
         for q in reversed(self._recent):
-            if q.time_s < newest.time_s - span or key_of(q) != key:
+            if q.time_s < newest.time_s - span or _run_key_of(q) != key:
                 break
             picked.append(q)
             if last_frames is not None and len(picked) >= last_frames:
                 break
         picked.reverse()
-        return self._make(picked, "manual")
+        jumped = [q for q in picked if q.register_state == "jumped"]
+        pre = [q for q in picked if q.register_state != "jumped"]
+        if jumped:
+            first_jump = jumped[0].time_s
+            pre = [q for q in pre if q.time_s < first_jump]
+        return self._make(pre, "manual", jumped[0] if jumped else None, newest, _jump_mode(picked))
 
     # -- internals ---------------------------------------------------------------------------
 
-    def _settle(self, p: Reading) -> None:
-        """Add a post-attack frame to the settling window; mark settled when steady."""
-        th = self.thresholds
-        self._window.append(p)
-        cutoff = p.time_s - th.settle_s - 1e-9
-        while self._window and self._window[0].time_s < cutoff:
-            self._window.pop(0)
-        assert self._post_attack_s is not None
-        if p.time_s - self._post_attack_s < th.settle_s - 1e-9:
-            return
-        cents = [q.cents for q in self._window if q.cents is not None]
-        med = statistics.median(cents)
-        if all(abs(c - med) <= th.tolerance_cents for c in cents):
-            self._ref_cents = med
-            self._steady = list(self._window)
-            self._window = []
-
-    def _emit_stretch(self) -> Capture | None:
-        steady = self._steady
-        self._steady, self._ref_cents, self._window = [], None, []
-        if not steady or not self.auto:
+    def _close_note(self) -> Capture | None:
+        """The held note is over: its capture (when auto), or the reason there is none."""
+        frames = list(self._note)
+        self._note.clear()
+        if not frames or not self.auto:
             return None
+        if frames[-1].time_s - frames[0].time_s < MIN_NOTE_S:
+            return None  # a blip, not a note (bench.segment)
+        first_jump = next((q for q in frames if q.register_state == "jumped"), None)
+        pre = frames
+        if first_jump is not None:
+            # the steady part ends before the change of register (and its weakening)
+            cut = first_jump.time_s - GAP_S
+            pre = [q for q in frames if q.time_s < cut and q.register_state == "steady"]
+        # the sounding note and mode most of the note's frames read (stray octave slips out)
+        common = statistics.mode([(q.midi, q.mode) for q in pre]) if pre else None
+        pre = [q for q in pre if q.cents is not None and (q.midi, q.mode) == common]
+        part = find_steady_part(
+            [q.time_s for q in pre], [float(q.cents or 0.0) for q in pre],
+            [q.level_dbfs for q in pre], self.thresholds,
+        )  # fmt: skip
+        if part.reason is not None and first_jump is None:
+            self._skip(frames, part.reason)
+            return None
+        steady = pre[part.first : part.last + 1] if part.reason is None else []
+        steady = self._below_crescendo(steady)
+        return self._make(steady, "auto", first_jump, frames[0], _jump_mode(frames))
+
+    def _below_crescendo(self, steady: list[Reading]) -> list[Reading]:
+        """A steady part whose level climbs (a crescendo): keep the level it was played at
+        (frames within 1.5 dB of the level of its first ``settle_s``, up to the first one
+        blown harder); when that leaves less than ``settle_s``, the whole part."""
+        if len(steady) < 3:
+            return steady
         drift = fit_line([q.time_s for q in steady], [q.level_dbfs for q in steady])
-        if drift is not None and abs(drift.slope) > self.thresholds.max_level_drift_db_per_s:
-            return None  # a crescendo: see the blowing curve
-        return self._make(steady, "auto")
+        if drift is None or abs(drift.slope) <= self.thresholds.max_level_drift_db_per_s:
+            return steady
+        t0 = steady[0].time_s
+        head = [q.level_dbfs for q in steady if q.time_s <= t0 + self.thresholds.settle_s]
+        ref = statistics.median(head)
+        kept: list[Reading] = []
+        for q in steady:
+            if abs(q.level_dbfs - ref) > 1.5:
+                if q.level_dbfs > ref:
+                    break  # blown harder than the note was played at
+                continue
+            kept.append(q)
+        if not kept or kept[-1].time_s - kept[0].time_s < self.thresholds.settle_s:
+            return steady  # no steady level to keep: the whole steady part, as played
+        return kept
 
-    def _end_run(self) -> Capture | None:
-        cap = self._emit_stretch() if self._ref_cents is not None else None
-        self._post_attack_s = None
-        self._window, self._outliers = [], []
-        return cap
+    def _skip(self, frames: Sequence[Reading], reason: str) -> None:
+        first = frames[0]
+        skip = Skip(first.time_s, first.held_note, reason)
+        self.skips.append(skip)
+        self.last_skip = str(skip)
 
-    def _make(self, points: Sequence[Reading], source: CaptureSource) -> Capture | None:
-        if not points:
+    def _make(
+        self,
+        points: Sequence[Reading],
+        source: CaptureSource,
+        jumped: Reading | None,
+        first: Reading,
+        jump_mode: int | None = None,
+    ) -> Capture | None:
+        """A capture of the fingered note of ``first`` from ``points`` (its steady frames);
+        ``jumped`` is its first frame in another register when it broke."""
+        th = self.thresholds
+        if not points and jumped is None:
+            self.last_skip = "nothing is sounding to capture"
             return None
-        first = points[0]
         held = first.held_midi
+        if points:
+            med = statistics.median(float(q.cents or 0.0) for q in points)
+            if first.locked_midi is not None and abs(med) > th.max_offset_cents:
+                self._skip(
+                    points,
+                    f"locked to {first.locked_note or first.held_note} but the note sounded "
+                    f"{med:+.0f} c from it (beyond ±{th.max_offset_cents:g} c); lock the note you finger or unlock",
+                )
+                return None
         brk = None
-        if held is not None and first.register_state != "jumped":
+        if held is not None:
             brk = self._breaks.get((held, first.key))
         cap = capture_from_points(
-            points,
+            points or [first],
             index=self._next_index,
             label=self.label,
             source=source,
             profile=self.profile,
             break_level_dbfs=brk,
+            jumped=jumped,
+            jump_mode=jump_mode,
+            no_steady=not points,
         )
         self._next_index += 1
         self.captures.append(cap)
-        if held is not None and not cap.jump:
+        self.last_skip = None
+        if held is not None:
             self._capture_held[cap.index] = (held, first.key)
         return cap
 
-    def _track_held(self, p: Reading) -> None:
-        """Follow the held note; on its first jump record the break and fill margins."""
-        step = self._held.push(p)
-        if step.ended:
-            self._held_key = None
-        if step.note_id is None:
-            return
-        if step.started or self._held_key is None:
-            held = p.held_midi
-            assert held is not None
-            self._held_key = (held, p.key)
-            self._held_broken = False
-            self._held_levels.clear()
+    def _track_break(self, p: Reading) -> None:
+        """Follow the held note's level; at its first overblown frame record the break and
+        give every capture of the note its margin.
+
+        A vented jump is a leak, not a limit of the breath: it gives no margin."""
+        assert self._held_key is not None
         if p.register_state == "jumped":
             if not self._held_broken:
+                self._held_broken = True
+                if p.jump != "overblown":
+                    return
                 brk = self._held_levels.break_level(p.time_s)
                 level = brk if brk is not None else p.level_dbfs
-                self._held_broken = True
                 self._breaks[self._held_key] = level
                 self._fill_margins(self._held_key, level)
             return
-        self._held_levels.add(p.time_s, p.level_dbfs)
+        self._held_levels.add(p.time_s, p.level_dbfs, weakening=p.register_state == "weakening")
 
     def _fill_margins(self, key: tuple[int, SettingsKey], break_level_dbfs: float) -> None:
         """Give every capture of the held note ``key`` its margin to the newest break."""
@@ -590,6 +809,21 @@ def captures_from_readings(
         det.push(reading)
     det.finish()
     return list(det.captures)
+
+
+def skipped_notes(
+    readings: Iterable[Reading],
+    *,
+    profile: InstrumentProfile | None = None,
+    thresholds: CaptureThresholds | None = None,
+) -> list[Skip]:
+    """Held notes of a recording's readings that gave no automatic capture, with the reason
+    (too short, unsteady, locked to another note)."""
+    det = CaptureDetector(profile=profile, thresholds=thresholds)
+    for reading in readings:
+        det.push(reading)
+    det.finish()
+    return list(det.skips)
 
 
 # --- files --------------------------------------------------------------------------------

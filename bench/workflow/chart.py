@@ -5,11 +5,14 @@ Three outputs of one :class:`TuningChart`: a plain-text chart (:func:`format_tex
 summary CSV (:func:`write_summary_csv`) and a picture (:func:`plot_chart`, PNG or SVG through
 matplotlib's Agg backend; matplotlib is imported only inside the picture functions).
 
-Which capture counts: the latest (highest index) capture of each (note, register). A capture's
-register on the chart is its sounding mode when it was a held note that broke into mode 2 or
-more (overblown or vented while the fingering was held), else the register the chart's
-profile gives the note. Captures of notes outside the
-profile's compass, or in another register than the profile expects, are shown as extra entries.
+Which capture counts: the latest (highest index) capture of each (note, register) that did not
+break; a capture that broke counts only while the note has no other. A capture
+describes the fingered note, and its register is the one the chart's profile gives that note.
+A capture of a note that *broke* into another register (overblown or vented while the
+fingering was held) is shown as broken, with its jump kind and the mode it sounded: never as a
+checked capture (of the fingered note or of the note it jumped to). Captures of notes outside
+the profile's compass are shown as extra entries. One spelling per chart: sharps, or flats
+when asked.
 
 Cents are the corrected values: measured against the session's temperament, tonic and pitch
 standard, and corrected for air temperature to the reference temperature (see
@@ -20,6 +23,7 @@ from __future__ import annotations
 
 import csv
 import math
+import textwrap
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -34,6 +38,7 @@ from bench.workflow.profiles import InstrumentProfile
 
 if TYPE_CHECKING:
     from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
 
     from bench.workflow.blowing import BlowingCurve
 
@@ -43,6 +48,7 @@ __all__ = [
     "TuningChart",
     "build_chart",
     "capture_register",
+    "chart_figure",
     "describe_settings",
     "format_text_chart",
     "plot_chart",
@@ -53,14 +59,16 @@ GUIDE_CENTS = 5.0
 """Half-width of the guide band drawn on charts, cents (builders' usual aim for principal
 notes, REFERENCES §5 · from memory; also about one pitch JND, common practice)."""
 
-EntryStatus = Literal["checked", "unchecked", "extra"]
+EntryStatus = Literal["checked", "unchecked", "extra", "broken"]
 
 SUMMARY_COLUMNS: tuple[str, ...] = (
     "note", "written_note", "midi", "register", "status", "cents", "cents_spread", "cents_raw",
     "level_dbfs", "odd_even_db", "register_margin_db", "capture_index", "label",
-    "temperament", "tonic", "a4_hz", "temp_c", "ref_temp_c",
+    "temperament", "tonic", "a4_hz", "temp_c", "ref_temp_c", "jump",
 )  # fmt: skip
-"""Columns of the summary CSV (status: checked | unchecked | extra)."""
+"""Columns of the summary CSV (status: checked | unchecked | extra | broken; jump: empty,
+overblown or vented -- set on a broken entry, whose cents are those of the steady part before
+the break, if any)."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -90,9 +98,12 @@ class ChartEntry:
 
     @property
     def status(self) -> EntryStatus:
-        """checked, unchecked, or extra (captured but not in the profile's plan)."""
+        """checked, unchecked, extra (captured but not in the profile's plan), or broken (the
+        latest capture broke into another register: not a measurement of the note)."""
         if self.capture is None:
             return "unchecked"
+        if self.capture.jump:
+            return "broken"
         return "checked" if self.expected else "extra"
 
 
@@ -120,6 +131,10 @@ class TuningChart:
         """Expected entries without a capture."""
         return [e for e in self.entries if e.capture is None]
 
+    def broken(self) -> list[ChartEntry]:
+        """Entries whose latest capture broke into another register."""
+        return [e for e in self.entries if e.status == "broken"]
+
     def checked(self) -> list[ChartEntry]:
         """Entries with a capture (expected or extra)."""
         return [e for e in self.entries if e.capture is not None]
@@ -133,15 +148,17 @@ class TuningChart:
 
 
 def capture_register(cap: Capture, profile: InstrumentProfile) -> int:
-    """Register of a capture on a chart of ``profile``: its mode when it is a held note that
-    broke into mode 2, 3 ...; else the register the profile gives the note."""
-    if cap.jump and cap.mode is not None and cap.mode > 1:
-        return cap.mode
+    """Register of a capture on a chart of ``profile``: the register the profile gives the
+    fingered note (a note that broke stays in its own register, marked broken)."""
     return profile.register_of(cap.midi)
 
 
 def build_chart(
-    captures: Iterable[Capture], profile: InstrumentProfile, *, label: str | None = None
+    captures: Iterable[Capture],
+    profile: InstrumentProfile,
+    *,
+    label: str | None = None,
+    flats: bool = False,
 ) -> TuningChart:
     """The chart of ``captures`` on ``profile``.
 
@@ -151,6 +168,9 @@ def build_chart(
     profile : InstrumentProfile
     label : str or None
         Use only captures with this session label (one pass of a session).
+    flats : bool
+        Spell every note of the chart with flats (default: sharps, as profiles are written),
+        whatever each capture was spelt with: one spelling per chart.
 
     Examples
     --------
@@ -160,18 +180,19 @@ def build_chart(
     (27, 27)
     """
     latest: dict[tuple[int, int], Capture] = {}
-    flats = False
     for one in sorted(captures, key=lambda c: c.index):
         if label is not None and one.label != label:
             continue
-        latest[(one.midi, capture_register(one, profile))] = one
-        flats = flats or ("b" in one.note[1:2])
+        key = (one.midi, capture_register(one, profile))
+        if one.jump and key in latest and not latest[key].jump:
+            continue  # a note that broke (a crescendo to its break) keeps its clean capture
+        latest[key] = one
     keys = set(profile.expected())
     keys.update(latest)
     entries = []
     for midi, reg in sorted(keys):
         cap = latest.get((midi, reg))
-        name = cap.note if cap is not None else note_name(midi, flats=flats)
+        name = note_name(midi, flats=flats)
         entries.append(
             ChartEntry(
                 midi=midi,
@@ -258,22 +279,33 @@ def format_text_chart(chart: TuningChart, *, half_width_cents: int = 25) -> str:
             continue
         c = e.capture
         margin = f"{round(c.register_margin_db, 1) + 0.0:+.1f}dB" if c.register_margin_db is not None else "-"
+        if c.jump:
+            mode = f" into mode {c.mode}" if c.mode is not None else ""
+            before = f"; {c.cents:+.1f} c before the break" if math.isfinite(c.cents) else ""
+            lines.append(
+                f"{name}{e.register:>3} {'broke':>7} {'-':>6} {margin:>7}  "
+                f"BROKE ({c.jump}{mode}){before}: not checked, play it again"
+            )
+            continue
         extra = "  (not in this profile's plan)" if not e.expected else ""
         cents = c.cents if abs(c.cents) >= 0.05 else 0.0  # no "-0.0"
         lines.append(
             f"{name}{e.register:>3} {cents:>+7.1f} {c.cents_spread:>6.1f} {margin:>7}  "
             f"{_bar(c.cents, c.cents_spread, half_width_cents)}{extra}"
         )
-    n_checked = sum(1 for e in chart.entries if e.expected and e.capture is not None)
+    n_checked = sum(1 for e in chart.entries if e.status == "checked")
     n_expected = sum(1 for e in chart.entries if e.expected)
     n_extra = sum(1 for e in chart.entries if e.status == "extra")
-    far = [e for e in chart.entries if e.capture is not None and abs(e.capture.cents) > GUIDE_CENTS]
+    far = [e for e in chart.entries if e.status in ("checked", "extra")
+           and e.capture is not None and abs(e.capture.cents) > GUIDE_CENTS]
+    broken = chart.broken()
     lines.append(
         f"{n_checked} of {n_expected} notes checked"
         + (f" (and {n_extra} outside the profile's plan)" if n_extra else "")
         + "; "
         f"{len(far)} outside ±{GUIDE_CENTS:g} c"
         + (": " + ", ".join(f"{e.note} R{e.register}" for e in far) if far else "")
+        + (f"; {len(broken)} broke: " + ", ".join(f"{e.note} R{e.register}" for e in broken) if broken else "")
     )
     return "\n".join(lines) + "\n"
 
@@ -316,6 +348,7 @@ def write_summary_csv(chart: TuningChart, path: str | Path) -> Path:
                         number_cell(s.a4_hz if s else None, 2),
                         number_cell(s.temp_c if s else None, 2),
                         number_cell(s.ref_temp_c if s else None, 2),
+                        c.jump if c else "",
                     ]
                 )
     except OSError as exc:
@@ -346,7 +379,13 @@ def check_picture_path(path: str | Path) -> Path:
 
 
 def draw_chart_axes(ax: Axes, chart: TuningChart) -> None:
-    """Draw the chart on a matplotlib Axes (for the picture and for embedding)."""
+    """Draw the chart on a matplotlib Axes (for the picture and for embedding).
+
+    Measured notes are drawn on the cents scale; notes not yet checked (grey x) and notes
+    whose capture broke into another register (red triangle) are marked in a strip above the
+    plot, off the cents scale, so that they never read as measurements. The legend and the
+    note on margins sit below the plot, clear of the markers.
+    """
     from matplotlib.transforms import blended_transform_factory
 
     midis = sorted({e.midi for e in chart.entries})
@@ -362,7 +401,8 @@ def draw_chart_axes(ax: Axes, chart: TuningChart) -> None:
         dx = (k - (n - 1) / 2) * 0.12  # keep registers sharing a note apart
         for planned in (True, False):
             es = [(e, c) for e in chart.entries
-                  if e.register == reg and (c := e.capture) is not None and e.expected == planned]
+                  if e.register == reg and (c := e.capture) is not None and e.expected == planned
+                  and e.status != "broken"]
             if not es:
                 continue
             xs = [xpos[e.midi] + dx for e, _ in es]
@@ -379,18 +419,32 @@ def draw_chart_axes(ax: Axes, chart: TuningChart) -> None:
                     any_margin = True
                     ax.annotate(f"{round(margin, 1) + 0.0:+.1f} dB", (x, y + e), xytext=(0, 4),
                                 textcoords="offset points", ha="center", fontsize=6, color="#666666")
-    if any_margin:
-        ax.text(0.995, 0.015, "grey dB: level left before the note broke into the next register",
-                transform=ax.transAxes, ha="right", va="bottom", fontsize=6, color="#666666")
+    strip = blended_transform_factory(ax.transData, ax.transAxes)
     unchecked = chart.unchecked()
     if unchecked:
-        trans = blended_transform_factory(ax.transData, ax.transAxes)
-        ax.plot([xpos[e.midi] for e in unchecked], [0.04] * len(unchecked), "x", color="#888888",
-                markersize=6, transform=trans, linestyle="none", label="not yet checked", zorder=2)
-    # register boundaries of the profile
-    for start in chart.profile.register_starts[1:]:
-        if start in xpos:
-            ax.axvline(xpos[start] - 0.5, color="#999999", linestyle=":", linewidth=0.8)
+        ax.plot([xpos[e.midi] for e in unchecked], [1.035] * len(unchecked), "x", color="#888888",
+                markersize=6, transform=strip, linestyle="none", clip_on=False,
+                label="not yet checked (strip above the plot)", zorder=2)
+    broken = chart.broken()
+    if broken:
+        ax.plot([xpos[e.midi] for e in broken], [1.035] * len(broken), "v", color="#c62828",
+                markersize=6, transform=strip, linestyle="none", clip_on=False,
+                label="broke into another register: not checked", zorder=2)
+    if any_margin:
+        ax.plot([], [], " ", label="grey dB: level left before the note broke into the next register")
+    # register boundaries of the profile, each register labelled
+    starts = list(chart.profile.register_starts)
+    for i, start in enumerate(starts):
+        x0 = xpos.get(start)
+        if x0 is None:
+            later = [m for m in midis if m >= start]
+            if not later:
+                continue
+            x0 = xpos[later[0]]
+        if i > 0:
+            ax.axvline(x0 - 0.5, color="#999999", linestyle=":", linewidth=0.8)
+        ax.text(x0 - 0.45, 0.97, f"R{i + 1}", transform=strip, ha="left", va="top", fontsize=8,
+                color="#555555", fontweight="bold")
     ylim = math.ceil((ymax * 1.15) / 5.0) * 5.0
     ax.set_ylim(-ylim, ylim)
     ax.set_xlim(-0.7, len(midis) - 0.3)
@@ -406,7 +460,7 @@ def draw_chart_axes(ax: Axes, chart: TuningChart) -> None:
     else:
         ax.set_xlabel("note (sounding = written)", fontsize=8)
     ax.grid(axis="y", color="#dddddd", linewidth=0.5)
-    ax.legend(loc="upper left", fontsize=8, ncol=4, frameon=False)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.22), fontsize=8, ncol=2, frameon=False)
 
 
 def draw_blowing_axes(ax: Axes, curves: Sequence[BlowingCurve]) -> None:
@@ -431,6 +485,36 @@ def draw_blowing_axes(ax: Axes, curves: Sequence[BlowingCurve]) -> None:
     ax.legend(loc="upper left", fontsize=8, frameon=False)
 
 
+def chart_figure(
+    chart: TuningChart,
+    *,
+    blowing: Sequence[BlowingCurve] = (),
+    title: str | None = None,
+) -> Figure:
+    """The chart's matplotlib figure (Agg), laid out; the caller closes it
+    (``matplotlib.pyplot.close``). See :func:`plot_chart`."""
+    use_agg_backend()
+    import matplotlib.pyplot as plt
+
+    n_notes = len({e.midi for e in chart.entries})
+    width = max(7.0, 0.32 * n_notes + 2.0)
+    rows = 2 if blowing else 1
+    fig, axes = plt.subplots(rows, 1, figsize=(width, 4.2 * rows), squeeze=False)
+    draw_chart_axes(axes[0][0], chart)
+    p = chart.profile
+    head = title or f"{p.title}: tuning per note and register"
+    sub = "; ".join(describe_settings(s) for s in chart.settings[:2])
+    if chart.labels and any(chart.labels):
+        sub = " / ".join(lab for lab in chart.labels if lab) + (" | " + sub if sub else "")
+    chars = max(40, int(width * 11))  # about 13 characters of 10 pt type per inch, less a margin
+    wrapped = "\n".join(textwrap.wrap(head, chars) + textwrap.wrap(sub, chars))
+    axes[0][0].set_title(wrapped, fontsize=10, pad=16)  # room for the strip of marks
+    if blowing:
+        draw_blowing_axes(axes[1][0], blowing)
+    fig.tight_layout()
+    return fig
+
+
 def plot_chart(
     chart: TuningChart,
     path: str | Path,
@@ -438,12 +522,13 @@ def plot_chart(
     blowing: Sequence[BlowingCurve] = (),
     title: str | None = None,
 ) -> Path:
-    """Save the chart as PNG or SVG (by the suffix of ``path``).
+    """Save the chart as PNG or SVG (by the suffix of ``path``; an SVG keeps its text as text).
 
     One series per register (markers and error bars = spread; open markers for notes outside
     the profile's plan; small grey "+N dB" above a note: its register margin), grey ±5 c
-    guide band, grey crosses along the bottom for unchecked notes, dotted lines at register
-    boundaries. With
+    guide band, grey crosses (unchecked) and red triangles (broke) in a strip above the plot,
+    off the cents scale, dotted lines at register boundaries labelled R1, R2 ..., the title
+    wrapped to the figure's width. With
     ``blowing`` curves a second panel shows cents against level with the fit and the break.
 
     Raises
@@ -455,25 +540,13 @@ def plot_chart(
     use_agg_backend()
     import matplotlib.pyplot as plt
 
-    n_notes = len({e.midi for e in chart.entries})
-    width = max(7.0, 0.32 * n_notes + 2.0)
-    rows = 2 if blowing else 1
-    fig, axes = plt.subplots(rows, 1, figsize=(width, 4.2 * rows), squeeze=False)
-    try:
-        draw_chart_axes(axes[0][0], chart)
-        p = chart.profile
-        head = title or f"{p.title}: tuning per note and register"
-        sub = "; ".join(describe_settings(s) for s in chart.settings[:2])
-        if chart.labels and any(chart.labels):
-            sub = " / ".join(lab for lab in chart.labels if lab) + (" | " + sub if sub else "")
-        axes[0][0].set_title(f"{head}\n{sub}", fontsize=10)
-        if blowing:
-            draw_blowing_axes(axes[1][0], blowing)
-        fig.tight_layout()
-        path.parent.mkdir(parents=True, exist_ok=True)
-        fig.savefig(path, dpi=110)
-    except OSError as exc:
-        raise BenchError(f"cannot write the picture {path}: {exc.strerror or exc}") from None
-    finally:
-        plt.close(fig)
+    with plt.rc_context({"svg.fonttype": "none"}):
+        fig = chart_figure(chart, blowing=blowing, title=title)
+        try:
+            path.parent.mkdir(parents=True, exist_ok=True)
+            fig.savefig(path, dpi=110, bbox_inches="tight", pad_inches=0.15)  # nothing clipped
+        except OSError as exc:
+            raise BenchError(f"cannot write the picture {path}: {exc.strerror or exc}") from None
+        finally:
+            plt.close(fig)
     return path

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import csv
 import math
+import textwrap
 from collections.abc import Iterable
 from dataclasses import dataclass
 from pathlib import Path
@@ -190,7 +191,7 @@ def compare_captures(
         eb, ea = cb.entry(midi, reg), ca.entry(midi, reg)
         b = eb.capture if eb else None
         a = ea.capture if ea else None
-        if b is not None and a is not None:
+        if b is not None and a is not None and not b.jump and not a.jump:
             delta: float | None = _corrected_delta(b, a)
             noise: float | None = k * math.hypot(b.cents_spread, a.cents_spread)
             assert delta is not None and noise is not None
@@ -212,9 +213,9 @@ def compare_captures(
                 delta_cents=delta,
                 noise_cents=noise,
                 moved=moved,
-                delta_spread_cents=_diff(a.cents_spread, b.cents_spread) if a and b else None,
-                delta_level_db=_diff(a.level_dbfs, b.level_dbfs) if a and b else None,
-                delta_odd_even_db=_diff(a.odd_even_db, b.odd_even_db) if a and b else None,
+                delta_spread_cents=_diff(a.cents_spread, b.cents_spread) if delta is not None and a and b else None,
+                delta_level_db=_diff(a.level_dbfs, b.level_dbfs) if delta is not None and a and b else None,
+                delta_odd_even_db=_diff(a.odd_even_db, b.odd_even_db) if delta is not None and a and b else None,
                 delta_harmonics_db=harm,
             )
         )
@@ -275,8 +276,14 @@ def format_comparison(cmp: Comparison) -> str:
         cb = c.before.cents if c.before else None
         ca = c.after.cents if c.after else None
         mark = "  MOVED" if c.moved else ("" if c.status == "both" else f"  ({c.status})")
+        broke = [f"{side} broke ({cap.jump})" for side, cap in (("before", c.before), ("after", c.after))
+                 if cap is not None and cap.jump]
+        if broke:
+            mark += "  " + ", ".join(broke) + ": not compared"
+        text_b = "broke".rjust(7) if c.before is not None and c.before.jump else _f(cb, '+.1f', 7)
+        text_a = "broke".rjust(7) if c.after is not None and c.after.jump else _f(ca, '+.1f', 7)
         lines.append(
-            f"{c.note:<5} {c.register:>3} {_f(cb, '+.1f', 7)} {_f(ca, '+.1f', 7)} "
+            f"{c.note:<5} {c.register:>3} {text_b} {text_a} "
             f"{_f(c.delta_cents, '+.1f', 7)} {_f(c.noise_cents, '.1f', 6)} "
             f"{_f(c.delta_spread_cents, '+.1f', 8)} {_f(c.delta_level_db, '+.1f', 7)} "
             f"{_f(c.delta_odd_even_db, '+.1f', 10)} {_f(c.delta_harmonics_db[1], '+.1f', 6)}{mark}"
@@ -306,7 +313,9 @@ def write_comparison_csv(cmp: Comparison, path: str | Path) -> Path:
                 w.writerow(
                     [
                         safe_cell(c.note), c.midi, c.register, c.status,
-                        n(c.before.cents if c.before else None), n(c.after.cents if c.after else None),
+                        # a capture that broke into another register is no measurement of the note
+                        n(c.before.cents if c.before and not c.before.jump else None),
+                        n(c.after.cents if c.after and not c.after.jump else None),
                         n(c.delta_cents), n(c.noise_cents), "1" if c.moved else "0",
                         n(c.before.cents_spread if c.before else None),
                         n(c.after.cents_spread if c.after else None),
@@ -343,6 +352,9 @@ def plot_comparison(cmp: Comparison, path: str | Path, *, title: str | None = No
         ax.bar(xs, deltas, width=0.45, color=colours, edgecolor="#333333", linewidth=0.5, zorder=3,
                label="change (red: moved beyond noise)")
         for x, c in zip(xs, both, strict=True):
+            if c.delta_cents is None:  # one side broke into another register
+                ax.annotate("broke", (x, 0.0), ha="center", va="bottom", fontsize=7, color="#c62828",
+                            rotation=90)
             if c.moved:
                 ax.annotate(f"{c.delta_cents:+.1f}", (x, c.delta_cents or 0.0), ha="center",
                             va="bottom" if (c.delta_cents or 0) >= 0 else "top", fontsize=8)
@@ -353,8 +365,10 @@ def plot_comparison(cmp: Comparison, path: str | Path, *, title: str | None = No
         ax.legend(loc="upper left", fontsize=8, ncol=3, frameon=False)
         moved_names = ", ".join(f"{c.note} R{c.register}" for c in cmp.moved()) or "nothing"
         head = title or f"{cmp.after_name} against {cmp.before_name}"
-        ax.set_title(f"{head}\nmoved beyond noise: {moved_names}; before {_fmt_temps(cmp.before_settings)}, "
-                     f"after {_fmt_temps(cmp.after_settings)}", fontsize=9)
+        sub = (f"moved beyond noise: {moved_names}; before {_fmt_temps(cmp.before_settings)}, "
+               f"after {_fmt_temps(cmp.after_settings)}")
+        chars = max(40, int(width * 14))
+        ax.set_title("\n".join(textwrap.wrap(head, chars) + textwrap.wrap(sub, chars)), fontsize=9)
         ax.grid(axis="y", color="#dddddd", linewidth=0.5)
         oe = [c.delta_odd_even_db if c.delta_odd_even_db is not None else 0.0 for c in both]
         ax2.axhline(0.0, color="#555555", linewidth=0.8)
@@ -369,7 +383,7 @@ def plot_comparison(cmp: Comparison, path: str | Path, *, title: str | None = No
         ax2.grid(axis="y", color="#dddddd", linewidth=0.5)
         fig.tight_layout()
         path.parent.mkdir(parents=True, exist_ok=True)
-        fig.savefig(path, dpi=110)
+        fig.savefig(path, dpi=110, bbox_inches="tight", pad_inches=0.15)  # nothing clipped
     except OSError as exc:
         raise BenchError(f"cannot write the picture {path}: {exc.strerror or exc}") from None
     finally:

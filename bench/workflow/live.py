@@ -27,6 +27,7 @@ from bench.workflow.captures import (
     CaptureDetector,
     CaptureFile,
     CaptureThresholds,
+    Skip,
     captures_path_for,
     read_captures,
 )
@@ -135,7 +136,10 @@ class LiveWorkflow:
         if self._capture_requested:
             self._capture_requested = False
             if self.capture_now() is None and self.on_refusal is not None:
-                self.on_refusal("nothing is sounding to capture; play the note and press g while it sounds")
+                why = self.last_skip
+                if why is None or why.startswith("nothing is sounding"):
+                    why = "nothing is sounding to capture; play the note and press g while it sounds"
+                self.on_refusal(why)
 
     def push(self, reading: Reading) -> list[Capture]:
         """Feed one reading; returns the captures that are new or were updated (same index,
@@ -148,7 +152,7 @@ class LiveWorkflow:
                 out.append(cap)
             out += self._detector.take_updates()
             brk = self._blowing.push(reading)
-            if brk is not None:
+            if brk is not None and brk.jump_kind != "vented":  # a leak is no limit of the breath
                 self._last_break = brk
             self._store(out)
         self._tell(out)
@@ -216,13 +220,26 @@ class LiveWorkflow:
         """The tuning chart of the session so far (optionally of one label only)."""
         return build_chart(self.captures(), self.profile, label=label)
 
+    @property
+    def last_skip(self) -> str | None:
+        """One line: why the newest held note (or the capture key) gave no capture -- too
+        short, unsteady, locked to another note --; None once a capture is taken."""
+        with self._lock:
+            return self._detector.last_skip
+
+    def skips(self) -> list[Skip]:
+        """Every held note of the session that gave no capture, with the reason."""
+        with self._lock:
+            return list(self._detector.skips)
+
     def blowing_curve(self) -> BlowingCurve | None:
         """Blowing curve of the note sounding now (or the last one played)."""
         with self._lock:
             return self._blowing.current()
 
     def last_break(self) -> BlowingCurve | None:
-        """Blowing curve up to the newest register break seen, None before any."""
+        """Blowing curve up to the newest register break seen (overblown: a vented jump is a
+        leak, not the top of the note's dynamic range), None before any."""
         with self._lock:
             return self._last_break
 

@@ -312,3 +312,27 @@ def test_committed_fixture_matches_its_sidecar():
     assert sr == doc["sample_rate"] and x.size == doc["n_samples"]
     assert _peak_hz(seg, sr, f0) == pytest.approx(f0, abs=0.01)
     assert _rms_dbfs(seg) == pytest.approx(doc["notes"][0]["event"]["level_dbfs"], abs=0.02)
+
+
+def test_onset_overshoot_and_breath_wander_are_in_the_truth():
+    # The truth follows the documented controls: an exponential decay of the overshoot
+    # (value onset_cents * exp(-t / tau) at t = tau is onset_cents / e, the definition of a
+    # time constant) and a wander bounded by its peak.
+    import math
+
+    from dsp.synth import NoteEvent, render
+
+    ev = NoteEvent(440.0, 1.0, onset_cents=40.0, onset_decay_s=0.05, chiff=False)
+    r = render([ev], 16000, breath_noise_db=-np.inf)
+    f = float(r.truth([0.05]).held_f0_hz[0])
+    assert 1200 * math.log2(f / 440.0) == pytest.approx(40.0 / math.e, abs=1e-6)
+    assert float(r.truth([0.9]).held_f0_hz[0]) == pytest.approx(440.0 * 2 ** (40 * math.exp(-18) / 1200))
+    ev = NoteEvent(440.0, 3.0, wander_cents=2.0, wander_hz=0.5, wander_phase=1.0)
+    r = render([ev], 16000)
+    t = np.linspace(0.1, 2.9, 500)
+    cents = 1200 * np.log2(r.truth(t).held_f0_hz / 440.0)
+    assert np.max(np.abs(cents)) <= 2.0 + 1e-9 and np.max(np.abs(cents)) > 1.0
+    with pytest.raises(ValueError, match="onset_decay_s"):
+        render([NoteEvent(440.0, 1.0, onset_decay_s=0.0)], 16000)
+    with pytest.raises(ValueError, match="wander_cents"):
+        render([NoteEvent(440.0, 1.0, wander_cents=-1.0)], 16000)

@@ -44,7 +44,9 @@ def test_live_captures_go_to_the_file_beside_the_log(tmp_path, readings):
     side = tmp_path / "session-20260301-100000.captures.csv"
     assert wf.captures_path == side
     saved = read_captures(side)
-    first = {c.midi: c for c in saved}
+    first = {}
+    for c in saved:
+        first.setdefault(c.midi, c)  # the scale's own capture of each note, not a later one
     assert [c.midi for c in saved][:3] == list(OFFSETS)
     for m, off in OFFSETS.items():
         assert first[m].cents == pytest.approx(off, abs=0.5)
@@ -53,6 +55,13 @@ def test_live_captures_go_to_the_file_beside_the_log(tmp_path, readings):
     assert first[65].register_margin_db is not None
     assert first[65].register_margin_db == pytest.approx(-30.0 + 12.0 * 2.4 / 3.0 - (-20.0), abs=0.6)
     assert {c.index for c in told} == {c.index for c in saved}
+    # the crescendo itself is kept under the fingered F4, marked as broken (issue: a broken
+    # note is never a plain capture of the upper note), its margin above the level it started at
+    cresc = saved[-1]
+    assert (cresc.note, cresc.jump, cresc.mode) == ("F4", "overblown", 2)
+    assert cresc.level_dbfs < -26.0 and cresc.register_margin_db is not None
+    assert cresc.register_margin_db == pytest.approx(cresc.break_level_dbfs - cresc.level_dbfs)
+    assert cresc.register_margin_db > 5.0
     # the break seen live
     brk = wf.last_break()
     assert brk is not None and brk.note == "F4" and brk.jump_kind == "overblown"
@@ -145,6 +154,7 @@ def test_the_workflow_follows_the_log_its_readings_name(tmp_path, readings):
         ref.push(reading)
         wf.take(reading if k < half else dataclasses.replace(reading, log_path=str(log)))
     wf.close()
+    ref.close()  # the last held note is captured when it ends
     assert wf.captures() == ref.captures()
     beside = read_captures(tmp_path / "session-20260301-110000.captures.csv")
     later = {c.index for c in wf.captures() if c.start_s >= rs[half].time_s}
