@@ -1,4 +1,4 @@
-"""``bench model predict|fit|whatif GEOMETRY``: the instrument model from the command line."""
+"""``bench model predict|fit|whatif|suggest GEOMETRY``: the instrument model from the command line."""
 
 from __future__ import annotations
 
@@ -76,6 +76,32 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     w.add_argument("--sensitivity", action="store_true", help="cents per 0.1 mm for every hole and note")
     _air_options(w)
     w.set_defaults(func=run_whatif)
+
+    from bench.commands.options import add_tuning_options
+
+    s = msub.add_parser(
+        "suggest",
+        help="the fewest hole changes that bring the captured notes to their targets, step by step",
+        description="From the captured notes in CAPTURES and their targets in the tuning in force, "
+        "propose the smallest set of changes to the tone holes, within the limits you set, that "
+        "brings the notes closest to their targets: each cut in small steps, saying which ones "
+        "cannot be undone. The model is first fitted to the captures (--no-fit: the geometry as "
+        "given).",
+    )
+    s.add_argument("geometry", metavar="GEOMETRY", help=_GEOMETRY_HELP)
+    s.add_argument("captures", type=Path, metavar="CAPTURES.csv", help="captures file (<log>.captures.csv)")
+    s.add_argument("--allow", action="append", choices=["enlarge", "undercut", "wax"], metavar="KIND",
+                   help="a kind of change allowed: enlarge, undercut or wax; repeat for more (default enlarge)")
+    s.add_argument("--max-diameter", type=float, metavar="MM",
+                   help="no hole (nor its undercut) wider than this, mm (default 0.9 of the bore)")
+    s.add_argument("--step-mm", type=float, default=0.1, metavar="MM", help="one step of a cut, mm (default 0.1)")
+    s.add_argument("--min-gain", type=float, default=1.0, metavar="CENTS",
+                   help="propose a change only if it takes away this much error (root of the drop in the sum of squared cents; default 1 c)")
+    s.add_argument("--tolerance", type=float, default=2.0, metavar="CENTS",
+                   help="a note this close to its target is in tune (default 2 c)")
+    s.add_argument("--no-fit", action="store_true", help="use the geometry as given, without fitting it first")
+    add_tuning_options(s)
+    s.set_defaults(func=run_suggest)
 
 
 def _check(args: argparse.Namespace) -> None:
@@ -176,4 +202,34 @@ def run_whatif(args: argparse.Namespace) -> int:
         print(format_change(predict_change(geometry, changed, desc, air, args.registers)), end="")
     if args.sensitivity:
         print(format_sensitivity(*sensitivity(geometry, air, args.registers)), end="")
+    return 0
+
+
+def run_suggest(args: argparse.Namespace) -> int:
+    from bench.commands.options import settings_from_args
+    from bench.model.fit import fit_model, fitted_geometry, targets_from_captures
+    from bench.model.geometry import load_geometry
+    from bench.model.suggest import Limits, format_advice, suggest
+    from bench.workflow.captures import read_captures
+
+    settings = settings_from_args(args)
+    for option, value in (("--min-gain", args.min_gain), ("--tolerance", args.tolerance)):
+        if not 0.0 <= value <= 100.0:
+            raise SettingsError(f"{option} {value:g} is out of range; give 0 to 100 cents (e.g. 1)")
+    limits = Limits(tuple(dict.fromkeys(args.allow or ["enlarge"])), args.max_diameter, args.step_mm,
+                    args.min_gain, args.tolerance)
+    geometry = load_geometry(args.geometry)
+    rh = settings.rh_percent if settings.rh_percent is not None else 60.0
+    targets = targets_from_captures(read_captures(args.captures), geometry, default_rh=rh)
+    warming = 5.0
+    base = geometry
+    if not args.no_fit:
+        result = fit_model(geometry, targets)
+        base, warming = fitted_geometry(result), result.warming_c
+    advice = suggest(base, targets, settings, limits, warming)
+    where = "the fitted model (hole diameters are effective ones)" if not args.no_fit else "the geometry as given"
+    print(f"{geometry.title}: {len(targets)} captured notes of {args.captures}; targets: {settings.temperament} "
+          f"on {settings.tonic}, A4 = {settings.a4_hz:g} Hz, in tune at {settings.ref_temp_c:g} degC; "
+          f"changes from {where}; allowed: {', '.join(limits.allow)}")
+    print(format_advice(advice), end="")
     return 0
