@@ -64,15 +64,21 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
 
     w = msub.add_parser(
         "whatif",
-        help="predicted change of every note from enlarging a hole or shortening the foot",
+        help="predicted change of every note from a hole enlarged or moved, the foot cut, the bore reamed",
         description="Predict what a change does to every fingering in every register, in cents: "
-        "--hole LABEL --diameter MM bores a hole to a new diameter, --shorten-foot MM cuts the "
-        "foot; --sensitivity prints cents per 0.1 mm of every hole's diameter for every note.",
+        "--hole LABEL --diameter MM bores a hole to a new diameter, --move LABEL --to-mm POS "
+        "plugs a hole and drills it again elsewhere, --shorten-foot MM cuts the foot, --ream FROM_MM "
+        "TO_MM --by-mm D widens a stretch of the bore; --sensitivity prints cents per 0.1 mm of every hole's diameter for every note.",
     )
     w.add_argument("geometry", metavar="GEOMETRY", help=_GEOMETRY_HELP)
     w.add_argument("--hole", metavar="LABEL", help="hole to change (its label, e.g. h4)")
     w.add_argument("--diameter", type=float, metavar="MM", help="its new diameter, mm")
     w.add_argument("--shorten-foot", type=float, metavar="MM", help="cut this much off the foot, mm")
+    w.add_argument("--move", metavar="LABEL", help="hole to plug and drill again elsewhere (with --to-mm)")
+    w.add_argument("--to-mm", type=float, metavar="POS", help="its new place, mm from the blown end")
+    w.add_argument("--ream", type=float, nargs=2, metavar=("FROM_MM", "TO_MM"),
+                   help="widen the bore between these distances from the blown end (with --by-mm)")
+    w.add_argument("--by-mm", type=float, metavar="D", help="how much wider the reamed stretch gets, mm")
     w.add_argument("--sensitivity", action="store_true", help="cents per 0.1 mm for every hole and note")
     _air_options(w)
     w.set_defaults(func=run_whatif)
@@ -178,7 +184,9 @@ def run_whatif(args: argparse.Namespace) -> int:
         enlarge_hole,
         format_change,
         format_sensitivity,
+        move_hole,
         predict_change,
+        ream,
         sensitivity,
         shorten_foot,
     )
@@ -186,8 +194,15 @@ def run_whatif(args: argparse.Namespace) -> int:
     _check(args)
     if (args.hole is None) != (args.diameter is None):
         raise SettingsError("--hole and --diameter go together; give both, e.g. --hole h4 --diameter 6.5")
-    if args.hole is None and args.shorten_foot is None and not args.sensitivity:
-        raise SettingsError("nothing to try; give --hole LABEL --diameter MM, --shorten-foot MM or --sensitivity")
+    if (args.move is None) != (args.to_mm is None):
+        raise SettingsError("--move and --to-mm go together; give both, e.g. --move h3 --to-mm 230")
+    if (args.ream is None) != (args.by_mm is None):
+        raise SettingsError("--ream and --by-mm go together; give both, e.g. --ream 200 260 --by-mm 0.2")
+    if args.hole is None and args.shorten_foot is None and args.move is None and args.ream is None and not args.sensitivity:
+        raise SettingsError(
+            "nothing to try; give --hole LABEL --diameter MM, --move LABEL --to-mm POS, --shorten-foot MM, "
+            "--ream FROM_MM TO_MM --by-mm D or --sensitivity"
+        )
     geometry = _with_fingerings(load_geometry(args.geometry))
     air = air_at(args.temp, args.rh)
     print(f"{geometry.title}: air {air.temp_c:g} degC {air.rh_percent:g} % RH")
@@ -195,6 +210,15 @@ def run_whatif(args: argparse.Namespace) -> int:
         changed = enlarge_hole(geometry, args.hole, args.diameter)
         old = next(h for h in geometry.holes if h.label == args.hole).outer_diameter_mm
         desc = f"hole {args.hole} from {old:g} to {args.diameter:g} mm: change in cents"
+        print(format_change(predict_change(geometry, changed, desc, air, args.registers)), end="")
+    if args.move is not None:
+        changed = move_hole(geometry, args.move, args.to_mm)
+        old = next(h for h in geometry.holes if h.label == args.move).position_mm
+        desc = f"hole {args.move} moved from {old:g} to {args.to_mm:g} mm: change in cents"
+        print(format_change(predict_change(geometry, changed, desc, air, args.registers)), end="")
+    if args.ream is not None:
+        changed = ream(geometry, args.ream[0], args.ream[1], args.by_mm)
+        desc = f"bore reamed {args.by_mm:g} mm wider from {args.ream[0]:g} to {args.ream[1]:g} mm: change in cents"
         print(format_change(predict_change(geometry, changed, desc, air, args.registers)), end="")
     if args.shorten_foot is not None:
         changed = shorten_foot(geometry, args.shorten_foot)

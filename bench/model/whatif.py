@@ -1,7 +1,7 @@
 """What a change to the instrument would do, before wood comes off.
 
-Two kinds of change: a tone hole enlarged (or reduced) to a new diameter, and the foot
-shortened. Each gives the predicted change in cents of every fingering in every register. The
+Four kinds of change: a tone hole enlarged (or reduced) to a new diameter, a hole moved (plugged
+and drilled again elsewhere), the foot shortened, and a stretch of bore reamed wider. Each gives the predicted change in cents of every fingering in every register. The
 sensitivity table gives, for every hole, the change in cents of every fingering and register
 per 0.1 mm more diameter (a one-sided difference of the model).
 """
@@ -29,7 +29,9 @@ __all__ = [
     "enlarge_hole",
     "format_change",
     "format_sensitivity",
+    "move_hole",
     "predict_change",
+    "ream",
     "sensitivity",
     "shorten_foot",
 ]
@@ -109,6 +111,70 @@ def shorten_foot(geometry: Geometry, cut_mm: float) -> Geometry:
         )
     pts = [(z, d) for z, d in geometry.bore_mm if z < new_len]
     pts.append((new_len, geometry.diameter_at(new_len)))
+    return replace(geometry, bore_mm=tuple(pts))
+
+
+def move_hole(geometry: Geometry, label: str, to_mm: float) -> Geometry:
+    """The geometry with hole ``label`` plugged and drilled again at ``to_mm`` from the blown end.
+
+    The hole keeps its diameters and its chimney (the wall thickness at the new place may differ;
+    give a geometry with the new chimney for that).
+
+    Raises
+    ------
+    SettingsError
+        Unknown hole, or a place outside the bore or where the new hole would overlap its
+        neighbours (the holes stay in their order).
+    """
+    i = _hole_index(geometry, label)
+    hole = geometry.holes[i]
+    half = hole.inner_diameter_mm / 2.0
+    lo = geometry.holes[i - 1].position_mm + geometry.holes[i - 1].inner_diameter_mm / 2.0 + half if i > 0 else half
+    hi = (geometry.holes[i + 1].position_mm - geometry.holes[i + 1].inner_diameter_mm / 2.0 - half
+          if i + 1 < len(geometry.holes) else geometry.length_mm - half)
+    if not (math.isfinite(to_mm) and lo < to_mm < hi):
+        raise SettingsError(
+            f"moving hole {label} to {to_mm:g} mm is out of range; give a place between {lo:.1f} and {hi:.1f} mm "
+            "(inside the bore, clear of the neighbouring holes)"
+        )
+    if hole.inner_diameter_mm >= geometry.diameter_at(to_mm):
+        raise SettingsError(f"hole {label} ({hole.inner_diameter_mm:g} mm) is not smaller than the bore at {to_mm:g} mm")
+    holes = geometry.holes[:i] + (replace(hole, position_mm=to_mm),) + geometry.holes[i + 1:]
+    return replace(geometry, holes=holes)
+
+
+REAM_TAPER_MM = 1.0
+"""A reamed stretch meets the old bore through a short cone this long at each end (a bore file
+needs rising distances, and a reamer leaves a small chamfer rather than a sharp step)."""
+
+
+def ream(geometry: Geometry, from_mm: float, to_mm: float, by_mm: float) -> Geometry:
+    """The geometry with the bore between ``from_mm`` and ``to_mm`` widened by ``by_mm``.
+
+    The diameter grows by ``by_mm`` over the stretch, joined to the old bore by cones of
+    :data:`REAM_TAPER_MM` at each end.
+
+    Raises
+    ------
+    SettingsError
+        A stretch outside the bore, shorter than two tapers, or ``by_mm`` not in (0, 5] mm.
+    """
+    length = geometry.length_mm
+    if not (math.isfinite(from_mm) and math.isfinite(to_mm) and 0.0 <= from_mm and to_mm <= length
+            and to_mm - from_mm > 2.0 * REAM_TAPER_MM):
+        raise SettingsError(
+            f"reaming from {from_mm:g} to {to_mm:g} mm is out of range; give a stretch inside 0-{length:g} mm "
+            f"longer than {2 * REAM_TAPER_MM:g} mm, the start first"
+        )
+    if not (math.isfinite(by_mm) and 0.0 < by_mm <= 5.0):
+        raise SettingsError(f"reaming by {by_mm:g} mm is out of range; give more than 0 and at most 5 mm (reaming only widens)")
+    a, b = from_mm + REAM_TAPER_MM, to_mm - REAM_TAPER_MM
+    if from_mm == 0.0:
+        a = 0.0  # reaming from the very top: no taper there
+    if to_mm == length:
+        b = length
+    zs = sorted({z for z, _ in geometry.bore_mm} | {from_mm, a, b, to_mm})
+    pts = [(z, geometry.diameter_at(z) + (by_mm if a <= z <= b else 0.0)) for z in zs]
     return replace(geometry, bore_mm=tuple(pts))
 
 
