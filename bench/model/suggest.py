@@ -51,8 +51,8 @@ from bench.model.fit import FitTarget
 from bench.model.geometry import Geometry
 from bench.model.instrument import (
     ModelOptions,
+    minima_near,
     playing_frequencies,
-    refine_minima,
     states_of,
 )
 from bench.tuning import TuningSettings
@@ -242,7 +242,7 @@ class _Evaluator:
 
     def change_cents(self, changed: Geometry) -> NDArray[np.float64]:
         g = self.base_hz[:, None]
-        found = refine_minima(changed, self.states, g * (1 - _BRACKET), g * (1 + _BRACKET), self.air, self.options, 30)
+        found = minima_near(changed, self.states, g, _BRACKET, self.air, self.options)
         out: NDArray[np.float64] = 1200.0 * np.log2(found[:, 0] / self.base_hz)
         return out
 

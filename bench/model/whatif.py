@@ -19,8 +19,8 @@ from bench.model.acoustics import Air
 from bench.model.geometry import Geometry, Hole
 from bench.model.instrument import (
     ModelOptions,
+    minima_near,
     playing_frequencies,
-    refine_minima,
     states_of,
 )
 
@@ -183,7 +183,7 @@ def _after(
 ) -> NDArray[np.float64]:
     """Resonances of the changed geometry near the unchanged ones."""
     states = states_of(patterns) if changed.holes else np.zeros((len(patterns), 0), dtype=np.int8)
-    return refine_minima(changed, states, before_hz * (1 - _BRACKET), before_hz * (1 + _BRACKET), air, options, 34)
+    return minima_near(changed, states, before_hz, _BRACKET, air, options)
 
 
 def predict_change(
