@@ -59,7 +59,9 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
                    help="humidity in the bore where a capture names none (default 60)")
     f.add_argument("--save", type=Path, metavar="FITTED.toml",
                    help="write the geometry with the fitted end correction and effective hole diameters")
-    f.add_argument("--overwrite", action="store_true", help="replace FITTED.toml if it exists")
+    f.add_argument("--out", type=Path, metavar="PICTURE.png",
+                   help="draw measured against predicted per note and register (.png or .svg)")
+    f.add_argument("--overwrite", action="store_true", help="replace FITTED.toml or PICTURE if they exist")
     f.set_defaults(func=run_fit)
 
     w = msub.add_parser(
@@ -106,6 +108,9 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     s.add_argument("--tolerance", type=float, default=2.0, metavar="CENTS",
                    help="a note this close to its target is in tune (default 2 c)")
     s.add_argument("--no-fit", action="store_true", help="use the geometry as given, without fitting it first")
+    s.add_argument("--out", type=Path, metavar="PICTURE.png",
+                   help="draw every captured note now and after the advice (.png or .svg)")
+    s.add_argument("--overwrite", action="store_true", help="replace PICTURE if it exists")
     add_tuning_options(s)
     s.set_defaults(func=run_suggest)
 
@@ -161,6 +166,10 @@ def run_fit(args: argparse.Namespace) -> int:
 
     if args.save is not None and args.save.exists() and not args.overwrite:
         raise SettingsError(f"{args.save} exists; give --overwrite to replace it or choose another file name")
+    if args.out is not None:
+        from bench.model.charts import check_new_picture
+
+        check_new_picture(args.out, args.overwrite)
     geometry = load_geometry(args.geometry)
     targets = targets_from_captures(read_captures(args.captures), geometry, default_rh=args.rh)
     result = fit_model(geometry, targets)
@@ -174,6 +183,10 @@ def run_fit(args: argparse.Namespace) -> int:
             f"offsets: {offsets or 'none'}."
         )
         print(f"fitted geometry written to {write_text_new(args.save, geometry_to_toml(fitted_geometry(result), header), args.overwrite)}")
+    if args.out is not None:
+        from bench.model.charts import plot_fit
+
+        print(f"picture written to {plot_fit(result, args.out, geometry.title, args.overwrite)}")
     return 0
 
 
@@ -256,4 +269,8 @@ def run_suggest(args: argparse.Namespace) -> int:
           f"on {settings.tonic}, A4 = {settings.a4_hz:g} Hz, in tune at {settings.ref_temp_c:g} degC; "
           f"changes from {where}; allowed: {', '.join(limits.allow)}")
     print(format_advice(advice), end="")
+    if args.out is not None:
+        from bench.model.charts import plot_advice
+
+        print(f"picture written to {plot_advice(advice, args.out, geometry.title, args.overwrite)}")
     return 0

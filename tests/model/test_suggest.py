@@ -162,3 +162,21 @@ def test_the_demo_plays_the_altered_alto_that_suggest_corrects(case):
     demo = {n.name: n.freq_hz for n in demo_notes(BORE_C, RH)}
     assert [demo[t.fingering] for t in targets] == pytest.approx([t.measured_hz for t in targets], rel=1e-9)
     assert {c.label for c in advice.cuts} == set(DEMO_HOLES_OFF_MM)
+
+
+def test_suggest_and_fit_draw_pictures_and_never_replace_one(tmp_path, capsys):
+    truth = _altered(builtin_geometry("wren-alto"))
+    caps = [_capture(i + 1, t.fingering, t.mode, t.measured_hz) for i, t in enumerate(_played(truth, NOTES))]
+    path = tmp_path / "a.captures.csv"
+    write_captures(path, caps)
+    pic = tmp_path / "advice.png"
+    assert main(["model", "suggest", "wren-alto", str(path), "--no-fit", "--allow", "wax", "--out", str(pic)]) == 0
+    data = pic.read_bytes()
+    assert data.startswith(b"\x89PNG")  # the PNG signature (ISO/IEC 15948, sec. 5.2)
+    capsys.readouterr()
+    assert main(["model", "suggest", "wren-alto", str(path), "--no-fit", "--out", str(pic)]) == 2
+    assert "--overwrite" in capsys.readouterr().err and pic.read_bytes() == data
+    fit_pic = tmp_path / "fit.svg"
+    assert main(["model", "fit", "wren-alto", str(path), "--out", str(fit_pic)]) == 0
+    assert b"<svg" in fit_pic.read_bytes()[:2000]
+    assert not [p for p in tmp_path.iterdir() if p.name.startswith(".")]
