@@ -223,20 +223,20 @@ def run_whatif(args: argparse.Namespace) -> int:
         changed = enlarge_hole(geometry, args.hole, args.diameter)
         old = next(h for h in geometry.holes if h.label == args.hole).outer_diameter_mm
         desc = f"hole {args.hole} from {old:g} to {args.diameter:g} mm: change in cents"
-        print(format_change(predict_change(geometry, changed, desc, air, args.registers)), end="")
+        print(format_change(predict_change(geometry, changed, desc, air, args.registers, uncertainty=True)), end="")
     if args.move is not None:
         changed = move_hole(geometry, args.move, args.to_mm)
         old = next(h for h in geometry.holes if h.label == args.move).position_mm
         desc = f"hole {args.move} moved from {old:g} to {args.to_mm:g} mm: change in cents"
-        print(format_change(predict_change(geometry, changed, desc, air, args.registers)), end="")
+        print(format_change(predict_change(geometry, changed, desc, air, args.registers, uncertainty=True)), end="")
     if args.ream is not None:
         changed = ream(geometry, args.ream[0], args.ream[1], args.by_mm)
         desc = f"bore reamed {args.by_mm:g} mm wider from {args.ream[0]:g} to {args.ream[1]:g} mm: change in cents"
-        print(format_change(predict_change(geometry, changed, desc, air, args.registers)), end="")
+        print(format_change(predict_change(geometry, changed, desc, air, args.registers, uncertainty=True)), end="")
     if args.shorten_foot is not None:
         changed = shorten_foot(geometry, args.shorten_foot)
         desc = f"foot shortened by {args.shorten_foot:g} mm: change in cents"
-        print(format_change(predict_change(geometry, changed, desc, air, args.registers)), end="")
+        print(format_change(predict_change(geometry, changed, desc, air, args.registers, uncertainty=True)), end="")
     if args.sensitivity:
         print(format_sensitivity(*sensitivity(geometry, air, args.registers)), end="")
     return 0

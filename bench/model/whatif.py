@@ -22,9 +22,11 @@ from bench.model.instrument import (
     minima_near,
     playing_frequencies,
     states_of,
+    with_end_correction,
 )
 
 __all__ = [
+    "UNCERTAIN_END_CORRECTION_MM",
     "Change",
     "enlarge_hole",
     "format_change",
@@ -37,6 +39,9 @@ __all__ = [
 ]
 
 _BRACKET = 0.08  # relative half-width of the search around the unchanged frequency
+UNCERTAIN_END_CORRECTION_MM = 3.0
+"""How far the window's end correction is varied to gauge a change's uncertainty, mm (the
+spread of its prior in :mod:`bench.model.fit`)."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -48,12 +53,16 @@ class Change:
     description : str
     fingerings : tuple of str
     before_hz, after_hz : float ndarray, shape (F, K), Hz
+    uncertainty_cents : float ndarray, shape (F, K), cents, or None
+        How far the change's prediction moves under other plausible models (see
+        :func:`predict_change`); None when not asked for.
     """
 
     description: str
     fingerings: tuple[str, ...]
     before_hz: NDArray[np.float64]
     after_hz: NDArray[np.float64]
+    uncertainty_cents: NDArray[np.float64] | None = None
 
     @property
     def cents(self) -> NDArray[np.float64]:
@@ -193,17 +202,40 @@ def predict_change(
     air: Air,
     registers: int = 3,
     options: ModelOptions | None = None,
+    uncertainty: bool = False,
 ) -> Change:
     """Predicted frequencies of every fingering before and after a change.
 
     The changed geometry's modes are searched within 8 % of the unchanged ones, so that mode k
     stays mode k (a change of more than a semitone and a third is followed only that far).
+
+    With ``uncertainty`` the change is predicted again under other plausible models -- the other
+    tone-hole model (Dubos et al. 1999 against Lefebvre & Scavone 2012) and the window's end
+    correction :data:`UNCERTAIN_END_CORRECTION_MM` lower and higher (the spread of its prior in
+    the fit) -- and the largest departure from the nominal change, in cents, is its
+    uncertainty. This is the spread between models, not a confidence interval.
     """
     options = options or ModelOptions()
     patterns = [f.holes for f in geometry.fingerings]
     before = playing_frequencies(geometry, patterns, air, registers, options).freq_hz
     after = _after(changed, patterns, before, air, options)
-    return Change(description, tuple(f.name for f in geometry.fingerings), before, after)
+    spread = None
+    if uncertainty:
+        nominal = 1200.0 * np.log2(after / before)
+        variants: list[tuple[Geometry, Geometry, ModelOptions]] = [
+            (geometry, changed, replace(options, hole_model="dubos-1999" if options.hole_model != "dubos-1999"
+                                        else "lefebvre-scavone-2012")),
+        ]
+        if geometry.top.kind == "window" and changed.top.kind == "window":
+            for delta in (-UNCERTAIN_END_CORRECTION_MM, UNCERTAIN_END_CORRECTION_MM):
+                ec = max(geometry.top.end_correction_mm + delta, 0.0)
+                variants.append((with_end_correction(geometry, ec), with_end_correction(changed, ec), options))
+        spread = np.zeros_like(nominal)
+        for g0, g1, opts in variants:
+            b = playing_frequencies(g0, patterns, air, registers, opts).freq_hz
+            a = _after(g1, patterns, b, air, opts)
+            spread = np.fmax(spread, np.abs(1200.0 * np.log2(a / b) - nominal))
+    return Change(description, tuple(f.name for f in geometry.fingerings), before, after, spread)
 
 
 def sensitivity(
@@ -238,11 +270,23 @@ def _grow(hole: Hole, step_mm: float) -> Hole:
 def format_change(change: Change) -> str:
     """Text table: fingering, then the change in cents per register."""
     k = change.before_hz.shape[1]
-    lines = [change.description, f"{'fingering':<10}" + "".join(f"{f'R{r + 1} c':>9}" for r in range(k))]
+    unc = change.uncertainty_cents
+    width = 9 if unc is None else 14
+    lines = [change.description, f"{'fingering':<10}" + "".join(f"{f'R{r + 1} c':>{width}}" for r in range(k))]
     cents = change.cents
-    for name, row in zip(change.fingerings, cents, strict=True):
-        cells = "".join(f"{c:+9.1f}" if math.isfinite(c) else f"{'-':>9}" for c in row)
+    for j, (name, row) in enumerate(zip(change.fingerings, cents, strict=True)):
+        cells = ""
+        for r, c in enumerate(row):
+            if not math.isfinite(c):
+                cells += f"{'-':>{width}}"
+            elif unc is None:
+                cells += f"{c:+9.1f}"
+            else:
+                cells += f"{f'{c:+.1f} +-{unc[j, r]:.1f}':>{width}}"
         lines.append(f"{name:<10}{cells}")
+    if unc is not None:
+        lines.append("+-: the largest departure under the other tone-hole model or a window end correction "
+                     f"{UNCERTAIN_END_CORRECTION_MM:g} mm off")
     return "\n".join(lines) + "\n"
 
 

@@ -12,7 +12,7 @@ from bench.errors import SettingsError
 from bench.model.acoustics import air_at
 from bench.model.geometry import builtin_geometry, parse_geometry_text
 from bench.model.instrument import ModelOptions
-from bench.model.whatif import enlarge_hole, predict_change, sensitivity, shorten_foot
+from bench.model.whatif import enlarge_hole, format_change, predict_change, sensitivity, shorten_foot
 
 AIR = air_at(25.0, 60.0)
 
@@ -131,3 +131,16 @@ def test_whatif_command_moves_and_reams(capsys):
     assert "hole h3 moved from 227 to 230 mm" in out
     assert main(["model", "whatif", "wren-alto", "--ream", "150", "250"]) == 2
     assert "--ream and --by-mm go together" in capsys.readouterr().err
+
+
+def test_a_change_carries_the_spread_between_plausible_models():
+    # The uncertainty is the departure under the other tone-hole model (Dubos et al. 1999 against
+    # Lefebvre & Scavone 2012, which differ in their length corrections) or another window end
+    # correction: it is small but not nil where the changed hole vents, and smaller than the change.
+    g = builtin_geometry("wren-alto")
+    change = predict_change(g, enlarge_hole(g, "h3", 6.5), "h3", AIR, registers=1, uncertainty=True)
+    assert change.uncertainty_cents is not None
+    j = change.fingerings.index("D5")
+    assert 0.0 < change.uncertainty_cents[j, 0] < abs(change.cents[j, 0])
+    assert np.all(change.uncertainty_cents[np.isfinite(change.uncertainty_cents)] >= 0.0)
+    assert "+-" in format_change(change)
