@@ -12,7 +12,13 @@ from bench.errors import SettingsError
 from bench.model.acoustics import air_at
 from bench.model.geometry import builtin_geometry, parse_geometry_text
 from bench.model.instrument import ModelOptions
-from bench.model.whatif import enlarge_hole, format_change, predict_change, sensitivity, shorten_foot
+from bench.model.whatif import (
+    enlarge_hole,
+    format_change,
+    predict_change,
+    sensitivity,
+    shorten_foot,
+)
 
 AIR = air_at(25.0, 60.0)
 
