@@ -7,7 +7,9 @@ different machines can be compared:
 * predict: every fingering of the built-in Wren alto (27 fingerings x 3 registers), the
   coarse grid and the refinement together;
 * fit: ``bench model fit``'s fitting on 12 captures synthesised from the model (every
-  parameter free), timed once.
+  parameter free), timed once;
+* suggest: ``bench model suggest``'s search (enlarge or wax, every hole) on the 8 notes of the
+  demo alto (two holes put off, bench.model.demo), the geometry as given, timed once.
 
     python benchmarks/bench_model.py            # predict timed 5 times (median)
     python benchmarks/bench_model.py --repeat 3
@@ -29,10 +31,13 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from bench.model.acoustics import air_at
+from bench.model.demo import demo_notes
 from bench.model.fit import FitTarget, fit_model
 from bench.model.geometry import builtin_geometry
 from bench.model.instrument import ModelOptions, playing_frequencies
 from bench.model.predict import predict
+from bench.model.suggest import Limits, suggest
+from bench.tuning import TuningSettings
 
 FIT_NOTES = ["F4", "G4", "A4", "Bb4", "C5", "D5", "E5", "F#5", "G#5", "A5", "C6", "D6"]
 
@@ -69,6 +74,13 @@ def main() -> int:
     result = fit_model(geometry, targets)
     fit_s = time.perf_counter() - t0
 
+    demo = {n.name: n.freq_hz for n in demo_notes()}
+    tuned = ["F4", "G4", "A4", "Bb4", "C5", "D5", "E5", "F#5"]
+    demo_targets = [FitTarget(n, 1, demo[n], 20.0, 60.0, 2.0) for n in tuned]
+    t0 = time.perf_counter()
+    advice = suggest(geometry, demo_targets, TuningSettings(rh_percent=60.0), Limits(allow=("enlarge", "wax")))
+    suggest_s = time.perf_counter() - t0
+
     print(f"reference: numpy FFT of 2**16 complex points: {ref_s * 1e3:.3f} ms")
     print(f"predict: {len(geometry.fingerings)} fingerings x 3 registers ({len(preds)} rows): "
           f"{predict_s * 1e3:.0f} ms = {predict_s / ref_s:.0f} x reference "
@@ -76,6 +88,8 @@ def main() -> int:
     rms = math.sqrt(float(np.mean(result.after_cents**2)))
     print(f"fit: {len(targets)} captures, {len(result.parameters)} parameters: {fit_s:.2f} s = "
           f"{fit_s / ref_s:.0f} x reference (residual rms after {rms:.2f} c)")
+    cuts = ", ".join(f"{c.label} {c.kind} {c.steps} x {c.step_mm:g} mm" for c in advice.cuts)
+    print(f"suggest: {len(demo_targets)} notes: {suggest_s:.2f} s = {suggest_s / ref_s:.0f} x reference ({cuts})")
     return 0
 
 

@@ -36,8 +36,8 @@ from bench.model.acoustics import air_at
 from bench.model.geometry import Geometry
 from bench.model.instrument import (
     ModelOptions,
+    minima_near,
     playing_frequencies,
-    refine_minima,
     states_of,
 )
 from bench.tuning.notes import note_name, parse_note
@@ -244,7 +244,7 @@ class _Model:
                 out[rows] = res.freq_hz[np.arange(len(idx)), self.modes[rows] - 1]
             else:
                 g = guess_hz[rows][:, None]
-                found = refine_minima(geometry, self.states[rows], g * (1 - _BRACKET), g * (1 + _BRACKET), air, options, 16)
+                found = minima_near(geometry, self.states[rows], g, _BRACKET, air, options)
                 out[rows] = found[:, 0]
         return out
 

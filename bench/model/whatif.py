@@ -1,7 +1,7 @@
 """What a change to the instrument would do, before wood comes off.
 
-Two kinds of change: a tone hole enlarged (or reduced) to a new diameter, and the foot
-shortened. Each gives the predicted change in cents of every fingering in every register. The
+Four kinds of change: a tone hole enlarged (or reduced) to a new diameter, a hole moved (plugged
+and drilled again elsewhere), the foot shortened, and a stretch of bore reamed wider. Each gives the predicted change in cents of every fingering in every register. The
 sensitivity table gives, for every hole, the change in cents of every fingering and register
 per 0.1 mm more diameter (a one-sided difference of the model).
 """
@@ -19,22 +19,29 @@ from bench.model.acoustics import Air
 from bench.model.geometry import Geometry, Hole
 from bench.model.instrument import (
     ModelOptions,
+    minima_near,
     playing_frequencies,
-    refine_minima,
     states_of,
+    with_end_correction,
 )
 
 __all__ = [
+    "UNCERTAIN_END_CORRECTION_MM",
     "Change",
     "enlarge_hole",
     "format_change",
     "format_sensitivity",
+    "move_hole",
     "predict_change",
+    "ream",
     "sensitivity",
     "shorten_foot",
 ]
 
 _BRACKET = 0.08  # relative half-width of the search around the unchanged frequency
+UNCERTAIN_END_CORRECTION_MM = 3.0
+"""How far the window's end correction is varied to gauge a change's uncertainty, mm (the
+spread of its prior in :mod:`bench.model.fit`)."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -46,12 +53,16 @@ class Change:
     description : str
     fingerings : tuple of str
     before_hz, after_hz : float ndarray, shape (F, K), Hz
+    uncertainty_cents : float ndarray, shape (F, K), cents, or None
+        How far the change's prediction moves under other plausible models (see
+        :func:`predict_change`); None when not asked for.
     """
 
     description: str
     fingerings: tuple[str, ...]
     before_hz: NDArray[np.float64]
     after_hz: NDArray[np.float64]
+    uncertainty_cents: NDArray[np.float64] | None = None
 
     @property
     def cents(self) -> NDArray[np.float64]:
@@ -112,12 +123,76 @@ def shorten_foot(geometry: Geometry, cut_mm: float) -> Geometry:
     return replace(geometry, bore_mm=tuple(pts))
 
 
+def move_hole(geometry: Geometry, label: str, to_mm: float) -> Geometry:
+    """The geometry with hole ``label`` plugged and drilled again at ``to_mm`` from the blown end.
+
+    The hole keeps its diameters and its chimney (the wall thickness at the new place may differ;
+    give a geometry with the new chimney for that).
+
+    Raises
+    ------
+    SettingsError
+        Unknown hole, or a place outside the bore or where the new hole would overlap its
+        neighbours (the holes stay in their order).
+    """
+    i = _hole_index(geometry, label)
+    hole = geometry.holes[i]
+    half = hole.inner_diameter_mm / 2.0
+    lo = geometry.holes[i - 1].position_mm + geometry.holes[i - 1].inner_diameter_mm / 2.0 + half if i > 0 else half
+    hi = (geometry.holes[i + 1].position_mm - geometry.holes[i + 1].inner_diameter_mm / 2.0 - half
+          if i + 1 < len(geometry.holes) else geometry.length_mm - half)
+    if not (math.isfinite(to_mm) and lo < to_mm < hi):
+        raise SettingsError(
+            f"moving hole {label} to {to_mm:g} mm is out of range; give a place between {lo:.1f} and {hi:.1f} mm "
+            "(inside the bore, clear of the neighbouring holes)"
+        )
+    if hole.inner_diameter_mm >= geometry.diameter_at(to_mm):
+        raise SettingsError(f"hole {label} ({hole.inner_diameter_mm:g} mm) is not smaller than the bore at {to_mm:g} mm")
+    holes = geometry.holes[:i] + (replace(hole, position_mm=to_mm),) + geometry.holes[i + 1:]
+    return replace(geometry, holes=holes)
+
+
+REAM_TAPER_MM = 1.0
+"""A reamed stretch meets the old bore through a short cone this long at each end (a bore file
+needs rising distances, and a reamer leaves a small chamfer rather than a sharp step)."""
+
+
+def ream(geometry: Geometry, from_mm: float, to_mm: float, by_mm: float) -> Geometry:
+    """The geometry with the bore between ``from_mm`` and ``to_mm`` widened by ``by_mm``.
+
+    The diameter grows by ``by_mm`` over the stretch, joined to the old bore by cones of
+    :data:`REAM_TAPER_MM` at each end.
+
+    Raises
+    ------
+    SettingsError
+        A stretch outside the bore, shorter than two tapers, or ``by_mm`` not in (0, 5] mm.
+    """
+    length = geometry.length_mm
+    if not (math.isfinite(from_mm) and math.isfinite(to_mm) and 0.0 <= from_mm and to_mm <= length
+            and to_mm - from_mm > 2.0 * REAM_TAPER_MM):
+        raise SettingsError(
+            f"reaming from {from_mm:g} to {to_mm:g} mm is out of range; give a stretch inside 0-{length:g} mm "
+            f"longer than {2 * REAM_TAPER_MM:g} mm, the start first"
+        )
+    if not (math.isfinite(by_mm) and 0.0 < by_mm <= 5.0):
+        raise SettingsError(f"reaming by {by_mm:g} mm is out of range; give more than 0 and at most 5 mm (reaming only widens)")
+    a, b = from_mm + REAM_TAPER_MM, to_mm - REAM_TAPER_MM
+    if from_mm == 0.0:
+        a = 0.0  # reaming from the very top: no taper there
+    if to_mm == length:
+        b = length
+    zs = sorted({z for z, _ in geometry.bore_mm} | {from_mm, a, b, to_mm})
+    pts = [(z, geometry.diameter_at(z) + (by_mm if a <= z <= b else 0.0)) for z in zs]
+    return replace(geometry, bore_mm=tuple(pts))
+
+
 def _after(
     changed: Geometry, patterns: list[str], before_hz: NDArray[np.float64], air: Air, options: ModelOptions
 ) -> NDArray[np.float64]:
     """Resonances of the changed geometry near the unchanged ones."""
     states = states_of(patterns) if changed.holes else np.zeros((len(patterns), 0), dtype=np.int8)
-    return refine_minima(changed, states, before_hz * (1 - _BRACKET), before_hz * (1 + _BRACKET), air, options, 34)
+    return minima_near(changed, states, before_hz, _BRACKET, air, options)
 
 
 def predict_change(
@@ -127,17 +202,40 @@ def predict_change(
     air: Air,
     registers: int = 3,
     options: ModelOptions | None = None,
+    uncertainty: bool = False,
 ) -> Change:
     """Predicted frequencies of every fingering before and after a change.
 
     The changed geometry's modes are searched within 8 % of the unchanged ones, so that mode k
     stays mode k (a change of more than a semitone and a third is followed only that far).
+
+    With ``uncertainty`` the change is predicted again under other plausible models -- the other
+    tone-hole model (Dubos et al. 1999 against Lefebvre & Scavone 2012) and the window's end
+    correction :data:`UNCERTAIN_END_CORRECTION_MM` lower and higher (the spread of its prior in
+    the fit) -- and the largest departure from the nominal change, in cents, is its
+    uncertainty. This is the spread between models, not a confidence interval.
     """
     options = options or ModelOptions()
     patterns = [f.holes for f in geometry.fingerings]
     before = playing_frequencies(geometry, patterns, air, registers, options).freq_hz
     after = _after(changed, patterns, before, air, options)
-    return Change(description, tuple(f.name for f in geometry.fingerings), before, after)
+    spread = None
+    if uncertainty:
+        nominal = 1200.0 * np.log2(after / before)
+        variants: list[tuple[Geometry, Geometry, ModelOptions]] = [
+            (geometry, changed, replace(options, hole_model="dubos-1999" if options.hole_model != "dubos-1999"
+                                        else "lefebvre-scavone-2012")),
+        ]
+        if geometry.top.kind == "window" and changed.top.kind == "window":
+            for delta in (-UNCERTAIN_END_CORRECTION_MM, UNCERTAIN_END_CORRECTION_MM):
+                ec = max(geometry.top.end_correction_mm + delta, 0.0)
+                variants.append((with_end_correction(geometry, ec), with_end_correction(changed, ec), options))
+        spread = np.zeros_like(nominal)
+        for g0, g1, opts in variants:
+            b = playing_frequencies(g0, patterns, air, registers, opts).freq_hz
+            a = _after(g1, patterns, b, air, opts)
+            spread = np.fmax(spread, np.abs(1200.0 * np.log2(a / b) - nominal))
+    return Change(description, tuple(f.name for f in geometry.fingerings), before, after, spread)
 
 
 def sensitivity(
@@ -172,11 +270,23 @@ def _grow(hole: Hole, step_mm: float) -> Hole:
 def format_change(change: Change) -> str:
     """Text table: fingering, then the change in cents per register."""
     k = change.before_hz.shape[1]
-    lines = [change.description, f"{'fingering':<10}" + "".join(f"{f'R{r + 1} c':>9}" for r in range(k))]
+    unc = change.uncertainty_cents
+    width = 9 if unc is None else 14
+    lines = [change.description, f"{'fingering':<10}" + "".join(f"{f'R{r + 1} c':>{width}}" for r in range(k))]
     cents = change.cents
-    for name, row in zip(change.fingerings, cents, strict=True):
-        cells = "".join(f"{c:+9.1f}" if math.isfinite(c) else f"{'-':>9}" for c in row)
+    for j, (name, row) in enumerate(zip(change.fingerings, cents, strict=True)):
+        cells = ""
+        for r, c in enumerate(row):
+            if not math.isfinite(c):
+                cells += f"{'-':>{width}}"
+            elif unc is None:
+                cells += f"{c:+9.1f}"
+            else:
+                cells += f"{f'{c:+.1f} +-{unc[j, r]:.1f}':>{width}}"
         lines.append(f"{name:<10}{cells}")
+    if unc is not None:
+        lines.append("+-: the largest departure under the other tone-hole model or a window end correction "
+                     f"{UNCERTAIN_END_CORRECTION_MM:g} mm off")
     return "\n".join(lines) + "\n"
 
 

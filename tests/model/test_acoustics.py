@@ -221,3 +221,30 @@ def test_vectorised_refinement_agrees_with_scipy_minimize_scalar():
             ref = minimize_scalar(mag, bounds=(f0 * 0.99, f0 * 1.01), method="bounded",
                                   options={"xatol": 1e-7})
             assert abs(_cents(f0, ref.x)) < 0.001
+
+
+def test_following_a_mode_through_a_change_agrees_with_scipy_minimize_scalar():
+    # minima_near (a local grid, then shrinking parabolas) after a hole is enlarged must find
+    # the minimum scipy's bounded Brent search finds near it.
+    from scipy.optimize import minimize_scalar
+
+    from bench.model.geometry import builtin_geometry
+    from bench.model.instrument import input_impedance, minima_near, states_of
+    from bench.model.whatif import enlarge_hole
+
+    g = builtin_geometry("wren-alto")
+    patterns = [g.fingering(n).holes for n in ("C5", "D5", "C6")]
+    states = states_of(patterns)
+    before = playing_frequencies(g, patterns, AIR, registers=2).freq_hz
+    changed = enlarge_hole(g, "h4", 7.2)
+    after = minima_near(changed, states, before, 0.06, AIR)
+    for i in range(len(patterns)):
+        for k in range(2):
+            f0 = after[i, k]
+
+            def mag(f: float, i=i) -> float:
+                return float(np.abs(input_impedance(changed, states[i: i + 1], np.array([f]), AIR))[0, 0])
+
+            ref = minimize_scalar(mag, bounds=(f0 * 0.99, f0 * 1.01), method="bounded", options={"xatol": 1e-7})
+            assert abs(_cents(f0, ref.x)) < 0.001
+    assert _cents(after[0, 0], before[0, 0]) > 3.0  # h4 is C5's first open hole: it rose

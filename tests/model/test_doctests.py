@@ -10,7 +10,7 @@ import pytest
 
 @pytest.mark.parametrize(
     "module",
-    ["bench.model.acoustics", "bench.model.geometry", "bench.model.instrument", "bench.model.predict"],
+    ["bench.model.acoustics", "bench.model.geometry", "bench.model.instrument", "bench.model.predict", "bench.model.demo"],
 )
 def test_docstring_examples(module):
     result = doctest.testmod(importlib.import_module(module))

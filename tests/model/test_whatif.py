@@ -12,7 +12,13 @@ from bench.errors import SettingsError
 from bench.model.acoustics import air_at
 from bench.model.geometry import builtin_geometry, parse_geometry_text
 from bench.model.instrument import ModelOptions
-from bench.model.whatif import enlarge_hole, predict_change, sensitivity, shorten_foot
+from bench.model.whatif import (
+    enlarge_hole,
+    format_change,
+    predict_change,
+    sensitivity,
+    shorten_foot,
+)
 
 AIR = air_at(25.0, 60.0)
 
@@ -64,3 +70,83 @@ def test_whatif_command_needs_something_to_try(capsys):
     assert "nothing to try" in capsys.readouterr().err
     assert main(["model", "whatif", "wren-alto", "--hole", "h4"]) == 2
     assert "--hole and --diameter go together" in capsys.readouterr().err
+
+
+def _tube(length_mm: float = 600.0) -> str:
+    return (f'[instrument]\nname = "t"\n[bore]\npoints_mm = [[0, 14.0], [{length_mm:g}, 14.0]]\n[top]\nkind = "open"\n'
+            '[fingerings]\nplain = ""\n')
+
+
+def test_reaming_a_whole_ideal_tube_leaves_its_modes_alone():
+    # Fletcher & Rossing (1998), ch. 8: f = n c / 2L for an ideal open-open pipe, whatever its
+    # diameter, so widening the whole bore moves no mode.
+    from bench.model.whatif import ream
+
+    g = parse_geometry_text(_tube())
+    changed = ream(g, 0.0, 600.0, 2.0)
+    assert changed.diameter_at(300.0) == pytest.approx(16.0)
+    change = predict_change(g, changed, "ream", AIR, 3, ModelOptions(losses=False, radiation="ideal"))
+    assert np.allclose(change.cents, 0.0, atol=0.01)
+
+
+def test_reaming_near_a_pressure_maximum_lowers_and_near_an_open_end_raises():
+    # The bore-perturbation rule (Rayleigh; Benade, *Fundamentals of Musical Acoustics*, 1976,
+    # the chapter on bore perturbations, from memory as to the chapter): widening the bore where
+    # the mode's pressure is large (the middle of an open-open tube for mode 1) adds compliance
+    # and lowers the mode; widening it where the flow is large (near an open end) lowers the
+    # inertance and raises it.
+    from bench.model.whatif import ream
+
+    g = parse_geometry_text(_tube())
+    opts = ModelOptions(losses=False, radiation="ideal")
+    middle = predict_change(g, ream(g, 250.0, 350.0, 1.0), "m", AIR, 1, opts).cents[0, 0]
+    end = predict_change(g, ream(g, 500.0, 600.0, 1.0), "e", AIR, 1, opts).cents[0, 0]
+    assert middle < -1.0 and end > 1.0
+
+
+def test_moving_a_hole_down_the_bore_lowers_the_note_it_vents():
+    # *common practice*: a tone hole further from the blown end gives a lower note.
+    from bench.model.whatif import move_hole
+
+    g = builtin_geometry("wren-alto")
+    change = predict_change(g, move_hole(g, "h3", 232.0), "move", AIR, registers=1)
+    by_name = dict(zip(change.fingerings, change.cents[:, 0], strict=True))
+    assert by_name["D5"] < -5.0  # h3 is D5's first open hole
+    assert abs(by_name["C5"]) < 1.0  # h3 closed
+
+
+@pytest.mark.parametrize(
+    ("call", "match"),
+    [
+        (lambda g: __import__("bench.model.whatif", fromlist=["x"]).move_hole(g, "h3", 200.0),
+         r"moving hole h3 to 200 mm is out of range; give a place between"),
+        (lambda g: __import__("bench.model.whatif", fromlist=["x"]).ream(g, 300.0, 200.0, 0.2),
+         r"reaming from 300 to 200 mm is out of range"),
+        (lambda g: __import__("bench.model.whatif", fromlist=["x"]).ream(g, 200.0, 300.0, -0.2),
+         r"reaming by -0.2 mm is out of range"),
+    ],
+)
+def test_bad_moves_and_reams_are_one_line(call, match):
+    with pytest.raises(SettingsError, match=match):
+        call(builtin_geometry("wren-alto"))
+
+
+def test_whatif_command_moves_and_reams(capsys):
+    assert main(["model", "whatif", "wren-alto", "--move", "h3", "--to-mm", "230", "--registers", "1"]) == 0
+    out = capsys.readouterr().out
+    assert "hole h3 moved from 227 to 230 mm" in out
+    assert main(["model", "whatif", "wren-alto", "--ream", "150", "250"]) == 2
+    assert "--ream and --by-mm go together" in capsys.readouterr().err
+
+
+def test_a_change_carries_the_spread_between_plausible_models():
+    # The uncertainty is the departure under the other tone-hole model (Dubos et al. 1999 against
+    # Lefebvre & Scavone 2012, which differ in their length corrections) or another window end
+    # correction: it is small but not nil where the changed hole vents, and smaller than the change.
+    g = builtin_geometry("wren-alto")
+    change = predict_change(g, enlarge_hole(g, "h3", 6.5), "h3", AIR, registers=1, uncertainty=True)
+    assert change.uncertainty_cents is not None
+    j = change.fingerings.index("D5")
+    assert 0.0 < change.uncertainty_cents[j, 0] < abs(change.cents[j, 0])
+    assert np.all(change.uncertainty_cents[np.isfinite(change.uncertainty_cents)] >= 0.0)
+    assert "+-" in format_change(change)
