@@ -19,7 +19,7 @@ COMMAND_MODULES = (
     "bench.commands.notes",  # notes, temperaments
     "bench.commands.analyze",
     "bench.commands.chart",  # chart, compare
-    "bench.commands.model",  # model predict|fit|whatif
+    "bench.commands.model",  # model predict|fit|whatif|suggest
     "bench.commands.calibrate",
     "bench.commands.tone",
 )
