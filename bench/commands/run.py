@@ -117,7 +117,7 @@ def build_source(args: argparse.Namespace, *, realtime_file: bool) -> tuple[Audi
     if kind == "demo":
         from bench.sources.demo import DemoSource
 
-        return DemoSource(rate_i or 48000, block_size=block), None
+        return DemoSource(rate_i or 48000, block_size=block, profile=args.profile), None  # each profile its own instrument
     if kind == "mic":
         from bench.sources.mic import MicSource, resolve_input_device
 
@@ -128,7 +128,8 @@ def build_source(args: argparse.Namespace, *, realtime_file: bool) -> tuple[Audi
                 raise
             from bench.sources.demo import DemoSource
 
-            return DemoSource(rate_i or 48000, block_size=block), f"{exc}; playing the demo instrument instead"
+            demo = DemoSource(rate_i or 48000, block_size=block, profile=args.profile)
+            return demo, f"{exc}; playing the demo instrument instead"
         return MicSource(args.device, sample_rate=rate_i, block_size=block), None
     if args.device is not None:
         raise SettingsError(f"--device {args.device!r} applies to --input mic, not to the file {kind}")
@@ -311,7 +312,7 @@ def _start_engine(
             raise
         from bench.sources.demo import DemoSource
 
-        engine = make(DemoSource(source.sample_rate, block_size=source.block_size))
+        engine = make(DemoSource(source.sample_rate, block_size=source.block_size, profile=args.profile))
         engine.start()
         return engine, f"{exc}; playing the demo instrument instead"
     if getattr(args, "drone_player", None) is not None:

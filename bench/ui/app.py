@@ -311,6 +311,7 @@ class BenchApp(App[int]):
         """Tuning chart of the captures so far."""
         self._captures_file_shown: tuple[Path | None, str | None] = (None, None)
         self._notices: list[ShownNotice] = []
+        self._skips_told = 0
         self._seen_captures: set[int] = set()
         self._last_capture: Any = None
         self._blowing_line = ""
@@ -506,6 +507,7 @@ class BenchApp(App[int]):
         log_path = self.engine.log_path
         bar.log_path = None if log_path is None else str(log_path)
         self._tell_captures_file()
+        self._tell_skips()
 
     def _analysis_load_pct(self, cpu_s: float | None) -> float | None:
         """Analysis-thread CPU seconds per wall second over the last ~3 s, percent (None: unknown yet)."""
@@ -777,6 +779,16 @@ class BenchApp(App[int]):
         elif workflow.captures_path is not None:
             self.notify(f"captures go to {workflow.captures_path.name}", timeout=4)
         self._show_workflow()
+
+    def _tell_skips(self) -> None:
+        """Say why a held note gave no capture (too short, unsteady, broke, locked elsewhere)."""
+        workflow = self.workflow
+        if workflow is None:
+            return
+        count, newest = workflow.newest_skip()
+        if count > self._skips_told and newest is not None:
+            self.notify(str(newest), severity="warning")
+        self._skips_told = count
 
     def _on_capture(self, cap: Capture) -> None:
         """A capture was taken or updated (in the UI thread, from the engine's message)."""

@@ -227,6 +227,13 @@ class LiveWorkflow:
         with self._lock:
             return self._detector.last_skip
 
+    def newest_skip(self) -> tuple[int, Skip | None]:
+        """How many held notes gave no capture so far, and the newest of them (for a screen
+        that says why, without copying the whole list at every poll)."""
+        with self._lock:
+            skips = self._detector.skips
+            return len(skips), (skips[-1] if skips else None)
+
     def skips(self) -> list[Skip]:
         """Every held note of the session that gave no capture, with the reason."""
         with self._lock:

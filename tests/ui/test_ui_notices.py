@@ -63,3 +63,20 @@ def test_a_calibrated_clock_is_shown_on_the_session_line(make_app, engine):
             return app.query_one(SessionBar).render().plain
 
     assert "clock +42.5 ppm" in asyncio.run(scenario())
+
+
+def test_a_held_note_that_gave_no_capture_says_why(make_app, engine):
+    # a note too short to settle is named on the notice line with the reason (the maker
+    # otherwise sees nothing happen)
+    async def scenario():
+        app = make_app(engine)
+        async with app.run_test(size=(120, 36)) as pilot:
+            for _ in range(12):  # 0.12 s of A4: a blip of a note
+                engine.show(A4_HZ)
+            for _ in range(30):
+                engine.show(None)
+            line = app.query_one("#notices", NoticeLine)
+            await until(pilot, lambda: "not captured" in line.render().plain)
+            return line.render().plain
+
+    assert "A4" in asyncio.run(scenario())
