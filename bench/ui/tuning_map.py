@@ -1,6 +1,8 @@
 """The tuning map: every note of the instrument's compass, per register, as a column that
 rises when the latest capture is sharp, falls when it is flat, sits on the line when it is on
-target, and is hatched grey while the note is unchecked.
+target, is hatched grey while the note is unchecked, and is a column of red crosses when the
+latest capture broke into another register (overblown "ob", vented "vt": not a measurement of
+the note).
 
 The map is made to give the shape of the whole instrument's tuning from a metre or two away:
 the side of each note is told by colour *and* by shape (a column up with a ▲ tip, down with a
@@ -44,6 +46,7 @@ _LEGEND = (
     ("\u25bc flat", "flat"),
     ("\u2588 within \u00b15 c", "centred"),
     ("\u2591 not yet checked", "unchecked"),
+    ("\u2573 broke: not a measurement", "broken"),
 )
 
 
@@ -126,6 +129,7 @@ class TuningMap(LineView):
         "tuning-map--flat",
         "tuning-map--centred",
         "tuning-map--unchecked",
+        "tuning-map--broken",
         "tuning-map--axis",
         "tuning-map--line",
         "tuning-map--note",
@@ -142,7 +146,7 @@ class TuningMap(LineView):
     def _styles(self) -> dict[str, Style]:
         return {
             name: self.get_component_rich_style(f"tuning-map--{name}")
-            for name in ("sharp", "flat", "centred", "unchecked", "axis", "line", "note", "title")
+            for name in ("sharp", "flat", "centred", "unchecked", "broken", "axis", "line", "note", "title")
         }
 
     def render(self) -> Text:
@@ -201,6 +205,12 @@ class TuningMap(LineView):
                 put(r, "\u2591" * ink_w + pad, st["unchecked"])
             figure = "?"
             figure_style = st["unchecked"]
+        elif e.status == "broken":
+            # the note broke into another register: crosses, never a column that reads as cents
+            for r in gauge:
+                put(r, "\u2573" * ink_w + pad, st["broken"])
+            figure = "ob" if cap.jump == "overblown" else "vt" if cap.jump == "vented" else "brk"
+            figure_style = st["broken"]
         else:
             zone = max(-half, min(half, zone_of(cap.cents)))
             side = offset_side(cap.cents)

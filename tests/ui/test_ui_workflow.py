@@ -344,3 +344,26 @@ def test_captures_file_that_cannot_be_written_is_shown_and_capturing_goes_on(mak
     app, line = run(scenario())
     assert "captures not saved" in line
     assert any("captures kept in memory only" in m for m in app.errors())
+
+
+def test_an_overblown_note_is_charted_as_broken_never_as_checked(make_app):
+    # A4 held, then overblown to its octave (an open pipe's second mode, Fletcher & Rossing):
+    # the capture is filed under the fingered A4 and drawn as crosses, not as a checked A5
+    engine = fresh_engine()
+
+    async def scenario():
+        app = make_app(engine)
+        async with app.run_test(size=SIZE) as pilot:
+            hold(engine, A4_HZ, 0.8)
+            hold(engine, 2 * A4_HZ, 0.5, register="jumped", jump="overblown", held_f0_hz=A4_HZ)
+            hold(engine, None, 0.3)
+            await until(pilot, lambda: len(app.workflow.captures()) >= 1)
+            await pilot.press("v")
+            await until(pilot, lambda: isinstance(app.screen, ChartScreen))
+            tmap = app.screen.query_one(TuningMap)
+            return app.workflow.captures(), tmap.chart, tmap.render().plain
+
+    caps, chart, shown = run(scenario())
+    assert [(c.note, c.jump) for c in caps] == [("A4", "overblown")]
+    assert chart.entry(69, 1).status == "broken" and chart.entry(81, 2).capture is None
+    assert "\u2573" in shown and "ob" in shown
