@@ -27,6 +27,7 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     p.add_argument("--out", type=Path, metavar="CHART.png|CHART.svg", help="draw the chart to this file")
     p.add_argument("--summary", type=Path, metavar="SUMMARY.csv", help="write cents per note and register")
     p.add_argument("--label", metavar="TEXT", help="chart only the captures with this session label")
+    p.add_argument("--flats", action="store_true", help="spell every note of the chart with flats (Bb4, not A#4)")
     p.add_argument("--overwrite", action="store_true",
                    help="replace an existing --out/--summary file (or a link of that name, never its target)")
     p.add_argument("--save-captures", action="store_true",
@@ -110,7 +111,7 @@ def run_chart(args: argparse.Namespace) -> int:
     _check_out(args.out)
     _check_outputs(args, ("out", "summary"), [args.session])
     session = load_session(args.session, args.profile)
-    chart = build_chart(session.captures, session.profile, label=args.label)
+    chart = build_chart(session.captures, session.profile, label=args.label, flats=args.flats)
     if args.label is not None and not chart.checked():
         labels = sorted({c.label for c in session.captures})
         raise SettingsError(

@@ -171,3 +171,17 @@ def test_bench_chart_missing_or_foreign_file(tmp_path, capsys):
     other.write_text("a,b\n1,2\n", encoding="utf-8")
     assert main(["chart", str(other)]) == 2
     assert "neither a frame log nor a captures file" in capsys.readouterr().err
+
+
+def test_bench_chart_flats_spells_every_note_with_flats(tmp_path, capsys):
+    # one spelling per chart: with --flats no note is spelt with a sharp (common practice:
+    # a chart for an instrument in F is usually read in flats)
+    from bench.cli import main
+
+    log = tmp_path / "take.csv"
+    assert main(["run", "--no-ui", "--input", "demo", "--duration", "4", "--log", str(log)]) == 0
+    capsys.readouterr()
+    assert main(["chart", str(log), "--profile", "alto", "--flats"]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    names = [ln.split()[0] for ln in lines if ln[:1] in "ABCDEFG" and ln.split()[0][-1].isdigit()]
+    assert names and not any("#" in n for n in names) and any("b" in n for n in names)
