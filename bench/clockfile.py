@@ -95,11 +95,9 @@ def parse_clock_ppm(text: str | None) -> float | None:
     """A ``--clock-ppm`` value: None when not given; a one-line SettingsError when unusable."""
     if text is None:
         return None
-    try:
-        value = float(text)
-    except ValueError:
-        raise SettingsError(f"--clock-ppm {text!r} is not a number; give the clock error in ppm, e.g. 23.5") from None
-    return check_clock_ppm(value)
+    from bench.numbers import parse_number
+
+    return check_clock_ppm(parse_number(text, "--clock-ppm", "the clock error in ppm, e.g. 23.5"))
 
 
 def _read_tables(path: Path) -> dict[str, Any]:

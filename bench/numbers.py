@@ -104,3 +104,35 @@ def find_number(text: str) -> tuple[float, str] | None:
     if not math.isfinite(value):
         raise SettingsError(f"{clip(repr(m.group()))} is not a finite number")
     return value, m.group()
+
+
+def number_arg(text: str) -> float:
+    """argparse ``type=``: the one number syntax of bench for an option's value.
+
+    Raises
+    ------
+    argparse.ArgumentTypeError
+        Not a strict finite number (argparse turns it into one line naming the option).
+    """
+    import argparse
+
+    value = strict_float(text)
+    if value is None:
+        raise argparse.ArgumentTypeError(f"{clip(text)!r} is not a number (decimal, e.g. 2 or 1.5, no '_')")
+    return value
+
+
+def parse_bounded(option: str, text: str | None, what: str, lo: float, hi: float) -> float | None:
+    """An option's number within ``lo``..``hi``; None when it was not given.
+
+    Raises
+    ------
+    SettingsError
+        Not a strict number, or out of the range (one line naming the option).
+    """
+    if text is None:
+        return None
+    value = parse_number(text, option, what)
+    if not lo <= value <= hi:
+        raise SettingsError(f"{option} {clip(text)!r} is out of range; give {what} ({lo:g}-{hi:g})")
+    return value

@@ -20,6 +20,7 @@ from pathlib import Path
 from typing import Any
 
 from bench.errors import AudioFileError, BenchError, SettingsError
+from bench.numbers import parse_bounded
 
 DEFAULT_TONE_S = 30.0
 """Seconds of a reference tone recorded from the microphone by default."""
@@ -48,15 +49,7 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
 
 
 def _number(option: str, text: str | None, what: str, lo: float, hi: float) -> float | None:
-    if text is None:
-        return None
-    try:
-        value = float(text)
-    except ValueError:
-        raise SettingsError(f"{option} {text!r} is not a number; give {what}") from None
-    if not (math.isfinite(value) and lo <= value <= hi):
-        raise SettingsError(f"{option} {text!r} is out of range; give {what} ({lo:g}-{hi:g})")
-    return value
+    return parse_bounded(option, text, what, lo, hi)  # the one strict number syntax
 
 
 def _say(message: str) -> None:

@@ -8,6 +8,7 @@ from collections.abc import Callable
 from pathlib import Path
 
 from bench.errors import SettingsError
+from bench.numbers import number_arg
 
 
 def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
@@ -52,21 +53,11 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
                    help="replace an existing --out/--csv file (or a link of that name, never its target)")
     c.add_argument("--before-label", metavar="TEXT", help="use only BEFORE's captures with this label")
     c.add_argument("--after-label", metavar="TEXT", help="use only AFTER's captures with this label")
-    c.add_argument("--noise-factor", type=_strict_float, default=2.0, metavar="K",
+    c.add_argument("--noise-factor", type=number_arg, default=2.0, metavar="K",
                    help="a change counts when above K x combined spread (default 2)")
-    c.add_argument("--min-cents", type=_strict_float, default=1.0, metavar="C",
+    c.add_argument("--min-cents", type=number_arg, default=1.0, metavar="C",
                    help="and above this many cents (default 1)")
     c.set_defaults(func=run_compare)
-
-
-def _strict_float(text: str) -> float:
-    """argparse type: the one number syntax of bench (bench.numbers)."""
-    from bench.numbers import strict_float
-
-    value = strict_float(text)
-    if value is None:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number (decimal, e.g. 2 or 1.5)")
-    return value
 
 
 def _check_out(path: Path | None) -> None:

@@ -7,6 +7,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from bench.errors import SettingsError
+from bench.numbers import number_arg
 
 if TYPE_CHECKING:
     from bench.model.geometry import Geometry
@@ -15,11 +16,11 @@ _GEOMETRY_HELP = "geometry .toml, or a built-in: wren-alto, wren-soprano"
 
 
 def _air_options(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--temp", type=float, default=25.0, metavar="C",
+    p.add_argument("--temp", type=number_arg, default=25.0, metavar="C",
                    help="air temperature in the bore, degC (default 25: a bore warmed by breath)")
-    p.add_argument("--rh", type=float, default=60.0, metavar="PERCENT",
+    p.add_argument("--rh", type=number_arg, default=60.0, metavar="PERCENT",
                    help="relative humidity in the bore, percent (default 60)")
-    p.add_argument("--a4", type=float, default=440.0, metavar="HZ", help="pitch standard of the targets (default 440)")
+    p.add_argument("--a4", type=number_arg, default=440.0, metavar="HZ", help="pitch standard of the targets (default 440)")
     p.add_argument("--registers", type=int, default=3, metavar="N", help="modes per fingering (default 3)")
 
 
@@ -55,7 +56,7 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     )
     f.add_argument("geometry", metavar="GEOMETRY", help=_GEOMETRY_HELP)
     f.add_argument("captures", type=Path, metavar="CAPTURES.csv", help="captures file (<log>.captures.csv)")
-    f.add_argument("--rh", type=float, default=60.0, metavar="PERCENT",
+    f.add_argument("--rh", type=number_arg, default=60.0, metavar="PERCENT",
                    help="humidity in the bore where a capture names none (default 60)")
     f.add_argument("--save", type=Path, metavar="FITTED.toml",
                    help="write the geometry with the fitted end correction and effective hole diameters")
@@ -74,13 +75,13 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     )
     w.add_argument("geometry", metavar="GEOMETRY", help=_GEOMETRY_HELP)
     w.add_argument("--hole", metavar="LABEL", help="hole to change (its label, e.g. h4)")
-    w.add_argument("--diameter", type=float, metavar="MM", help="its new diameter, mm")
-    w.add_argument("--shorten-foot", type=float, metavar="MM", help="cut this much off the foot, mm")
+    w.add_argument("--diameter", type=number_arg, metavar="MM", help="its new diameter, mm")
+    w.add_argument("--shorten-foot", type=number_arg, metavar="MM", help="cut this much off the foot, mm")
     w.add_argument("--move", metavar="LABEL", help="hole to plug and drill again elsewhere (with --to-mm)")
-    w.add_argument("--to-mm", type=float, metavar="POS", help="its new place, mm from the blown end")
-    w.add_argument("--ream", type=float, nargs=2, metavar=("FROM_MM", "TO_MM"),
+    w.add_argument("--to-mm", type=number_arg, metavar="POS", help="its new place, mm from the blown end")
+    w.add_argument("--ream", type=number_arg, nargs=2, metavar=("FROM_MM", "TO_MM"),
                    help="widen the bore between these distances from the blown end (with --by-mm)")
-    w.add_argument("--by-mm", type=float, metavar="D", help="how much wider the reamed stretch gets, mm")
+    w.add_argument("--by-mm", type=number_arg, metavar="D", help="how much wider the reamed stretch gets, mm")
     w.add_argument("--sensitivity", action="store_true", help="cents per 0.1 mm for every hole and note")
     _air_options(w)
     w.set_defaults(func=run_whatif)
@@ -100,12 +101,12 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     s.add_argument("captures", type=Path, metavar="CAPTURES.csv", help="captures file (<log>.captures.csv)")
     s.add_argument("--allow", action="append", choices=["enlarge", "undercut", "wax"], metavar="KIND",
                    help="a kind of change allowed: enlarge, undercut or wax; repeat for more (default enlarge)")
-    s.add_argument("--max-diameter", type=float, metavar="MM",
+    s.add_argument("--max-diameter", type=number_arg, metavar="MM",
                    help="no hole (nor its undercut) wider than this, mm (default 0.9 of the bore)")
-    s.add_argument("--step-mm", type=float, default=0.1, metavar="MM", help="one step of a cut, mm (default 0.1)")
-    s.add_argument("--min-gain", type=float, default=1.0, metavar="CENTS",
+    s.add_argument("--step-mm", type=number_arg, default=0.1, metavar="MM", help="one step of a cut, mm (default 0.1)")
+    s.add_argument("--min-gain", type=number_arg, default=1.0, metavar="CENTS",
                    help="propose a change only if it takes away this much error (root of the drop in the sum of squared cents; default 1 c)")
-    s.add_argument("--tolerance", type=float, default=2.0, metavar="CENTS",
+    s.add_argument("--tolerance", type=number_arg, default=2.0, metavar="CENTS",
                    help="a note this close to its target is in tune (default 2 c)")
     s.add_argument("--no-fit", action="store_true", help="use the geometry as given, without fitting it first")
     s.add_argument("--out", type=Path, metavar="PICTURE.png",

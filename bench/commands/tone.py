@@ -3,14 +3,13 @@
 from __future__ import annotations
 
 import argparse
-import math
 import sys
 import threading
 from collections.abc import Callable
 from typing import Any
 
 from bench.commands.options import add_tuning_options, settings_from_args
-from bench.errors import SettingsError
+from bench.numbers import parse_bounded
 from bench.tuning import TuningSettings
 
 
@@ -35,15 +34,7 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
 
 
 def _number(option: str, text: str | None, what: str, lo: float, hi: float) -> float | None:
-    if text is None:
-        return None
-    try:
-        value = float(text)
-    except ValueError:
-        raise SettingsError(f"{option} {text!r} is not a number; give {what}") from None
-    if not (math.isfinite(value) and lo <= value <= hi):
-        raise SettingsError(f"{option} {text!r} is out of range; give {what} ({lo:g}-{hi:g})")
-    return value
+    return parse_bounded(option, text, what, lo, hi)  # the one strict number syntax
 
 
 def tone_hz(note: str, args: argparse.Namespace) -> tuple[float, str]:
