@@ -97,7 +97,8 @@ def test_drone_sounds_beside_a_live_run_without_holding_up_the_input(jack_server
     # device 'system' has a stored clock error of +50 ppm (as 'bench calibrate' keeps it): the
     # run applies it to the input (F4 then reads 1200*log2(1 + 5e-5) = 0.0866 cents high, the
     # ppm arithmetic) and takes it out of the drone (its samples hold 440/(1 + 5e-5) Hz).
-    from conftest import LIVE_CASE
+    # by path, not `from conftest`: inside the test run another folder's conftest may own that name
+    LIVE_CASE = Path(__file__).with_name("live_case.py")
 
     from bench.clockfile import ClockCalibration, save_calibration
     from bench.framelog import read_frame_log
