@@ -16,14 +16,13 @@ from __future__ import annotations
 import math
 import threading
 import time
-from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
 from numpy.typing import NDArray
 
 from bench.errors import DeviceError, SettingsError
-from bench.sources.mic import import_sounddevice
+from bench.sources.mic import InputDevice, import_sounddevice
 
 Timbre = Literal["sine", "reed"]
 TIMBRES: tuple[Timbre, ...] = ("sine", "reed")
@@ -34,19 +33,9 @@ FADE_S = 0.02
 DEFAULT_LEVEL_DBFS = -18.0
 
 
-@dataclass(frozen=True, slots=True)
-class OutputDevice:
-    """An audio output PortAudio lists: index, name, output channels, default rate (Hz), host API."""
-
-    index: int
-    name: str
-    channels: int
-    default_rate_hz: float
-    host_api: str
-
-    def label(self) -> str:
-        """``3 'USB Audio' (ALSA)``."""
-        return f"{self.index} '{self.name}' ({self.host_api})"
+OutputDevice = InputDevice
+"""An audio output as PortAudio lists it: the same record as an input (index, name, channels of
+that direction, default rate, host API)."""
 
 
 class ToneGenerator:
