@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import collections
 import dataclasses
+import math
 import threading
 import time
 from collections.abc import Callable, Sequence
@@ -72,6 +73,10 @@ EVENT_GAP_S = 0.1
 
 JUMP_NAME_WAIT_S = 0.06
 """Longest a jump event waits for the pitch to name the note it went to, seconds."""
+
+CRACK_LOOK_S = 0.25
+"""How far back a cracked attack's event looks for the upper note it spoke, seconds (the
+monitor reports a crack within 0.15 s of the note's start, plus its confirmation)."""
 
 MAX_SOURCE_ERRORS = 20
 """Consecutive non-device errors from a source before the engine may give up on it..."""
@@ -809,7 +814,9 @@ class _JumpEvents:
     :data:`EVENT_GAP_S` is no change), named "<fingered> <kind>: sounding <note>". The register
     monitor judges the newest half window, so a jump is often found while the reading's pitch
     still names the fingered note: the event then waits for the note it went to,
-    :data:`JUMP_NAME_WAIT_S` at most.
+    :data:`JUMP_NAME_WAIT_S` at most. A cracked attack (the note spoke an upper register before
+    its fundamental; :mod:`dsp.register`) is reported once, when its first marked reading comes,
+    as "<note> cracked attack: spoke <upper note> first".
     """
 
     def __init__(self, emit: Callable[[EventKind, str, float | None], None]) -> None:
@@ -817,6 +824,8 @@ class _JumpEvents:
         self._last_register: str | None = None
         self._last_voiced_s = -1e9
         self._pending: Reading | None = None  # a jump seen before its pitch moved
+        self._last_cracked = False
+        self._recent: collections.deque[tuple[float, float]] = collections.deque()  # (time_s, f0_hz) of the last CRACK_LOOK_S
 
     def take(self, reading: Reading) -> None:
         self._name_pending(reading)
@@ -827,7 +836,17 @@ class _JumpEvents:
         previous = self._last_register
         if time_s - self._last_voiced_s > EVENT_GAP_S:
             previous = None
+            self._last_cracked = False
+            self._recent.clear()
         self._last_register, self._last_voiced_s = register, time_s
+        recent = self._recent
+        recent.append((time_s, reading.frame.f0_hz or 0.0))
+        while recent[0][0] < time_s - CRACK_LOOK_S:
+            recent.popleft()
+        cracked = reading.jump == "cracked"
+        if cracked and not self._last_cracked:
+            self._emit("jump", _crack_message(reading, [f for _, f in recent]), time_s)
+        self._last_cracked = cracked
         if register == previous:
             return
         if register == "jumped":
@@ -870,6 +889,19 @@ def _jump_message(reading: Reading) -> str:
     if held and sounding and held != sounding:
         return f"{held} {kind}: sounding {sounding}"
     return f"{sounding or 'note'} {kind}"
+
+
+def _crack_message(reading: Reading, recent_f0_hz: list[float]) -> str:
+    """Event text of a cracked attack; the upper note named is a recent reading at 2 or 3 x held."""
+    held_hz = reading.frame.held_f0_hz
+    held = _note_of(held_hz, reading.settings) or "note"
+    upper = None
+    if held_hz:
+        spoke = [f for f in recent_f0_hz if f > 0.0 and min(abs(1200.0 * math.log2(f / (m * held_hz))) for m in (2, 3)) <= 50.0]
+        upper = _note_of(max(spoke), reading.settings) if spoke else None
+    if upper:
+        return f"{held} cracked attack: spoke {upper} first"
+    return f"{held} cracked attack: spoke an upper register first"
 
 
 def _note_of(freq_hz: float | None, settings: TuningSettings) -> str | None:

@@ -318,7 +318,7 @@ def read_frame_log(path: Path | str) -> list[dict[str, str]]:
 # --- reading a log back as readings -----------------------------------------------------------
 
 _REGISTER_STATES: dict[str, RegisterState] = {"steady": "steady", "weakening": "weakening", "jumped": "jumped"}
-_JUMP_KINDS: dict[str, JumpKind] = {"overblown": "overblown", "vented": "vented"}
+_JUMP_KINDS: dict[str, JumpKind] = {"overblown": "overblown", "vented": "vented", "cracked": "cracked"}
 
 
 def _num(text: str | None) -> float | None:

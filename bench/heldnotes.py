@@ -19,7 +19,7 @@ class RegisterEvent:
     """A register change seen during a held note."""
 
     time_s: float
-    kind: str  # "overblown" | "vented" | "weakening"
+    kind: str  # "overblown" | "vented" | "weakening" | "cracked" (the attack spoke an upper register)
     sounding_note: str
 
 
@@ -61,10 +61,18 @@ class HeldNote:
         )
         if self.events:
             text += "  " + ", ".join(
-                f"{e.kind} at {e.time_s:.2f} s" + (f" to {e.sounding_note}" if e.kind != "weakening" else "")
-                for e in self.events
+                _describe_event(e) for e in self.events
             )
         return text
+
+
+def _describe_event(e: RegisterEvent) -> str:
+    """One register event in a held note's line."""
+    if e.kind == "weakening":
+        return f"weakening at {e.time_s:.2f} s"
+    if e.kind == "cracked":
+        return f"cracked attack (found at {e.time_s:.2f} s)"
+    return f"{e.kind} at {e.time_s:.2f} s to {e.sounding_note}"
 
 
 @dataclass(slots=True)
@@ -118,6 +126,9 @@ class HeldNoteTracker:
                 # newest half window): name the note it went to once the pitch reads it
                 note.events[-1] = replace(note.events[-1], sounding_note=sounding)
         else:
+            if reading.jump == "cracked" and all(e.kind != "cracked" for e in note.events):
+                # the note is the settled fundamental; its attack spoke an upper register
+                note.events.append(RegisterEvent(reading.time_s, "cracked", sounding))
             if register == "weakening" and (not note.events or note.events[-1].kind != "weakening"):
                 # one early warning per approach to a jump: flicker in a live room is not news
                 note.events.append(RegisterEvent(reading.time_s, "weakening", sounding))

@@ -177,8 +177,14 @@ class Reading:
 
     @property
     def jump(self) -> str:
-        """"overblown" | "vented" while jumped, else ""."""
-        return (self.frame.jump or "") if self.voiced and self.frame.register == "jumped" else ""
+        """"overblown" | "vented" while jumped; "cracked" on the first frames of a note whose
+        attack spoke its octave or twelfth before its fundamental (the register is then
+        "steady" and the held note the fundamental: the note is not broken, see
+        :mod:`dsp.register`); else ""."""
+        if not self.voiced:
+            return ""
+        kind = self.frame.jump or ""
+        return kind if self.frame.register == "jumped" or kind == "cracked" else ""
 
     @property
     def odd_even_db(self) -> float | None:

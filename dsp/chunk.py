@@ -8,7 +8,11 @@ half window's spectrum is read out of it); measures each frame
 (hysteresis); steps the register monitor (:func:`dsp.register.monitor_update`); and, once a
 jump is past a frame's centre while the window still shows the held note (reverberation),
 measures the frame's pitch on the harmonics of mode x held note. One row of ``out`` per
-frame; Python only turns the rows into :class:`dsp.frame.Frame` objects.
+frame; Python only turns the rows into :class:`dsp.frame.Frame` objects. The monitor's jump
+code goes into the row as it is, the cracked-attack mark on steady frames included.
+
+numba caches each kernel against its own file only: this file changes with the monitor's
+state layout (dsp/register.py) so that no stale compiled call outlives a merge.
 """
 
 from __future__ import annotations

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 from typing import Literal
 
 RegisterState = Literal["steady", "weakening", "jumped"]
-JumpKind = Literal["overblown", "vented"]
+JumpKind = Literal["overblown", "vented", "cracked"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -34,8 +34,12 @@ class Frame:
         ``10*log10(sum odd H^2 / sum even H^2)`` over H1..H8; None when unvoiced.
     register : "steady" | "weakening" | "jumped" | None
         Register monitor state for the held note; None when unvoiced.
-    jump : "overblown" | "vented" | None
-        Kind of register jump while ``register == "jumped"``, else None.
+    jump : "overblown" | "vented" | "cracked" | None
+        Kind of register jump while ``register == "jumped"``; "cracked" on the first
+        frames (``crack_show_s``, 0.25 s) of a note that spoke its octave or twelfth at its
+        attack before settling on its fundamental (``register`` is then "steady", the
+        held note the fundamental: the note is not broken; see :mod:`dsp.register`);
+        else None.
     held_f0_hz : float or None, Hz
         Fundamental of the held (fingered) note the register monitor follows.
     """

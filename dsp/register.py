@@ -47,6 +47,8 @@ import numpy as np
 from numba import njit
 from numpy.typing import NDArray
 
+from dsp.frame import JumpKind
+
 __all__ = [
     "EVIDENCE_HARMONICS",
     "EVIDENCE_MODES",
@@ -72,6 +74,11 @@ _TINY = 1e-30
 # read -6.6 dB and lower at detection; a note's end in a reverberant room (its octave
 # outlasting the fundamental) read +1.2 and -0.5 dB, and was taken for a vent at +3 dB.
 _DOMINATED_DB = -3.0
+# Rise of a young note's odd (off-3) harmonics, from a ratio under _DOMINATED_DB, that shows
+# its fundamental took over from a cracked attack, dB. Constructed test signals (tests/dsp/
+# test_register_field.py, seeds 1000-1099): cracks of 40-60 ms rose 15-60 dB; plain attacks
+# never read under _DOMINATED_DB.
+_CRACK_RISE_DB = 10.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -82,7 +89,8 @@ class RegisterReading:
     ----------
     register : "steady" | "weakening" | "jumped" | None
         None when unvoiced.
-    jump : "overblown" | "vented" | None
+    jump : "overblown" | "vented" | "cracked" | None
+        "cracked" marks steady frames just after a cracked attack (see the module).
     held_f0_hz : float or None, Hz
         Held (fingered) note; the lock target when locked.
     mode : int
@@ -90,7 +98,7 @@ class RegisterReading:
     """
 
     register: Literal["steady", "weakening", "jumped"] | None
-    jump: Literal["overblown", "vented"] | None
+    jump: JumpKind | None
     held_f0_hz: float | None
     mode: int
 
@@ -127,27 +135,38 @@ def summarise_row(powers: NDArray[np.float64], out: NDArray[np.float64]) -> None
 _C_COLLAPSE, _C_DEEP, _C_COLLAPSED_RATIO, _C_EVEN_RISE, _C_WEAKEN, _C_RISE = 0, 1, 2, 3, 4, 5
 _C_SILENCE, _C_CONFIRM, _C_WARMUP, _C_ALPHA, _C_WEAK, _C_REF_FAR, _C_REF_NEAR = 6, 7, 8, 9, 10, 11, 12
 _C_NEW_NOTE, _C_GRID_SPACING, _C_KIND_WAIT, _C_RISING, _C_FADE_SPAN, _C_FADE_DB = 13, 14, 15, 16, 17, 18
-_N_CONFIG = 19
+_C_SETTLED_TOL, _C_CRESCENDO, _C_CRACK_WINDOW, _C_CRACK_SHOW = 19, 20, 21, 22
+_N_CONFIG = 23
 # state (float64 vector; nan stands for "none"; counters are whole numbers)
 _S_TARGET, _S_HELD, _S_STATE, _S_JUMP, _S_MODE, _S_UNVOICED, _S_PENDING, _S_PENDING_RUN = 0, 1, 2, 3, 4, 5, 6, 7
-_S_IN_NOTE, _S_BASE_R2, _S_BASE_R3, _S_WEAK_RUN, _S_BACK_RUN, _S_HIST_POS, _S_INTACT, _S_STEADY_LEVEL = (
+_S_IN_NOTE, _S_BASE_R2, _S_BASE_R3, _S_WEAK_RUN, _S_BACK_RUN, _S_HIST_POS, _S_RISE_PEAK, _S_SETTLED_LEVEL = (
     8, 9, 10, 11, 12, 13, 14, 15,
 )
 # the last reading: register code, jump code, held note (Hz, nan none), mode
 OUT_REGISTER, OUT_JUMP, OUT_HELD, OUT_MODE = 16, 17, 18, 19
 _S_KIND_WAITED = 20  # frames a jump's report waited for a still-rising level
-N_STATE = 21
-# history rings, one row each: short-window level, energy on the evens, on the 3s, intact flag
-_H_LEVEL, _H_EVEN, _H_MULT3, _H_STEADY = 0, 1, 2, 3
+# frames the level has stood above the settled level (_S_SETTLED_LEVEL, dBFS, nan none; the
+# highest level of that stretch in _S_RISE_PEAK, dBFS);
+# frames the "cracked" mark has still to show; over the young note's frames, the lowest
+# odd/even ratio of its sub-octave and off/on-3 ratio of its sub-twelfth, and the lowest of
+# its own two ratios (dB): how absent a lower fundamental, or its own odd (off-3) harmonics, were
+_S_ABOVE_RUN, _S_CRACK_LEFT, _S_SUB2_MIN, _S_SUB3_MIN, _S_OWN2_MIN, _S_OWN3_MIN = 21, 22, 23, 24, 25, 26
+_S_ATTACKED = 27  # 1: the held note began at an onset after silence (or took over from one in warm-up)
+N_STATE = 28
+# history rings, one row each: short-window level, energy on the evens, on the 3s, settled level
+_H_LEVEL, _H_EVEN, _H_MULT3, _H_SETTLED = 0, 1, 2, 3
+_N_HIST = 4
 
 UNVOICED, STEADY, WEAKENING, JUMPED = -1, 0, 1, 2
 """Register codes of :data:`OUT_REGISTER`."""
-NO_JUMP, OVERBLOWN, VENTED = 0, 1, 2
-"""Jump codes of :data:`OUT_JUMP`."""
+NO_JUMP, OVERBLOWN, VENTED, CRACKED = 0, 1, 2, 3
+"""Jump codes of :data:`OUT_JUMP` (CRACKED: on a steady first-register frame, see the module)."""
 REGISTER_NAMES: dict[int, Literal["steady", "weakening", "jumped"] | None] = {
     UNVOICED: None, STEADY: "steady", WEAKENING: "weakening", JUMPED: "jumped"
 }
-JUMP_NAMES: dict[int, Literal["overblown", "vented"] | None] = {NO_JUMP: None, OVERBLOWN: "overblown", VENTED: "vented"}
+JUMP_NAMES: dict[int, JumpKind | None] = {
+    NO_JUMP: None, OVERBLOWN: "overblown", VENTED: "vented", CRACKED: "cracked"
+}
 
 
 @njit(cache=True, nogil=True)
@@ -162,11 +181,18 @@ def _clear_note(st: NDArray[np.float64], hist: NDArray[np.float64]) -> None:
         hist[_H_LEVEL, j] = np.nan
         hist[_H_EVEN, j] = np.nan
         hist[_H_MULT3, j] = np.nan
-        hist[_H_STEADY, j] = 0.0
+        hist[_H_SETTLED, j] = np.nan
     st[_S_HIST_POS] = 0.0
-    st[_S_INTACT] = 0.0
-    st[_S_STEADY_LEVEL] = np.nan  # level of the last steady stretch, >= 70 ms back
+    st[_S_RISE_PEAK] = -np.inf
+    st[_S_SETTLED_LEVEL] = np.nan
+    st[_S_ABOVE_RUN] = 0.0
     st[_S_KIND_WAITED] = 0.0
+    st[_S_CRACK_LEFT] = 0.0
+    st[_S_SUB2_MIN] = np.inf
+    st[_S_SUB3_MIN] = np.inf
+    st[_S_OWN2_MIN] = np.inf
+    st[_S_OWN3_MIN] = np.inf
+    st[_S_ATTACKED] = 0.0
 
 
 @njit(cache=True, nogil=True)
@@ -211,6 +237,12 @@ def _emit(st: NDArray[np.float64], register: int, jump: int, held_hz: float, mod
 
 
 @njit(cache=True, nogil=True)
+def _mark(st: NDArray[np.float64]) -> int:
+    """Jump code of a first-register frame: CRACKED while a cracked attack's mark shows."""
+    return CRACKED if st[_S_CRACK_LEFT] > 0.0 else NO_JUMP
+
+
+@njit(cache=True, nogil=True)
 def _held_or_target(st: NDArray[np.float64]) -> float:
     """Held note to report, Hz (nan for none)."""
     held_hz: float = st[_S_HELD] if math.isnan(st[_S_TARGET]) else st[_S_TARGET]
@@ -227,14 +259,8 @@ def _push(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray[np.fl
     hist[_H_LEVEL, i] = level_db
     hist[_H_EVEN, i] = even_db
     hist[_H_MULT3, i] = mult3_db
-    hist[_H_STEADY, i] = st[_S_INTACT]
-    pos += 1
-    st[_S_HIST_POS] = pos
-    near = int(cfg[_C_REF_NEAR])
-    if pos > near:
-        j = (pos - 1 - near) % size
-        if hist[_H_STEADY, j] != 0.0 and math.isfinite(hist[_H_LEVEL, j]):
-            st[_S_STEADY_LEVEL] = hist[_H_LEVEL, j]
+    hist[_H_SETTLED, i] = st[_S_SETTLED_LEVEL]
+    st[_S_HIST_POS] = pos + 1
 
 
 @njit(cache=True, nogil=True)
@@ -314,7 +340,6 @@ def monitor_update(
     """
     unlocked = math.isnan(st[_S_TARGET])
     if math.isnan(f0_hz):
-        st[_S_INTACT] = 0.0
         st[_S_UNVOICED] += 1.0
         # a jump lasts while the tone does: through a dropout shorter than silence_s (a
         # frame lost in the change itself, or in a reverberant tail), and no longer
@@ -330,6 +355,7 @@ def monitor_update(
     ref = st[_S_HELD] if unlocked else st[_S_TARGET]
     if math.isnan(ref) or (after_silence and unlocked):
         _start_note(cfg, st, hist, f0_hz)
+        st[_S_ATTACKED] = 1.0
         ref = st[_S_HELD]
     elif after_silence:
         _set_register(st, STEADY, NO_JUMP, 1)
@@ -354,7 +380,14 @@ def monitor_update(
     # ratios); a diminuendo sinks far slower than 40 dB/s
     if intact and level_dbfs - _level_ago(st, hist, int(cfg[_C_FADE_SPAN])) < -cfg[_C_FADE_DB]:
         intact = False
-    st[_S_INTACT] = 1.0 if intact else 0.0
+    if related and m == 1 and st[_S_STATE] != JUMPED:
+        _follow_settled(cfg, st, hist, level_dbfs, intact)
+        # how absent the sub-octave's odd harmonics (the sub-twelfth's off the 3s) are:
+        # a note that speaks its octave or twelfth first has none (see _cracked)
+        if st[_S_IN_NOTE] <= cfg[_C_CRACK_WINDOW]:
+            st[_S_SUB2_MIN] = min(st[_S_SUB2_MIN], evidence_db[1, 0] - evidence_db[1, 1])
+            st[_S_SUB3_MIN] = min(st[_S_SUB3_MIN], evidence_db[2, 2] - evidence_db[2, 3])
+            _own_crack(cfg, st, r2, r3)
 
     if not related:
         _push(cfg, st, hist, level_dbfs, even_db, mult3_db)
@@ -363,7 +396,10 @@ def monitor_update(
             _emit(st, STEADY, NO_JUMP, st[_S_TARGET], 1)
             return
         if _pending_confirmed(cfg, st, f0_hz):
+            # a crack seen already on the note's own harmonics keeps its mark, reported once
+            crack_left = cfg[_C_CRACK_SHOW] if _cracked(cfg, st, f0_hz) else st[_S_CRACK_LEFT]
             _start_note(cfg, st, hist, f0_hz)
+            st[_S_CRACK_LEFT] = crack_left
             _steady_update(cfg, st, hist, f0_hz, r2, r3, level_dbfs, even_db, mult3_db, False, 1)
             return
         # a pitch that is no register of the held note, not yet confirmed as a new note:
@@ -372,14 +408,16 @@ def monitor_update(
         if st[_S_STATE] == JUMPED:
             _emit(st, JUMPED, int(st[_S_JUMP]), st[_S_HELD], int(st[_S_MODE]))
             return
-        _emit(st, STEADY, NO_JUMP, st[_S_HELD], 1)
+        _emit(st, STEADY, _mark(st), st[_S_HELD], 1)
         return
     if unlocked and m > 1 and st[_S_STATE] != JUMPED and st[_S_IN_NOTE] < cfg[_C_WARMUP]:
         # a higher mode of a note only just begun: the held reading was a passing one (two
         # notes overlapping in a legato step in a reverberant room can read as their common
         # sub-multiple), and the sounding pitch, once confirmed, is the note
         if _pending_confirmed(cfg, st, f0_hz):
+            attacked = st[_S_ATTACKED]  # the same onset
             _start_note(cfg, st, hist, f0_hz)
+            st[_S_ATTACKED] = attacked
             _steady_update(cfg, st, hist, f0_hz, r2, r3, level_dbfs, even_db, mult3_db, False, 1)
             return
     else:
@@ -415,15 +453,19 @@ def monitor_update(
         else:
             jump_mode = _jump_mode(cfg, st, hist, m, r2, r3, even_db, mult3_db, off_grid_db)
         if jump_mode:
-            # against the level the note was blown at while steady (~70 ms and more
-            # back, before any weakening): a weakening phase loses the held note's
-            # strong odd harmonics and with them some level, which is no blowing change
-            ref_level = st[_S_STEADY_LEVEL]
+            # against the settled blowing level, learnt before the breath began to rise
+            # or the odd harmonics to fade (_follow_settled): a breath rising over
+            # 100-300 ms into the break has raised the level long before the change
+            ref_level = st[_S_SETTLED_LEVEL]
             if not math.isfinite(ref_level):
                 ref_level = _reference(cfg, st, hist[_H_LEVEL])
             # no reference at all (a locked note that started in the upper register):
             # blowing too hard is the usual cause (common practice)
             rise = level_dbfs - ref_level if math.isfinite(ref_level) else np.inf
+            # or the rise the held note itself made on its way into the change, still
+            # going on: measured on the first register's own partials, which a room
+            # colours alike before and after (the new mode's partials it may not)
+            rise = max(rise, st[_S_RISE_PEAK] - ref_level)
             rising = level_dbfs - _level_ago(st, hist, 0) >= cfg[_C_RISING]
             if rise < cfg[_C_RISE] and rising and st[_S_KIND_WAITED] < cfg[_C_KIND_WAIT]:
                 # the level still climbing: an overblown change caught early has not yet
@@ -433,6 +475,7 @@ def monitor_update(
                 _emit(st, int(st[_S_STATE]), NO_JUMP, _held_or_target(st), 1)
                 return
             st[_S_KIND_WAITED] = 0.0
+            st[_S_CRACK_LEFT] = 0.0
             _set_register(st, JUMPED, OVERBLOWN if rise >= cfg[_C_RISE] else VENTED, jump_mode)
             _push(cfg, st, hist, level_dbfs, even_db, mult3_db)
             if unlocked:
@@ -453,9 +496,97 @@ def monitor_update(
                 _start_note(cfg, st, hist, f0_hz)
                 _steady_update(cfg, st, hist, f0_hz, r2, r3, level_dbfs, even_db, mult3_db, False, 1)
                 return
-            _emit(st, int(st[_S_STATE]), NO_JUMP, _held_or_target(st), 1)
+            _emit(st, int(st[_S_STATE]), _mark(st), _held_or_target(st), 1)
             return
     _steady_update(cfg, st, hist, f0_hz, r2, r3, level_dbfs, even_db, mult3_db, False, m)
+
+
+@njit(cache=True, nogil=True)
+def _follow_settled(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray[np.float64], level_db: float,
+                    intact: bool) -> None:  # fmt: skip
+    """Learn the settled blowing level of the held note (dBFS) on a first-register frame.
+
+    Followed directly through the warm-up, then a slow average (``baseline_s``) of the
+    intact frames whose level stays within ``settled_tol_db`` above it. A level above
+    that is the breath rising (into a break, or a crescendo): learning stops, and on its
+    first such frame the reference goes back to its value ``ref_far`` frames (150 ms)
+    earlier, which the start of the rise had not yet moved. Standing above for
+    ``crescendo_s`` makes the level the new settled one (a crescendo, not a rise into a
+    break). Frames with fading harmonics (not intact) teach nothing.
+    """
+    if not math.isfinite(level_db):
+        return
+    ref = st[_S_SETTLED_LEVEL]
+    if not math.isfinite(ref) or st[_S_IN_NOTE] <= cfg[_C_WARMUP]:
+        st[_S_SETTLED_LEVEL] = level_db
+        st[_S_ABOVE_RUN] = 0.0
+        st[_S_RISE_PEAK] = -np.inf
+        return
+    if level_db > ref + cfg[_C_SETTLED_TOL]:
+        if st[_S_ABOVE_RUN] == 0.0:
+            before = hist[_H_SETTLED, int(st[_S_HIST_POS]) % hist.shape[1]]  # the oldest in the ring
+            if before < ref:  # False for nan
+                st[_S_SETTLED_LEVEL] = before
+        st[_S_ABOVE_RUN] += 1.0
+        st[_S_RISE_PEAK] = max(st[_S_RISE_PEAK], level_db)
+        if st[_S_ABOVE_RUN] >= cfg[_C_CRESCENDO]:
+            st[_S_SETTLED_LEVEL] = level_db
+            st[_S_ABOVE_RUN] = 0.0
+            st[_S_RISE_PEAK] = -np.inf
+        return
+    st[_S_ABOVE_RUN] = 0.0
+    st[_S_RISE_PEAK] = -np.inf
+    if intact:
+        st[_S_SETTLED_LEVEL] = ref + cfg[_C_ALPHA] * (level_db - ref)
+
+
+@njit(cache=True, nogil=True)
+def _cracked(cfg: NDArray[np.float64], st: NDArray[np.float64], f0_hz: float) -> bool:
+    """Whether ``f0_hz``, about to replace the held note, shows that note was a cracked attack.
+
+    The held note is young (within ``crack_window_s`` of its start, an onset after
+    silence: not a note slurred into, nor a pitch reading drifting in a room), sounds 2 or 3 times
+    ``f0_hz`` (within 50 cents), and while it sounded the new note's odd harmonics (for
+    2; those off the 3s for 3) were weak, ``_DOMINATED_DB`` or more under the ones it
+    kept, on one frame at least: the pipe spoke its octave or twelfth, not a note whose
+    lower fundamental the pitch reading missed.
+    """
+    held = st[_S_HELD]
+    if not math.isnan(st[_S_TARGET]) or math.isnan(held) or st[_S_IN_NOTE] > cfg[_C_CRACK_WINDOW]:
+        return False
+    if st[_S_ATTACKED] == 0.0 or st[_S_CRACK_LEFT] > 0.0:
+        return False  # not begun at an onset, or reported already
+    ratio = held / f0_hz
+    lowest = np.inf
+    if cents_apart(ratio, 2.0) <= 50.0:
+        lowest = st[_S_SUB2_MIN]
+    elif cents_apart(ratio, 3.0) <= 50.0:
+        lowest = st[_S_SUB3_MIN]
+    cracked: bool = lowest <= _DOMINATED_DB
+    return cracked
+
+
+@njit(cache=True, nogil=True)
+def _own_crack(cfg: NDArray[np.float64], st: NDArray[np.float64], r2: float, r3: float) -> None:
+    """Mark a cracked attack read on the held note's own harmonics (young note, mode 1 pitch).
+
+    The pitch reading named the fundamental from the start, but the newest half window
+    first held mostly its even harmonics (or its multiples of 3): its odd ones (those off
+    the 3s) ``_DOMINATED_DB`` or more under the kept ones; now they rose ``_CRACK_RISE_DB``
+    above that and outweigh the kept ones: the fundamental has taken over. Reported once
+    per note. (The attack of a crack of 40-60 ms is over before the first voiced frame's
+    newest half window is free of the fundamental: the ratios then read -3 to -10 dB.)
+    """
+    crack = False
+    for ratio, slot in ((r2, _S_OWN2_MIN), (r3, _S_OWN3_MIN)):
+        lowest = st[slot]
+        if lowest <= _DOMINATED_DB and ratio >= max(lowest + _CRACK_RISE_DB, 0.0):
+            crack = True
+        st[slot] = min(lowest, ratio)
+    if crack and st[_S_ATTACKED] != 0.0:
+        st[_S_CRACK_LEFT] = cfg[_C_CRACK_SHOW]
+        st[_S_OWN2_MIN] = -np.inf  # once: nothing rises above -inf + collapse_db
+        st[_S_OWN3_MIN] = -np.inf
 
 
 @njit(cache=True, nogil=True)
@@ -543,7 +674,7 @@ def _steady_update(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDAr
     if m_related > 1:
         # a foreign register during warm-up: no baseline to learn from it
         st[_S_STATE] = STEADY
-        _emit(st, STEADY, NO_JUMP, _held_or_target(st), 1)
+        _emit(st, STEADY, _mark(st), _held_or_target(st), 1)
         return
     if math.isnan(st[_S_TARGET]):
         st[_S_HELD] = f0_hz
@@ -554,7 +685,9 @@ def _steady_update(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDAr
         st[_S_STATE] = WEAKENING
     else:
         st[_S_STATE] = STEADY
-        if not math.isfinite(st[_S_BASE_R2]) or not warm:
+        if st[_S_ABOVE_RUN] > 0.0:
+            pass  # the breath rising (_follow_settled): the baselines keep the settled note's
+        elif not math.isfinite(st[_S_BASE_R2]) or not warm:
             # the attack is no reference (a real flute's upper harmonics grow for tens
             # of ms): follow it directly until the note has settled
             st[_S_BASE_R2] = r2
@@ -566,7 +699,9 @@ def _steady_update(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDAr
             a = cfg[_C_ALPHA]
             st[_S_BASE_R2] += a * (r2 - st[_S_BASE_R2])
             st[_S_BASE_R3] += a * (r3 - st[_S_BASE_R3])
-    _emit(st, int(st[_S_STATE]), NO_JUMP, _held_or_target(st), 1)
+    jump = _mark(st)
+    st[_S_CRACK_LEFT] = max(st[_S_CRACK_LEFT] - 1.0, 0.0)
+    _emit(st, int(st[_S_STATE]), jump, _held_or_target(st), 1)
 
 
 REGISTER_DEFAULTS = {
@@ -575,7 +710,7 @@ REGISTER_DEFAULTS = {
     "collapsed_ratio_db": -10.0,
     "even_rise_db": 3.0,
     "weaken_db": 6.0,
-    "rise_db": 3.0,
+    "rise_db": 2.5,
     "silence_s": 0.05,
     "confirm_s": 0.015,
     "warmup_s": 0.1,
@@ -585,6 +720,10 @@ REGISTER_DEFAULTS = {
     "grid_spacing_hz": 60.0,
     "kind_wait_s": 0.02,
     "rising_db_per_s": 100.0,
+    "settled_tol_db": 1.0,
+    "crescendo_s": 0.4,
+    "crack_window_s": 0.15,
+    "crack_show_s": 0.25,
 }
 """Default thresholds of :class:`RegisterMonitor` (dB, seconds)."""
 
@@ -621,6 +760,10 @@ def monitor_config(hop_s: float, **options: float) -> NDArray[np.float64]:
     cfg[_C_GRID_SPACING] = o["grid_spacing_hz"]
     cfg[_C_KIND_WAIT] = round(o["kind_wait_s"] / hop_s)
     cfg[_C_RISING] = o["rising_db_per_s"] * hop_s
+    cfg[_C_SETTLED_TOL] = o["settled_tol_db"]
+    cfg[_C_CRESCENDO] = max(1, round(o["crescendo_s"] / hop_s))
+    cfg[_C_CRACK_WINDOW] = round(o["crack_window_s"] / hop_s)
+    cfg[_C_CRACK_SHOW] = max(1, round(o["crack_show_s"] / hop_s))
     cfg[_C_FADE_SPAN] = max(1, round(0.05 / hop_s))  # 50 ms, within the history ring
     cfg[_C_FADE_DB] = 2.0  # over 50 ms: 40 dB/s
     # reference span for rises: frames 150..70 ms before now
@@ -633,7 +776,7 @@ def monitor_arrays(cfg: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArr
     """Fresh (state, history) arrays for ``cfg``, unlocked and reset."""
     st = np.zeros(N_STATE)
     st[_S_TARGET] = np.nan
-    hist = np.empty((4, int(cfg[_C_REF_FAR]) + 1))
+    hist = np.empty((_N_HIST, int(cfg[_C_REF_FAR]) + 1))
     monitor_reset(cfg, st, hist)
     return st, hist
 

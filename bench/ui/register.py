@@ -1,4 +1,4 @@
-"""The register banner: settled, weakening (early warning), overblown or vented."""
+"""The register banner: settled, weakening (early warning), overblown, vented, or a cracked attack."""
 
 from __future__ import annotations
 
@@ -41,17 +41,25 @@ _LOOKS = {
         "VENTED",
         "jumped an octave up through a leak or half-open hole \u2014 odd harmonics gone",
     ),
+    "cracked": _Look(
+        "cracked",
+        "\u2575 ",
+        "CRACKED ATTACK",
+        "the note spoke an upper register first \u2014 the fundamental holds now",
+    ),
 }
 
 
 def register_look(register: str | None, jump: str | None) -> str:
     """Name of the banner look for a frame's register state and jump kind.
 
-    >>> register_look("jumped", "vented"), register_look("weakening", None)
-    ('vented', 'weakening')
+    >>> register_look("jumped", "vented"), register_look("weakening", None), register_look("steady", "cracked")
+    ('vented', 'weakening', 'cracked')
     """
     if register == "jumped":
         return "vented" if jump == "vented" else "overblown"
+    if register == "steady" and jump == "cracked":
+        return "cracked"
     return register if register in ("steady", "weakening") else "silent"
 
 
@@ -59,7 +67,8 @@ class RegisterBanner(LineView):
     """Full-width banner of the register monitor.
 
     Each state has its own words, border pattern and colour: a plain line while settled,
-    a dotted border when weakening, rising triangles when overblown, diamonds when vented.
+    a dotted border when weakening, rising triangles when overblown, diamonds when vented,
+    short ticks for a moment after a cracked attack.
     """
 
     DEFAULT_CSS = "RegisterBanner { height: 3; }"
@@ -67,11 +76,11 @@ class RegisterBanner(LineView):
     register: reactive[str | None] = reactive(None)
     """``Frame.register``: "steady", "weakening", "jumped" or None."""
     jump: reactive[str | None] = reactive(None)
-    """``Frame.jump``: "overblown", "vented" or None."""
+    """``Frame.jump``: "overblown", "vented", "cracked" or None."""
 
     def _refresh_look(self) -> None:
         look = register_look(self.register, self.jump)
-        self.show_one_class(f"-{look}", ("-silent", "-steady", "-weakening", "-overblown", "-vented"))
+        self.show_one_class(f"-{look}", ("-silent", "-steady", "-weakening", "-overblown", "-vented", "-cracked"))
 
     def watch_register(self) -> None:
         self._refresh_look()
@@ -81,7 +90,7 @@ class RegisterBanner(LineView):
 
     @property
     def look(self) -> str:
-        """Name of the look in force ("silent", "steady", "weakening", "overblown", "vented")."""
+        """Name of the look in force ("silent", "steady", "weakening", "overblown", "vented", "cracked")."""
         return register_look(self.register, self.jump)
 
     def render(self) -> Text:
