@@ -20,9 +20,37 @@ window), not on a smoothed pitch track:
   or up to ``kind_wait_s`` later while the level still climbs (see kind, below). A jump
   holds through a lost frame and through a stray reading not yet confirmed as a new note;
   another upper mode after it is a new note.
-* kind: **overblown** when the short-window level rose at least ``rise_db`` against
-  ~100 ms before the change (blowing harder: common practice), else **vented** (thumb hole
-  cracked open, level kept). Level alone is not trusted to find the jump.
+* kind, judged on the frame that reports the jump (at most ``kind_wait_s``, 20 ms, after
+  the jump is found): **overblown** when the short-window level stands at least ``rise_db``
+  (2.5 dB) above the *settled blowing level* of the held note, or stood so on its way into
+  the change, else **vented**. Overblowing raises the blowing pressure: the level rises and
+  the odd harmonics collapse before the upper mode takes over (Fletcher & Rossing 1998, the
+  regime change); venting (thumb hole cracked open) keeps the level, within about -3..+2 dB
+  (common practice). The settled level (dBFS) is learnt on the held note's intact
+  first-register frames: followed through the warm-up, then a slow average (``baseline_s``)
+  of the frames within ``settled_tol_db`` (1 dB) above it. It stops learning when the
+  level climbs past that (the breath rising, 0-300 ms before a break, by 3-14 dB), going
+  back to its value of 150 ms before, which the start of the rise had not moved; nor does
+  it learn while the odd harmonics fade. The baselines of ``r2`` and ``r3`` stop learning
+  with it. A level held above it for ``crescendo_s`` (0.4 s) is a crescendo, the new
+  settled level. (Until 2026-12 the kind was judged against the level ~70-150 ms before
+  the change, which a breath rising for 80-200 ms had already raised: overblown changes
+  were told vented.) In a room the level of the upper mode's partials differs from the
+  first mode's by how the room's response falls on them (several dB), so a vent near
+  +2 dB can read overblown there; the rise on the way in is measured on the first mode's
+  own partials, which the room colours alike before and during it. Level alone is not
+  trusted to find the jump.
+* **cracked attack**: a note whose attack spoke its octave or twelfth (mode 2 or 3) for a
+  few tens of ms before its fundamental (mode 1) took over. Seen in a note begun after
+  silence, within ``crack_window_s`` (0.15 s) of its start, either as the pitch falling
+  from the held note to its half or third (while the held note sounded, that lower note's
+  odd harmonics, or those off the 3s, were ``_DOMINATED_DB`` under the kept ones), or,
+  when the pitch named the fundamental from the start, as its own odd (off-3) harmonics
+  rising ``_CRACK_RISE_DB`` (10 dB) from under ``_DOMINATED_DB`` (-3 dB) to outweigh the
+  kept ones. The held note becomes the fundamental at once; the frames are "steady" in
+  the first register, marked with the jump code CRACKED ("cracked") for ``crack_show_s``
+  (0.25 s) from the report: no break of the breath, the note not broken. Reported ~30-50 ms
+  after the fundamental takes over (by ready_s). Not judged while locked.
 * **weakening** while ``r2`` sits ``weaken_db`` or more under its baseline without a jump
   (the odd harmonics fading toward collapse).
 * a **new note** (held note replaced) on a voiced pitch that is no mode 1..3 of the held
@@ -75,9 +103,9 @@ _TINY = 1e-30
 # outlasting the fundamental) read +1.2 and -0.5 dB, and was taken for a vent at +3 dB.
 _DOMINATED_DB = -3.0
 # Rise of a young note's odd (off-3) harmonics, from a ratio under _DOMINATED_DB, that shows
-# its fundamental took over from a cracked attack, dB. Constructed test signals (tests/dsp/
-# test_register_field.py, seeds 1000-1099): cracks of 40-60 ms rose 15-60 dB; plain attacks
-# never read under _DOMINATED_DB.
+# its fundamental took over from a cracked attack, dB. On the constructed signals of
+# tests/dsp/test_register_field.py (tuning seeds 1000-1069): 40 of 40 cracks of 40-60 ms
+# found, none on 30 plain attacks (10 ms - 50 ms rise), dry and in rooms.
 _CRACK_RISE_DB = 10.0
 
 
@@ -806,8 +834,9 @@ class RegisterMonitor:
     weaken_db : float > 0, dB
         Drop of the odd/even ratio under its baseline reported as weakening.
     rise_db : float > 0, dB
-        Level rise at the change that makes a jump "overblown" (common practice: blowing
-        harder raises the level several dB; the synthetic voice uses 8 dB).
+        Level above the settled blowing level, at the change or on the way into it, that
+        makes a jump "overblown" (common practice: blowing harder raises the level several
+        dB, a vent keeps it within about -3..+2 dB; the synthetic voice steps 8 dB).
     silence_s : float > 0, seconds
         Unvoiced time that ends the held note.
     confirm_s : float >= 0, seconds
@@ -833,6 +862,16 @@ class RegisterMonitor:
         change has not reached its new level.
     rising_db_per_s : float > 0, dB/s
         Climb of the short-window level that counts as still rising.
+    settled_tol_db : float > 0, dB
+        Level above the settled blowing level at which the breath counts as rising (the
+        settled level stops learning; see the module).
+    crescendo_s : float > 0, seconds
+        Time the level may stand above the settled level before it becomes the new settled
+        level (a crescendo rather than a rise into a break, which takes up to 0.3 s).
+    crack_window_s : float >= 0, seconds
+        Age of a note within which a fall to its fundamental is a cracked attack.
+    crack_show_s : float > 0, seconds
+        Time the "cracked" mark stays on the steady frames after a cracked attack.
 
     Examples
     --------
