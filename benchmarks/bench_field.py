@@ -47,24 +47,23 @@ import os
 for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMEXPR_NUM_THREADS"):
     os.environ.setdefault(_var, "1")
 
-import argparse  # noqa: E402
-import json  # noqa: E402
-import sys  # noqa: E402
-import tempfile  # noqa: E402
-import time  # noqa: E402
-import warnings  # noqa: E402
-from dataclasses import dataclass, field  # noqa: E402
-from pathlib import Path  # noqa: E402
-from typing import Any  # noqa: E402
+import argparse
+import json
+import sys
+import tempfile
+import time
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
-import numpy as np  # noqa: E402
-
-from corpus import HELDOUT_SEEDS, SCENE_TYPES, TUNING_SEEDS, SceneTruth, field_scene  # noqa: E402
-from methods import Track, runners  # noqa: E402
-from sampled import consensus_frames, pyo_flute, render_sampled, sampled_unavailable  # noqa: E402
+import numpy as np
+from corpus import HELDOUT_SEEDS, SCENE_TYPES, TUNING_SEEDS, SceneTruth, field_scene
+from methods import Track, runners
+from sampled import consensus_frames, pyo_flute, render_sampled, sampled_unavailable
 
 GUARD_S = 0.03
 MATCH_BEFORE_S = 0.02
@@ -84,7 +83,7 @@ TARGET_TEXT = (
 )
 
 try:
-    from bench.engine import EVENT_GAP_S  # noqa: F811  one value, the engine's
+    from bench.engine import EVENT_GAP_S
 except ImportError:  # pragma: no cover - the benchmark runs inside the project
     pass
 
@@ -421,6 +420,21 @@ def analyze_speed(scene_types: list[str], seeds: list[int], max_audio_s: float) 
     return {"audio_s": result.duration_s, "cpu_s": cpu, "wall_s": wall, "x_realtime": x_rt}
 
 
+def _plain(x: Any) -> Any:
+    """JSON-able copy: numpy numbers to Python ones, nan and inf to None (strict JSON)."""
+    if isinstance(x, dict):
+        return {str(k): _plain(v) for k, v in x.items()}
+    if isinstance(x, (list, tuple)):
+        return [_plain(v) for v in x]
+    if isinstance(x, (bool, np.bool_)):
+        return bool(x)
+    if isinstance(x, (int, np.integer)):
+        return int(x)
+    if isinstance(x, (float, np.floating)):
+        return float(x) if np.isfinite(x) else None
+    return x
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--seeds", choices=["tuning", "heldout"], required=True,
@@ -433,7 +447,7 @@ def main() -> int:
     ap.add_argument("--json", type=Path, help="write the figures to this JSON file")
     args = ap.parse_args()
     if hasattr(os, "sched_setaffinity"):
-        os.sched_setaffinity(0, {sorted(os.sched_getaffinity(0))[0]})
+        os.sched_setaffinity(0, {min(os.sched_getaffinity(0))})
     seeds = list(TUNING_SEEDS if args.seeds == "tuning" else HELDOUT_SEEDS)
     if args.quick:
         seeds = seeds[:QUICK_SEEDS]
@@ -460,7 +474,7 @@ def main() -> int:
         report["speed"] = analyze_speed(scene_types, seeds, 30.0 if args.quick else 120.0)
     print(f"\ntotal {time.perf_counter() - t0:.0f} s")
     if args.json:
-        args.json.write_text(json.dumps(report, indent=1, default=float, allow_nan=True) + "\n")
+        args.json.write_text(json.dumps(_plain(report), indent=1, allow_nan=False) + "\n")
         print(f"figures written to {args.json}")
     return 0
 

@@ -62,7 +62,16 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
-from dsp.synth import NoiseEvent, NoteEvent, RegisterEvent, Rendering, Score, Truth, plan, render  # noqa: E402
+from dsp.synth import (
+    NoiseEvent,
+    NoteEvent,
+    RegisterEvent,
+    Rendering,
+    Score,
+    Truth,
+    plan,
+    render,
+)
 
 CATEGORIES = (
     "steady-clean", "steady", "vibrato", "low", "high", "noisy", "phrases", "jumps", "vents", "silence-hum",
@@ -132,7 +141,7 @@ def _phrase(rng: np.random.Generator, n_notes: int) -> list[NoteEvent]:
         jump = {}
         if i == n_notes // 2:
             dur = 0.9
-            jump = dict(jump_at_s=0.45, jump_kind="overblown")
+            jump = {"jump_at_s": 0.45, "jump_kind": "overblown"}
         out.append(NoteEvent(f, dur, level_dbfs=float(rng.uniform(-26, -14)),
                              vibrato_cents=float(rng.choice([0.0, 0.0, 15.0])), gap_s=gap, **jump))  # type: ignore[arg-type]
     out[-1] = NoteEvent(**{**_asdict(out[-1]), "gap_s": 0.2})

@@ -134,7 +134,7 @@ def render_sampled(workdir: Path, sample_rate: int = 48000) -> tuple[np.ndarray,
     mid.write_bytes(midi_bytes(notes))
     cmd = ["fluidsynth", "-ni", "-q", "-R", "0", "-C", "0", "-g", "0.5", "-F", str(wav), "-r", str(sample_rate),
            str(soundfont()), str(mid)]
-    res = subprocess.run(cmd, capture_output=True, text=True, timeout=300)
+    res = subprocess.run(cmd, capture_output=True, text=True, timeout=300, check=False)
     if res.returncode != 0 or not wav.is_file():
         raise RuntimeError(f"fluidsynth failed ({res.returncode}): {res.stderr.strip()[-500:]}")
     x, sr = sf.read(wav, dtype="float32", always_2d=True)
@@ -148,7 +148,7 @@ def pyo_flute() -> tuple[np.ndarray, int] | None:
     spec = importlib.util.find_spec("pyo")
     if spec is None or not spec.submodule_search_locations:
         return None
-    path = Path(list(spec.submodule_search_locations)[0]) / "examples" / "snds" / "flute.aif"
+    path = Path(next(iter(spec.submodule_search_locations))) / "examples" / "snds" / "flute.aif"
     if not path.is_file():
         return None
     x, sr = sf.read(path, dtype="float32", always_2d=True)
