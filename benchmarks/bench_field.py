@@ -260,6 +260,15 @@ def print_scenes(res: dict, scene_types: list[str]) -> dict:
                   f"{_fmt(s['gross_pct'], '7.2f')}{_mark(s['gross_pct'], TARGETS['gross_pct'])}"
                   f"{_fmt(s['unvoiced_pct'], '8.2f')}{int(s['out_frames']):>7}"
                   f"{_fmt(s['v_out_pct'], '6.2f')}{_mark(s['v_out_pct'], vt)}")
+    names = list(res["pools"])
+    print("\n== side by side: p95 |error| c / gross+octave % / voiced outside notes %")
+    print(f"{'scene type':<12}" + "".join(f"{n:>20}" for n in names))
+    for st in scene_types:
+        cells = []
+        for n in names:
+            s = out["pitch"][n][st]
+            cells.append(f"{_fmt(s['p95_c'], '6.2f')}/{_fmt(s['gross_pct'], '5.2f')}/{_fmt(s['v_out_pct'], '5.2f')}")
+        print(f"{st:<12}" + "".join(f"{c:>20}" for c in cells))
     if "ours" in res["pools"]:
         print("\n== ours: register events (overblown, vented, cracked) against the truth")
         print(f"{'scene type':<12}{'events':>7}{'detect':>7}{'match':>6}{'recall':>8}{'prec':>8}{'kind%':>8}"
