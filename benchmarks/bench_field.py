@@ -480,7 +480,7 @@ def main() -> int:
     if "outside" not in args.skip:
         report["outside"] = outside_material(args.quick)
     if "speed" not in args.skip:
-        report["speed"] = analyze_speed(scene_types, seeds, 30.0 if args.quick else 120.0)
+        report["speed"] = analyze_speed(scene_types, seeds, 60.0 if args.quick else 240.0)
     print(f"\ntotal {time.perf_counter() - t0:.0f} s")
     if args.json:
         args.json.write_text(json.dumps(_plain(report), indent=1, allow_nan=False) + "\n")
