@@ -24,15 +24,15 @@ room-jumps    overblown and vented octaves and twelfths in a room: T60 0.5-0.7 s
 
 2. The field scenes (:func:`field_scene`, used by ``bench_field.py``): an honest measuring
 stick with every parameter drawn at random from wide ranges, one scene per (type, seed). Each
-scene is 6-10 s at 44.1 or 48 kHz. Fingered notes lie in recorder range, sounding about
+scene is 4-10 s at 44.1 or 48 kHz. Fingered notes lie in recorder range, sounding about
 260-2400 Hz (some scenes go down to 175 Hz, a bass recorder's compass). Unless a type says
 otherwise, every scene carries breath noise (-40..-25 dB re the tone) and a white noise floor
 with an SNR drawn from 10-60 dB against the tone (``snr_db`` of ``dsp.synth.render``).
 
 =============  ==================================================================================
 rise-break     the breath rises into an overblow: level +3..+14 dB over 0-300 ms while the
-               partials the new mode lacks fade by 10-25 dB, then the octave (2/3 of the changes)
-               or the twelfth; a further step of 0..+3 dB at the change
+               partials the new mode lacks fade by 10-25 dB (no fade when the rise takes 0 ms),
+               then the octave (2/3 of the changes) or the twelfth; a further 0..+3 dB at the change
 vents          vented octaves (and a few twelfths) with a level change of -3..+2 dB
 cracked        cracked attacks: the note speaks its octave or twelfth for its first 40-60 ms,
                then falls to its fundamental (register event "cracked")
