@@ -21,7 +21,7 @@ window), not on a smoothed pitch track:
   holds through a lost frame and through a stray reading not yet confirmed as a new note;
   another upper mode after it is a new note.
 * kind, judged on the frame that reports the jump (at most ``kind_wait_s``, 20 ms, after
-  the jump is found): **overblown** when the short-window level stands at least ``rise_db``
+  the jump is found, while the level still climbs ``rising_db_per_s``, 40 dB/s): **overblown** when the short-window level stands at least ``rise_db``
   (2.5 dB) above the *settled blowing level* of the held note, or stood so on its way into
   the change, else **vented**. Overblowing raises the blowing pressure: the level rises and
   the odd harmonics collapse before the upper mode takes over (Fletcher & Rossing 1998, the
@@ -38,8 +38,11 @@ window), not on a smoothed pitch track:
   were told vented.) In a room the level of the upper mode's partials differs from the
   first mode's by how the room's response falls on them (several dB), so a vent near
   +2 dB can read overblown there; the rise on the way in is measured on the first mode's
-  own partials, which the room colours alike before and during it. Level alone is not
-  trusted to find the jump.
+  own partials, which the room colours alike before and during it. And overblown when the
+  energy on the partials the new mode keeps (the evens, the multiples of 3) stood at least
+  ``rise_db`` above its settled value ``_KEPT_LAG`` frames (45 ms) before the report: the
+  breath raises all partials while the fading fundamental can hold the level down. Level
+  alone is not trusted to find the jump.
 * **cracked attack**: a note whose attack spoke its octave or twelfth (mode 2 or 3) for a
   few tens of ms before its fundamental (mode 1) took over. Seen in a note begun after
   silence, within ``crack_window_s`` (0.15 s) of its start, either as the pitch falling
@@ -107,6 +110,12 @@ _DOMINATED_DB = -3.0
 # tests/dsp/test_register_field.py (tuning seeds 1000-1069): 40 of 40 cracks of 40-60 ms
 # found, none on 30 plain attacks (10 ms - 50 ms rise), dry and in rooms.
 _CRACK_RISE_DB = 10.0
+# Frames (5 ms each) before a jump's report at which the kept partials' rise is read: a
+# vent's new mode, crossfading for ~30 ms before it is found (and in the 43 ms evidence
+# window before that), has not yet added to them. Tuning seeds only: 6 and 12 frames were
+# tried on the field scenes (benchmarks/corpus.py rise-break, vents, seeds 1000-1029) and on
+# tests/dsp/test_register_field.py; 9 told every field change right.
+_KEPT_LAG = 9
 
 
 @dataclass(frozen=True, slots=True)
@@ -180,7 +189,10 @@ _S_KIND_WAITED = 20  # frames a jump's report waited for a still-rising level
 # its own two ratios (dB): how absent a lower fundamental, or its own odd (off-3) harmonics, were
 _S_ABOVE_RUN, _S_CRACK_LEFT, _S_SUB2_MIN, _S_SUB3_MIN, _S_OWN2_MIN, _S_OWN3_MIN = 21, 22, 23, 24, 25, 26
 _S_ATTACKED = 27  # 1: the held note began at an onset after silence (or took over from one in warm-up)
-N_STATE = 28
+# settled energy on the held note's even harmonics and on its multiples of 3 (dB), learnt with
+# the settled level: the partials an octave (a twelfth) keeps
+_S_SETTLED_EVEN, _S_SETTLED_MULT3 = 28, 29
+N_STATE = 30
 # history rings, one row each: short-window level, energy on the evens, on the 3s, settled level
 _H_LEVEL, _H_EVEN, _H_MULT3, _H_SETTLED = 0, 1, 2, 3
 _N_HIST = 4
@@ -213,6 +225,8 @@ def _clear_note(st: NDArray[np.float64], hist: NDArray[np.float64]) -> None:
     st[_S_HIST_POS] = 0.0
     st[_S_RISE_PEAK] = -np.inf
     st[_S_SETTLED_LEVEL] = np.nan
+    st[_S_SETTLED_EVEN] = np.nan
+    st[_S_SETTLED_MULT3] = np.nan
     st[_S_ABOVE_RUN] = 0.0
     st[_S_KIND_WAITED] = 0.0
     st[_S_CRACK_LEFT] = 0.0
@@ -409,7 +423,7 @@ def monitor_update(
     if intact and level_dbfs - _level_ago(st, hist, int(cfg[_C_FADE_SPAN])) < -cfg[_C_FADE_DB]:
         intact = False
     if related and m == 1 and st[_S_STATE] != JUMPED:
-        _follow_settled(cfg, st, hist, level_dbfs, intact)
+        _follow_settled(cfg, st, hist, level_dbfs, even_db, mult3_db, intact)
         # how absent the sub-octave's odd harmonics (the sub-twelfth's off the 3s) are:
         # a note that speaks its octave or twelfth first has none (see _cracked)
         if st[_S_IN_NOTE] <= cfg[_C_CRACK_WINDOW]:
@@ -494,6 +508,10 @@ def monitor_update(
             # going on: measured on the first register's own partials, which a room
             # colours alike before and after (the new mode's partials it may not)
             rise = max(rise, st[_S_RISE_PEAK] - ref_level)
+            # or the partials the new mode keeps rose with the breath before the change,
+            # while the fading fundamental held the level down: read _KEPT_LAG frames back,
+            # before the new mode itself adds to them
+            rise = max(rise, _kept_rise(st, hist, jump_mode))
             rising = level_dbfs - _level_ago(st, hist, 0) >= cfg[_C_RISING]
             if rise < cfg[_C_RISE] and rising and st[_S_KIND_WAITED] < cfg[_C_KIND_WAIT]:
                 # the level still climbing: an overblown change caught early has not yet
@@ -531,7 +549,7 @@ def monitor_update(
 
 @njit(cache=True, nogil=True)
 def _follow_settled(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray[np.float64], level_db: float,
-                    intact: bool) -> None:  # fmt: skip
+                    even_db: float, mult3_db: float, intact: bool) -> None:  # fmt: skip
     """Learn the settled blowing level of the held note (dBFS) on a first-register frame.
 
     Followed directly through the warm-up, then a slow average (``baseline_s``) of the
@@ -540,13 +558,17 @@ def _follow_settled(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDA
     first such frame the reference goes back to its value ``ref_far`` frames (150 ms)
     earlier, which the start of the rise had not yet moved. Standing above for
     ``crescendo_s`` makes the level the new settled one (a crescendo, not a rise into a
-    break). Frames with fading harmonics (not intact) teach nothing.
+    break). Frames with fading harmonics (not intact) teach nothing. The energies on the
+    even harmonics and on the multiples of 3 are learnt on the same frames, each only while
+    it too stays within ``settled_tol_db`` above its settled value.
     """
     if not math.isfinite(level_db):
         return
     ref = st[_S_SETTLED_LEVEL]
     if not math.isfinite(ref) or st[_S_IN_NOTE] <= cfg[_C_WARMUP]:
         st[_S_SETTLED_LEVEL] = level_db
+        st[_S_SETTLED_EVEN] = even_db
+        st[_S_SETTLED_MULT3] = mult3_db
         st[_S_ABOVE_RUN] = 0.0
         st[_S_RISE_PEAK] = -np.inf
         return
@@ -565,7 +587,26 @@ def _follow_settled(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDA
     st[_S_ABOVE_RUN] = 0.0
     st[_S_RISE_PEAK] = -np.inf
     if intact:
-        st[_S_SETTLED_LEVEL] = ref + cfg[_C_ALPHA] * (level_db - ref)
+        a = cfg[_C_ALPHA]
+        st[_S_SETTLED_LEVEL] = ref + a * (level_db - ref)
+        for value, slot in ((even_db, _S_SETTLED_EVEN), (mult3_db, _S_SETTLED_MULT3)):
+            kept = st[slot]
+            if not math.isfinite(kept):
+                st[slot] = value
+            elif math.isfinite(value) and value <= kept + cfg[_C_SETTLED_TOL]:
+                st[slot] = kept + a * (value - kept)
+
+
+@njit(cache=True, nogil=True)
+def _kept_rise(st: NDArray[np.float64], hist: NDArray[np.float64], jump_mode: int) -> float:
+    """Rise of the partials mode ``jump_mode`` keeps, ``_KEPT_LAG`` frames back, over their settled energy (dB)."""
+    pos = int(st[_S_HIST_POS])
+    if pos <= _KEPT_LAG:
+        return -np.inf
+    row, slot = (_H_EVEN, _S_SETTLED_EVEN) if jump_mode == 2 else (_H_MULT3, _S_SETTLED_MULT3)
+    then = hist[row, (pos - 1 - _KEPT_LAG) % hist.shape[1]]
+    rise: float = then - st[slot]
+    return rise if math.isfinite(rise) else -np.inf
 
 
 @njit(cache=True, nogil=True)
@@ -747,7 +788,7 @@ REGISTER_DEFAULTS = {
     "new_note_db": 10.0,
     "grid_spacing_hz": 60.0,
     "kind_wait_s": 0.02,
-    "rising_db_per_s": 100.0,
+    "rising_db_per_s": 40.0,
     "settled_tol_db": 1.0,
     "crescendo_s": 0.4,
     "crack_window_s": 0.15,

@@ -220,7 +220,12 @@ def test_a_slurred_step_to_another_note_is_no_register_jump(ratio):
         # the same audio with the between-harmonics check switched off: the test can fail
         unguarded += len(_onsets(StreamingAnalyser(SR, new_note_db=-1e6).process(r.audio)))
     assert onsets == 0
-    assert unguarded > 0  # measured: 15 false jumps on these 24 slurred fifths, 6 on the fourths
+    # measured before the settled-level reference (2026-12): 15 false jumps on these 24 slurred
+    # fifths, 6 on the fourths; since then the fourths give none even unguarded (the baselines
+    # stop learning while the level climbs into the second note), so only the fifths show the
+    # test can fail
+    if ratio == 3 / 2:
+        assert unguarded > 0
 
 
 def test_monitor_alone_tells_a_slurred_fifth_from_a_twelfth():

@@ -46,9 +46,10 @@ def _profile(mode: int, k: np.ndarray) -> np.ndarray:
 def _tone(f0_hz, duration_s, level_db, rng, *, mode=1, new_mode=None, change_s=None, fade_from_s=None,
           fade_db=0.0, attack_s=0.02, release_s=0.02):  # fmt: skip
     """One note of a fingered ``f0_hz``, sounding ``mode`` and, from ``change_s`` on (centre of a
-    30 ms raised-cosine crossfade), ``new_mode``. ``level_db(t)``: RMS of the tone, dBFS, at
-    local times t (s). The partials the new mode lacks fade linearly in dB by ``fade_db``
-    from ``fade_from_s`` to the start of the change (the odd harmonics collapsing)."""
+    30 ms raised-cosine crossfade), ``new_mode``. ``level_db(t)``: the blowing level, RMS of
+    the tone in dBFS at local times t (s). The partials the new mode lacks fade linearly in dB
+    by ``fade_db`` from ``fade_from_s`` to the start of the change (the odd harmonics
+    collapsing), taking their energy with them: the others keep theirs (as dsp/synth.py does)."""
     n = round(duration_s * SR)
     t = np.arange(n) / SR
     k = np.arange(1, min(24, int(0.45 * SR / (1.02 * f0_hz))) + 1)
@@ -63,8 +64,10 @@ def _tone(f0_hz, duration_s, level_db, rng, *, mode=1, new_mode=None, change_s=N
             fade = np.clip((t - fade_from_s) / (start - fade_from_s), 0.0, 1.0) * fade_db
     lacking = new == 0.0
     gain = np.where(lacking[None, :], 10.0 ** (fade[:, None] / 20.0), 1.0)
-    amps = (1.0 - xf)[:, None] * old[None, :] * gain + xf[:, None] * new[None, :]
+    amps = (1.0 - xf)[:, None] * old[None, :] + xf[:, None] * new[None, :]
+    # level_db is the blowing level: the tone's RMS before the fading partials lose theirs
     amps *= (10.0 ** (level_db(t) / 20.0) / np.sqrt(0.5 * np.sum(amps**2, axis=1)))[:, None]
+    amps *= (1.0 - xf)[:, None] * gain + xf[:, None]
     phase = 2.0 * np.pi * f0_hz * t
     x = np.sum(amps * np.sin(phase[:, None] * k[None, :] + rng.uniform(0, 2 * np.pi, k.size)[None, :]), axis=1)
     env = np.clip(np.minimum(t / attack_s, (duration_s - t) / release_s), 0.0, 1.0)
@@ -185,7 +188,7 @@ def test_vents_in_a_room_are_mostly_right(break_results):
     # below the issue's 0.95 on purpose, and says what this code does, not the target.
     room = [r for r in break_results if r[4] == "vented" and r[3]]
     assert len(room) >= 5
-    assert sum(r[1] for r in room) / len(room) >= 0.6
+    assert sum(r[1] for r in room) / len(room) >= 0.6  # measured: 10 of 16 right within 60 ms
 
 
 def test_no_stray_reports_around_breaks(break_results):
