@@ -47,7 +47,7 @@ window), not on a smoothed pitch track:
   few tens of ms before its fundamental (mode 1) took over. Seen in a note begun after
   silence, within ``crack_window_s`` (0.15 s) of its start, either as the pitch falling
   from the held note to its half or third (while the held note sounded, that lower note's
-  odd harmonics, or those off the 3s, were ``_DOMINATED_DB`` under the kept ones), or,
+  odd harmonics, or those off the 3s, did not outweigh the kept ones), or,
   when the pitch named the fundamental from the start, as its own odd (off-3) harmonics
   rising ``_CRACK_RISE_DB`` (10 dB) from under ``_DOMINATED_DB`` (-3 dB) to outweigh the
   kept ones. The held note becomes the fundamental at once; the frames are "steady" in
@@ -616,9 +616,10 @@ def _cracked(cfg: NDArray[np.float64], st: NDArray[np.float64], f0_hz: float) ->
     The held note is young (within ``crack_window_s`` of its start, an onset after
     silence: not a note slurred into, nor a pitch reading drifting in a room), sounds 2 or 3 times
     ``f0_hz`` (within 50 cents), and while it sounded the new note's odd harmonics (for
-    2; those off the 3s for 3) were weak, ``_DOMINATED_DB`` or more under the ones it
-    kept, on one frame at least: the pipe spoke its octave or twelfth, not a note whose
-    lower fundamental the pitch reading missed.
+    2; those off the 3s for 3) did not outweigh the ones it kept, on one frame at least
+    (0 dB; a plain note's fundamental leads its harmonics by far more): the pipe spoke its
+    octave or twelfth, not a note whose lower fundamental the pitch reading missed. (By
+    the first voiced frame the newest half window already holds some of the fundamental.)
     """
     held = st[_S_HELD]
     if not math.isnan(st[_S_TARGET]) or math.isnan(held) or st[_S_IN_NOTE] > cfg[_C_CRACK_WINDOW]:
@@ -631,7 +632,7 @@ def _cracked(cfg: NDArray[np.float64], st: NDArray[np.float64], f0_hz: float) ->
         lowest = st[_S_SUB2_MIN]
     elif cents_apart(ratio, 3.0) <= 50.0:
         lowest = st[_S_SUB3_MIN]
-    cracked: bool = lowest <= _DOMINATED_DB
+    cracked: bool = lowest <= 0.0
     return cracked
 
 
