@@ -59,6 +59,7 @@ from dsp.measure import MAINS_HZ, MAINS_TOLERANCE
 from dsp.rates import MAX_SAMPLE_RATE, MIN_SAMPLE_RATE
 from dsp.register import JUMP_NAMES, REGISTER_NAMES, RegisterMonitor
 from dsp.spectrum import newest_half_taps
+from dsp.voicing import N_VOICING_STATE, voicing_reset
 
 __all__ = ["FMAX_HZ", "FMIN_HZ", "MAX_SAMPLE_RATE", "MIN_SAMPLE_RATE", "StreamingAnalyser", "prepare_kernels"]
 
@@ -174,6 +175,7 @@ class StreamingAnalyser:
         )  # fmt: skip
         self._half_taps = newest_half_taps(self._n)
         self._carry = np.empty(2)
+        self._voicing = np.empty(N_VOICING_STATE)  # end-of-note state (dsp.voicing)
         c = _CHUNK_FRAMES
         # what one chunk's frames are measured into; views per chunk size in self._work
         self._work_arrays = (
@@ -216,6 +218,7 @@ class StreamingAnalyser:
         self._next_end = self._n
         self._carry[CARRY_PREV_F0] = math.nan
         self._carry[CARRY_JUMPED_RUN] = 0.0
+        voicing_reset(self._voicing)
         self._monitor.lock(None)
         self._monitor.reset()
 
@@ -323,7 +326,7 @@ class StreamingAnalyser:
         if work is None:
             x32, power, floor, out = (a[:c] for a in self._work_arrays)
             work = self._work[c] = (
-                x32, power, floor, self._params, self._hum_hz, *self._half_taps, *self._monitor.arrays, self._carry, out,
+                x32, power, floor, self._params, self._hum_hz, *self._half_taps, *self._monitor.arrays, self._carry, self._voicing, out,
             )  # fmt: skip
         analyse_chunk(self._store, first, self._hop, *work)
         sr = self._sr
