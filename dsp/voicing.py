@@ -57,15 +57,16 @@ __all__ = [
     "QUIET_FRAMES",
     "STEADY_DB",
     "STEADY_FRAMES",
+    "STEADY_NEAR_DB",
     "STOP_AFTER_DB",
     "STOP_AT_DB",
     "end_of_note",
     "voicing_reset",
 ]
 
-STOP_AT_DB = 1.0
+STOP_AT_DB = 0.5
 """Fall of the segment after the centre under the ~21 ms before it, dB (rule 1)."""
-STOP_AFTER_DB = 4.5
+STOP_AFTER_DB = 3.5
 """Fall of the loudest of the newest three segments under the same, dB (rule 1)."""
 DECAY_DB = 3.0
 """Fall of the level at the centre under the note's peak, dB (rule 2)."""
@@ -86,6 +87,8 @@ KEPT_DECAY_DB = 0.5
 STEADY_DB = 3.0
 """Spread of the window's segment levels under which a tone is steady, not a tail, dB: a
 free decay falls 60 dB / T60, >= 6.4 dB over the window for T60 <= 0.8 s."""
+STEADY_NEAR_DB = 20.0
+"""... at a level within this of the ended note's (a tail steady in the room noise is not), dB."""
 STEADY_FRAMES = 10
 """Frames in a row (50 ms at a 5 ms hop) a window must be steady to voice after an end."""
 QUIET_FRAMES = 20
@@ -179,7 +182,7 @@ def end_of_note(state: NDArray[np.float64], f0_hz: float, seg_ms: NDArray[np.flo
             hi_db = max(hi_db, _db(seg_ms[k]))
         # a free decay falls >= 6 dB across the window, and never stays level
         state[_STEADY] = state[_STEADY] + 1.0 if voiced and hi_db - lo_db <= STEADY_DB else 0.0
-        steady = state[_STEADY] >= STEADY_FRAMES
+        steady = state[_STEADY] >= STEADY_FRAMES and at >= state[_END_DB] - STEADY_NEAR_DB
         if state[_QUIET] >= QUIET_FRAMES or (voiced and (back or fresh or steady)):
             voicing_reset(state)
         else:
