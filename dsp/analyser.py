@@ -16,7 +16,9 @@ odd/even balance, and the register evidence (:mod:`dsp.measure`). The register m
 (read out of the same FFT) and the level of the newest quarter window; a sounding note stays
 voiced on weaker evidence (hysteresis). Once a jump is past a frame's centre and the window
 still shows the held note (reverberation), the frame's pitch is measured on the harmonics of
-mode x held note. Python only checks the block and builds the Frames.
+mode x held note. A reading ends with the note: once the direct sound has stopped by a
+frame's centre, its reverberant tail is no longer voiced (:mod:`dsp.voicing`). Python only
+checks the block and builds the Frames.
 
 Known limits: the window's smoothing of a vibrato is taken out only to second order (a 40-cent,
 7 Hz vibrato still reads ~0.35 cent off in the median) and not at all below 12 bins of f0

@@ -5,7 +5,8 @@ single precision (rounding noise ~1e-7 of the peak, far under any microphone's f
 their FFTs (pocketfft, called from inside numba through rocket-fft; one per frame, the newest
 half window's spectrum is read out of it); measures each frame
 (:func:`dsp.measure.measure_frames`); keeps a sounding note voiced on weaker evidence
-(hysteresis); steps the register monitor (:func:`dsp.register.monitor_update`); and, once a
+(hysteresis); ends the reading with the note (:func:`dsp.voicing.end_of_note`: the tail
+in a room is no note); steps the register monitor (:func:`dsp.register.monitor_update`); and, once a
 jump is past a frame's centre while the window still shows the held note (reverberation),
 measures the frame's pitch on the harmonics of mode x held note. One row of ``out`` per
 frame; Python only turns the rows into :class:`dsp.frame.Frame` objects.

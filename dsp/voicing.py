@@ -3,35 +3,50 @@
 In a room the analyser's ~85 ms window goes on holding a clean periodic tone after the
 player stops: the reverberant tail, which decays at the room's rate (60 dB in T60, the
 definition of the reverberation time: Sabine, *Collected Papers on Acoustics*, 1922; ISO
-3382-1:2009) and keeps every voicing test of :mod:`dsp.measure` passing for up to half a
-second. This module ends the reading causally from the window's own level shape, per frame,
-on the 8 equal segments the window's level is already measured in (~10.7 ms each at 48 kHz,
-4096 samples; segment 0 the oldest, the frame's centre between segments 3 and 4).
+3382-1:2009) and passes every voicing test of :mod:`dsp.measure` for up to half a second.
+:func:`end_of_note` ends the reading causally, per frame, from what that frame's window
+already holds: the mean squares of its 8 equal segments (:data:`dsp.measure.N_SEGMENTS`,
+~10.7 ms each at 48 kHz; segment 0 the oldest, the frame's centre between segments 3 and 4),
+the same of the samples' first difference (which weights each partial by f^2), and how well
+the best-kept harmonic holds in the newest half window (``kept_db``).
 
-Levels (dB, mean square) of the frame: ``pre`` = segments 2-3 (the ~21 ms before the
-centre), ``at`` = segment 4 (the ~11 ms after it), ``after`` = the loudest of segments 5-7.
+Levels (dB) of a frame: ``pre`` = segments 2-3 (the ~21 ms before the centre), ``at`` =
+segment 4 (the ~11 ms after it), ``after`` = the loudest of segments 5-7.
 
 1. **Stop** (the direct sound ended by this frame's centre): ``at <= pre - STOP_AT_DB``
-   and ``after <= pre - STOP_AFTER_DB``: the level has begun to fall at the centre and
-   stays >= 4.5 dB down over the newest ~32 ms. A diminuendo (10-20 dB/s: 0.8 dB over
-   40 ms) and a slurred step (level kept) do not do this; a player's stop into a room
-   with a tail up to as loud as the direct sound does (the direct sound's share leaves).
-2. **Free decay** (a stop into a wet room, whose step is small): ``at`` is at least
-   ``DECAY_DB`` under ``peak`` (the highest ``pre`` of the note, falling by at most
-   ``PEAK_FALL_DB_PER_S``, which follows any diminuendo) while the least-squares slope of
-   segments 2-7 is ``DECAY_SLOPE_DB_PER_S`` or steeper (a T60 of 0.6 s decays 100 dB/s).
-3. After either, the frame and those that follow are unvoiced (the *ended* state) until
-   the level at the centre comes back: ``at`` rises ``BACK_RISE_DB`` over its lowest
-   value since the end *and* to within ``BACK_NEAR_DB`` of the note's level (a dip of
-   the note's level, or a room's swing of a vibrato, recovers; a tail does not climb back),
-   or a fresh note rises ``FRESH_RISE_DB`` over the loudest of segments 0-2 (a new note
-   out of a tail), or the measure has found no tone for ``QUIET_FRAMES`` frames.
+   (0.5 dB) and ``after <= pre - STOP_AFTER_DB`` (3.5 dB), in the plain *and* the
+   differenced levels (or rule 2 in the latter), and every harmonic of the note within
+   15 dB of its strongest has fallen ``KEPT_DB`` (1 dB) in the newest half window. A
+   diminuendo (10-20 dB/s: 0.8 dB over 40 ms) and a slurred step (level kept) do not do
+   this; a register change's fading harmonics (the odd ones before an octave, all but the
+   multiples of 3 before a twelfth) leave the kept ones standing; a room's swing of the
+   level under a vibrato (the room's response differs from one frequency to the next)
+   does not move the plain and the differenced levels alike.
+2. **Free decay** (a stop into a wet room, whose step is small): ``at`` is ``DECAY_DB``
+   (3 dB) or more under ``peak`` (the highest ``pre`` of the note, allowed to fall
+   ``PEAK_FALL_DB_PER_S``, 30 dB/s, faster than any diminuendo) while the least-squares
+   slope of segments 2-7 is ``DECAY_SLOPE_DB_PER_S`` (100 dB/s: 60 dB / 0.6 s) or steeper,
+   in both level sets, and ``kept_db <= -KEPT_DECAY_DB`` (0.5 dB).
+3. After either, this frame and those that follow are unvoiced (the *ended* state) until
+   one of: ``at`` rises ``BACK_RISE_DB`` (3 dB) over its lowest since the end *and* is back
+   within ``BACK_NEAR_DB`` (4 dB) of the note's level (a dip recovers, a tail does not climb
+   back); ``at`` stands ``FRESH_RISE_DB`` (6 dB) over the loudest of segments 0-2 (a new
+   note out of a tail); the whole window's segments stay within ``STEADY_DB`` (3 dB) of
+   each other for ``STEADY_FRAMES`` (10) frames in a row at a level within
+   ``STEADY_NEAR_DB`` (20 dB) of the ended note's (a new, softer note under the dying tail:
+   a free decay falls >= 6.4 dB across the window for T60 <= 0.8 s); or the measure has
+   found no tone for ``QUIET_FRAMES`` (20) frames.
 
-Handling noise that rings (a thump, a click in a room) passes the level tests of
-:mod:`dsp.measure` only while it decays: rule 2 ends it too.
+Handling noise that rings (a thump or a click in a room) ends by rule 2 as it decays.
 
-Per frame this is a few dozen flops on levels already measured (no extra pass over the
-samples). State: one float64 vector of :data:`N_VOICING_STATE`, carried across chunks.
+Constants were set on constructed scenes (tests/dsp/test_voicing_field.py, tuning seeds
+1000-1099 only). Known limits: where the tail is as loud as the direct sound the stop is a
+~3 dB step and may be found up to ~100 ms late; in rooms with T60 well over 1 s a tail can
+look steady and voice again; staccato gaps shorter than ~60 ms stay partly voiced; the
+rising edge of a low thump (a lone partial, 30-120 Hz) still reads as a tone for a few
+frames. Per frame: a few dozen flops on levels already measured (one more running sum in
+the measure's pass over the samples). State: one float64 vector of :data:`N_VOICING_STATE`,
+carried across chunks and cleared by :func:`voicing_reset`.
 """
 
 from __future__ import annotations
