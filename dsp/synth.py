@@ -13,7 +13,18 @@ open-open pipe: ``f_n = n c / (2 L_eff)``, all harmonics present):
   harmonics vanish, only multiples of ``2 f0`` remain; mode 3 (the twelfth) keeps only
   multiples of ``3 f0``;
 * pitch rises with blowing pressure (``cents_per_db``); an overblown change raises the level
-  by several dB within ~30 ms, a vented change keeps the level.
+  by several dB within ~30 ms, a vented change keeps the level (or changes it a little,
+  ``jump_level_db``);
+* the breath may rise into an overblow (``rise_s``, ``rise_db``): the level climbs while the
+  partials the new mode lacks fade, then the upper mode sounds;
+* a cracked attack (``crack_mode``) speaks an upper mode for its first ``crack_s`` and then falls
+  to the fingered register.
+
+Sounds that are never a note: handling noise (thumps and clicks) and breath without a tone
+(:class:`NoiseEvent`), mains hum, a noise floor set by its SNR against the tone, and a room
+(T60 and direct-to-reverberant ratio). The truth (:meth:`Score.truth`) never calls them voiced;
+a note's release and the reverberant tail after it are outside the note. Register events
+(:class:`RegisterEvent`) list every change of the sounding mode: overblown, vented, cracked.
 
 Everything is pure numpy/scipy; randomness comes only from ``numpy.random.Generator`` objects
 built from ``seed``, so a rendering is reproducible bit for bit, and :func:`render_blocks`
@@ -32,10 +43,13 @@ import scipy.signal
 from numpy.typing import NDArray
 
 __all__ = [
+    "NoiseEvent",
     "NoteEvent",
+    "RegisterEvent",
     "Rendering",
     "Score",
     "Truth",
+    "nominal_tone_dbfs",
     "plan",
     "register_profile_db",
     "render",
@@ -43,10 +57,12 @@ __all__ = [
 ]
 
 JumpKindName = Literal["overblown", "vented"]
+NoiseKindName = Literal["thump", "click", "breath"]
 
 _CHUNK = 1 << 15  # internal chunk (samples): noise grids and note chunks are aligned to it
 _MAX_SOUNDING_HARMONICS = 20
 _NYQUIST_SHARE = 0.45  # partials above this share of the sample rate are left out
+_CRACK_TRANSITION_S = 0.01  # a cracked attack falls to the fingered register within 10 ms
 
 
 @dataclass(frozen=True, slots=True)
@@ -107,6 +123,21 @@ class NoteEvent:
         Rate of the slower of the two.
     wander_phase : float, radians
         Phase of the wander (different notes wander differently).
+    rise_s : float >= 0, seconds
+        The breath rises into the change: over ``rise_s`` before the change the level climbs
+        by ``rise_db`` (linear in dB) and, unless ``weaken_s`` is given, the partials the new
+        mode lacks fade by ``weaken_db`` over the same span (the truth calls it "weakening").
+        0 with ``rise_db`` != 0: the rise happens within the change itself.
+    rise_db : float, dB
+        Level rise of that phase; it adds to ``jump_step_db``. Needs ``jump_at_s``.
+    crack_mode : int, 0 or >= 2
+        A cracked attack: the note first speaks this mode and falls to ``mode`` at
+        ``crack_s`` (a 10 ms change; register event kind "cracked"). 0: none.
+    crack_s : float > 0, seconds
+        Time from the note's start to the centre of that fall.
+    tremolo_db : float >= 0, dB
+        Peak level swing in step with the vibrato (a breath vibrato moves the level too);
+        with ``cents_per_db`` it also moves the pitch.
     """
 
     f0_hz: float
@@ -133,6 +164,16 @@ class NoteEvent:
     wander_cents: float = 0.0
     wander_hz: float = 0.7
     wander_phase: float = 0.0
+    rise_s: float = 0.0
+    rise_db: float = 0.0
+    crack_mode: int = 0
+    crack_s: float = 0.05
+    tremolo_db: float = 0.0
+
+    @property
+    def fade_s(self) -> float:
+        """Length of the fade of the partials the new mode lacks before the change, seconds."""
+        return self.weaken_s if self.weaken_s > 0.0 else self.rise_s
 
     @property
     def jump_transition_s(self) -> float:
@@ -147,6 +188,54 @@ class NoteEvent:
         if self.jump_level_db is not None:
             return self.jump_level_db
         return 8.0 if self.jump_kind == "overblown" else 0.0
+
+
+@dataclass(frozen=True, slots=True)
+class RegisterEvent:
+    """One change of the sounding mode inside a note.
+
+    Attributes
+    ----------
+    time_s : float, seconds
+        Centre of the change, from the rendering's first sample.
+    kind : "overblown" | "vented" | "cracked"
+        "cracked": a cracked attack falling from ``mode_before`` to the fingered register.
+    mode_before, mode_after : int >= 1
+        Sounding mode before and after.
+    sounding_after_hz : float, Hz
+        Sounding fundamental once the change is over.
+    """
+
+    time_s: float
+    kind: str
+    mode_before: int
+    mode_after: int
+    sounding_after_hz: float
+
+
+@dataclass(frozen=True, slots=True)
+class NoiseEvent:
+    """A sound that is not a note: handling noise or breath without a tone (never voiced).
+
+    Attributes
+    ----------
+    kind : "thump" | "click" | "breath"
+        "thump": a low damped burst (a knock on the instrument or the stand: a damped
+        40-120 Hz resonance plus noise under 300 Hz, decay ~25 ms); "click": a short broadband
+        impulse (a key or a fingernail, ~1 ms); "breath": band noise 400 Hz - 9 kHz with 50 ms
+        raised-cosine edges (blowing with no tone).
+    time_s : float >= 0, seconds
+        Start, from the rendering's first sample.
+    level_dbfs : float, dBFS
+        RMS over ``duration_s`` (the event is scaled so, exactly).
+    duration_s : float > 0, seconds
+        Span of the event: 0.15 s suits a thump, 0.003 s a click, any length breath.
+    """
+
+    kind: NoiseKindName
+    time_s: float
+    level_dbfs: float
+    duration_s: float = 0.15
 
 
 @dataclass(frozen=True, slots=True)
@@ -165,9 +254,10 @@ class Truth:
     mode : ndarray of int
         Sounding mode; 0 where unvoiced.
     jump : ndarray of str
-        "overblown" / "vented" while in a jumped state, else "".
+        "overblown" / "vented" while in a jumped state, "cracked" in the upper mode of a
+        cracked attack, else "".
     register : ndarray of str
-        "steady", "weakening", "jumped", or "" where unvoiced.
+        "steady", "weakening", "jumped" (also the cracked part), or "" where unvoiced.
     level_dbfs : ndarray of float, dBFS
         RMS level of the tone; -inf where no note plays.
     settled : ndarray of bool
@@ -225,6 +315,7 @@ class _Controls:
     crossfade: NDArray[np.float64]  # 0 = start mode, 1 = jump mode
     weaken_gain: NDArray[np.float64]  # gain of the partials the new mode lacks
     envelope: NDArray[np.float64]  # attack/release amplitude 0..1
+    crack: NDArray[np.float64] | None = None  # weight of the cracked attack's mode 1..0; None: no crack
 
 
 def _controls(ev: NoteEvent, t: NDArray[np.float64]) -> _Controls:
@@ -236,10 +327,18 @@ def _controls(ev: NoteEvent, t: NDArray[np.float64]) -> _Controls:
         half = 0.5 * ev.jump_transition_s
         crossfade = _raised_cosine((t - (ev.jump_at_s - half)) / ev.jump_transition_s)
         level = level + ev.jump_step_db * crossfade
-        if ev.weaken_s > 0.0:
-            w0 = ev.jump_at_s - half - ev.weaken_s
-            frac = np.clip((t - w0) / ev.weaken_s, 0.0, 1.0)
+        if ev.rise_db:
+            if ev.rise_s > 0.0:
+                level = level + ev.rise_db * np.clip((t - (ev.jump_at_s - half - ev.rise_s)) / ev.rise_s, 0.0, 1.0)
+            else:
+                level = level + ev.rise_db * crossfade
+        fade_s = ev.fade_s
+        if fade_s > 0.0:
+            w0 = ev.jump_at_s - half - fade_s
+            frac = np.clip((t - w0) / fade_s, 0.0, 1.0)
             weaken = 10.0 ** (ev.weaken_db * frac / 20.0)
+    if ev.tremolo_db:
+        level = level + ev.tremolo_db * np.sin(2.0 * np.pi * ev.vibrato_hz * t)
     cents = ev.cents_per_db * (level - ev.level_dbfs)
     if ev.vibrato_cents:
         cents = cents + ev.vibrato_cents * np.sin(2.0 * np.pi * ev.vibrato_hz * t)
@@ -252,13 +351,16 @@ def _controls(ev: NoteEvent, t: NDArray[np.float64]) -> _Controls:
         )
     fingered = ev.f0_hz * 2.0 ** (cents / 1200.0)
     env = _raised_cosine(t / ev.attack_s) * _raised_cosine((ev.duration_s - t) / ev.release_s)
-    return _Controls(fingered, level, crossfade, weaken, env)
+    crack = None
+    if ev.crack_mode:
+        crack = 1.0 - _raised_cosine((t - (ev.crack_s - 0.5 * _CRACK_TRANSITION_S)) / _CRACK_TRANSITION_S)
+    return _Controls(fingered, level, crossfade, weaken, env, crack)
 
 
 def _max_fingered_hz(ev: NoteEvent) -> float:
     """Highest fingered frequency the note reaches, Hz."""
-    lo = min(0.0, ev.crescendo_db) + min(0.0, ev.jump_step_db)
-    hi = max(0.0, ev.crescendo_db) + max(0.0, ev.jump_step_db)
+    lo = min(0.0, ev.crescendo_db) + min(0.0, ev.jump_step_db) + min(0.0, ev.rise_db) - ev.tremolo_db
+    hi = max(0.0, ev.crescendo_db) + max(0.0, ev.jump_step_db) + max(0.0, ev.rise_db) + ev.tremolo_db
     drift = max(ev.cents_per_db * lo, ev.cents_per_db * hi)
     extra = abs(ev.vibrato_cents) + max(0.0, drift) + max(0.0, ev.onset_cents) + ev.wander_cents
     return float(ev.f0_hz * 2.0 ** (extra / 1200.0))
@@ -297,20 +399,38 @@ def _validate(ev: NoteEvent, index: int, sample_rate: float) -> None:
         )
     if ev.weaken_s < 0 or ev.weaken_db > 0:
         raise ValueError(f"{where}: weaken_s {ev.weaken_s} must be >= 0 and weaken_db {ev.weaken_db} <= 0")
+    if not (ev.rise_s >= 0 and np.isfinite(ev.rise_s) and np.isfinite(ev.rise_db)):
+        raise ValueError(f"{where}: rise_s {ev.rise_s} must be >= 0 seconds and rise_db {ev.rise_db} finite")
+    if (ev.rise_s > 0 or ev.rise_db != 0) and ev.jump_at_s is None:
+        raise ValueError(f"{where}: rise_s/rise_db describe the breath rising into a change; give jump_at_s too")
+    if not (ev.tremolo_db >= 0 and np.isfinite(ev.tremolo_db)):
+        raise ValueError(f"{where}: tremolo_db {ev.tremolo_db} must be >= 0 dB")
+    if ev.crack_mode:
+        if int(ev.crack_mode) != ev.crack_mode or ev.crack_mode < 2 or ev.crack_mode == ev.mode:
+            raise ValueError(f"{where}: crack_mode {ev.crack_mode!r} must be 0 or an integer >= 2 other than mode")
+        room_end = ev.duration_s - ev.release_s
+        if ev.jump_at_s is not None:
+            room_end = ev.jump_at_s - 0.5 * ev.jump_transition_s - ev.fade_s
+        half_crack = 0.5 * _CRACK_TRANSITION_S
+        if not (ev.attack_s + half_crack <= ev.crack_s <= room_end - half_crack):
+            raise ValueError(
+                f"{where}: crack_s {ev.crack_s} must leave the attack ({ev.attack_s} s) and "
+                f"{half_crack} s before it, and end before any change or the release"
+            )
     if (ev.jump_at_s is None) != (ev.jump_kind is None):
         raise ValueError(f"{where}: give jump_at_s and jump_kind together (got {ev.jump_at_s!r}, {ev.jump_kind!r})")
     if ev.jump_kind is not None and ev.jump_kind not in ("overblown", "vented"):
         raise ValueError(f"{where}: jump_kind {ev.jump_kind!r} must be 'overblown' or 'vented'")
     if ev.jump_at_s is not None:
         half = 0.5 * ev.jump_transition_s
-        if not (ev.attack_s + ev.weaken_s + half <= ev.jump_at_s <= ev.duration_s - ev.release_s - half):
+        if not (ev.attack_s + ev.fade_s + half <= ev.jump_at_s <= ev.duration_s - ev.release_s - half):
             raise ValueError(
                 f"{where}: jump_at_s {ev.jump_at_s} must leave attack, weakening and release "
                 f"room inside duration_s {ev.duration_s}"
             )
         if ev.jump_mode == ev.mode:
             raise ValueError(f"{where}: jump_mode {ev.jump_mode} equals mode; a change needs another mode")
-    top_mode = max(ev.mode, ev.jump_mode if ev.jump_at_s is not None else ev.mode)
+    top_mode = max(ev.mode, ev.jump_mode if ev.jump_at_s is not None else ev.mode, ev.crack_mode)
     sounding = top_mode * _max_fingered_hz(ev)
     if sounding >= _NYQUIST_SHARE * sample_rate:
         raise ValueError(
@@ -331,7 +451,12 @@ class Score:
     notes : list of (start_s, end_s, NoteEvent)
         Start and end on the sample grid, seconds.
     jumps : list of (time_s, kind, sounding_f0_after_hz)
-        Register changes (centre of each change) and the sounding pitch once it is over.
+        Overblown and vented changes (centre of each change) and the sounding pitch once it
+        is over.
+    events : tuple of RegisterEvent
+        Every change of the sounding mode, cracked attacks included, in time order.
+    noises : tuple of NoiseEvent
+        Handling noise and toneless breath laid over the notes (never voiced).
     """
 
     sample_rate: float
@@ -340,6 +465,8 @@ class Score:
     jumps: list[tuple[float, str, float]]
     note_starts: NDArray[np.int64] = field(repr=False)
     note_ends: NDArray[np.int64] = field(repr=False)
+    events: tuple[RegisterEvent, ...] = ()
+    noises: tuple[NoiseEvent, ...] = ()
 
     @property
     def duration_s(self) -> float:
@@ -389,13 +516,19 @@ class Score:
                 reg[after] = "jumped"
                 jk[after] = str(ev.jump_kind)
                 half = 0.5 * ev.jump_transition_s
-                if ev.weaken_s > 0:
-                    w0 = ev.jump_at_s - half - ev.weaken_s
+                if ev.fade_s > 0:
+                    w0 = ev.jump_at_s - half - ev.fade_s
                     reg[(local >= w0) & ~after] = "weakening"
                     lo = w0
                 else:
                     lo = ev.jump_at_s - half
                 calm &= (local < lo - settle_s) | (local > ev.jump_at_s + half + settle_s)
+            if ev.crack_mode:
+                cracked = local < ev.crack_s
+                m[cracked] = ev.crack_mode
+                reg[cracked] = "jumped"
+                jk[cracked] = "cracked"
+                calm &= local > ev.crack_s + 0.5 * _CRACK_TRANSITION_S + settle_s
             sounding[idx] = np.where(voiced, m * c.fingered_hz, np.nan)
             held[idx] = np.where(voiced, c.fingered_hz, np.nan)
             mode[idx] = np.where(voiced, m, 0)
@@ -437,21 +570,29 @@ class Rendering:
 
     @property
     def jumps(self) -> list[tuple[float, str, float]]:
-        """(time_s, kind, sounding_f0_after_hz) of every register change."""
+        """(time_s, kind, sounding_f0_after_hz) of every overblown or vented change."""
         return self.score.jumps
+
+    @property
+    def events(self) -> tuple[RegisterEvent, ...]:
+        """Every change of the sounding mode (cracked attacks included)."""
+        return self.score.events
 
     def truth(self, times_s: NDArray[np.float64] | Sequence[float], settle_s: float = 0.1) -> Truth:
         """Exact state at ``times_s``; see :meth:`Score.truth`."""
         return self.score.truth(times_s, settle_s)
 
 
-def plan(events: Sequence[NoteEvent], sample_rate: float) -> Score:
+def plan(events: Sequence[NoteEvent], sample_rate: float, noises: Sequence[NoiseEvent] = ()) -> Score:
     """Lay notes end to end on the sample grid and validate them.
 
     Parameters
     ----------
     events : sequence of NoteEvent
     sample_rate : float > 0, Hz
+    noises : sequence of NoiseEvent
+        Handling noise and toneless breath at their own times; the rendering is made long
+        enough to hold them.
 
     Returns
     -------
@@ -473,6 +614,7 @@ def plan(events: Sequence[NoteEvent], sample_rate: float) -> Score:
     if len(events) == 0:
         raise ValueError("no notes given; pass at least one NoteEvent")
     starts, ends, notes, jumps = [], [], [], []
+    reg_events: list[RegisterEvent] = []
     clock_s = 0.0
     for i, ev in enumerate(events):
         if not isinstance(ev, NoteEvent):
@@ -484,13 +626,30 @@ def plan(events: Sequence[NoteEvent], sample_rate: float) -> Score:
         ends.append(n1)
         start_s, end_s = n0 / sample_rate, n1 / sample_rate
         notes.append((start_s, end_s, ev))
+        if ev.crack_mode:
+            t_after = np.array([ev.crack_s + 0.5 * _CRACK_TRANSITION_S])
+            f_after = float(ev.mode * _controls(ev, t_after).fingered_hz[0])
+            reg_events.append(RegisterEvent(start_s + ev.crack_s, "cracked", ev.crack_mode, ev.mode, f_after))
         if ev.jump_at_s is not None:
             t_after = np.array([ev.jump_at_s + 0.5 * ev.jump_transition_s])
             f_after = float(ev.jump_mode * _controls(ev, t_after).fingered_hz[0])
             jumps.append((start_s + ev.jump_at_s, str(ev.jump_kind), f_after))
+            reg_events.append(RegisterEvent(start_s + ev.jump_at_s, str(ev.jump_kind), ev.mode, ev.jump_mode, f_after))
         clock_s += ev.duration_s + ev.gap_s
     n_total = int(round(clock_s * sample_rate))  # noqa: RUF046  a 0-d array passes the checks; int() keeps the count an int
     n_total = max(n_total, ends[-1])
+    for i, nz in enumerate(noises):
+        if not isinstance(nz, NoiseEvent):
+            raise TypeError(f"noise {i} is {type(nz).__name__}, expected NoiseEvent")
+        if nz.kind not in ("thump", "click", "breath"):
+            raise ValueError(f"noise {i}: kind {nz.kind!r} must be 'thump', 'click' or 'breath'")
+        if not (np.isfinite(nz.time_s) and nz.time_s >= 0 and np.isfinite(nz.level_dbfs)):
+            raise ValueError(f"noise {i}: time_s {nz.time_s} must be >= 0 s and level_dbfs {nz.level_dbfs} finite")
+        if not (np.isfinite(nz.duration_s) and nz.duration_s * sample_rate >= 2):
+            raise ValueError(f"noise {i}: duration_s {nz.duration_s} must span at least 2 samples")
+        if nz.kind == "breath" and nz.duration_s < 0.1:
+            raise ValueError(f"noise {i}: toneless breath needs duration_s >= 0.1 s (50 ms edges)")
+        n_total = max(n_total, int(round((nz.time_s + nz.duration_s) * sample_rate)))  # noqa: RUF046  int() keeps the count an int
     return Score(
         sample_rate=float(sample_rate),
         n_samples=n_total,
@@ -498,6 +657,8 @@ def plan(events: Sequence[NoteEvent], sample_rate: float) -> Score:
         jumps=jumps,
         note_starts=np.array(starts, dtype=np.int64),
         note_ends=np.array(ends, dtype=np.int64),
+        events=tuple(reg_events),
+        noises=tuple(noises),
     )
 
 
@@ -569,7 +730,7 @@ class _NoteVoice:
         rng = np.random.default_rng([seed, index, 0])
         top_hz = _max_fingered_hz(ev)
         n_max = int(_NYQUIST_SHARE * sample_rate // top_hz)
-        modes = {ev.mode} | ({ev.jump_mode} if ev.jump_at_s is not None else set())
+        modes = {ev.mode} | ({ev.jump_mode} if ev.jump_at_s is not None else set()) | ({ev.crack_mode} - {0})
         n_max = min(n_max, max_harmonics * max(modes))
         self._n_max = max(n_max, 1)
         phases = rng.uniform(0.0, 2.0 * np.pi, self._n_max + 1)
@@ -595,13 +756,14 @@ class _NoteVoice:
         """Polynomial coefficients per layer: 'a' kept, 'a_weak' fading, 'b' after the jump."""
         rot = np.exp(1j * phases)
         a = self._mode_amplitudes(self.ev.mode)
+        crack = [("c", self._mode_amplitudes(self.ev.crack_mode) * rot)] if self.ev.crack_mode else []
         if self.ev.jump_at_s is None:
-            return [("a", a * rot)]
+            return [("a", a * rot), *crack]
         b = self._mode_amplitudes(self.ev.jump_mode)
         kept = np.zeros_like(a)
         kept[:: self.ev.jump_mode] = a[:: self.ev.jump_mode]
         weak = a - kept
-        return [("a", kept * rot), ("a_weak", weak * rot), ("b", b * rot)]
+        return [("a", kept * rot), ("a_weak", weak * rot), ("b", b * rot), *crack]
 
     def _build_chiff(self, rng: np.random.Generator) -> NDArray[np.float64]:
         """Attack burst: decaying band noise plus two inharmonic partials, ~40 ms."""
@@ -640,6 +802,9 @@ class _NoteVoice:
             "a_weak": (1.0 - c.crossfade) * c.weaken_gain,
             "b": c.crossfade,
         }
+        if c.crack is not None:  # the cracked mode first, then the note's own layers
+            envs = {k: (1.0 - c.crack) * v for k, v in envs.items()}
+            envs["c"] = c.crack
         tone = np.zeros(n)
         for name, coef in self._layers:
             e = envs[name]
@@ -695,6 +860,60 @@ def _reverb_ir(sample_rate: float, reverb_s: float, seed: int, wet_db: float) ->
     return tail
 
 
+@lru_cache(maxsize=8)
+def _thump_sos(sample_rate: float) -> NDArray[np.float64]:
+    """Thump noise colour: low-passed at 300 Hz."""
+    return np.asarray(scipy.signal.butter(2, 300.0, btype="lowpass", fs=sample_rate, output="sos"))
+
+
+def _noise_event_samples(nz: NoiseEvent, index: int, sample_rate: float, seed: int) -> tuple[int, NDArray[np.float64]]:
+    """First sample and samples of one handling noise or toneless breath, RMS = its level."""
+    rng = np.random.default_rng([seed, 0x4E, index])
+    n0 = int(round(nz.time_s * sample_rate))  # noqa: RUF046  int() keeps the count an int
+    n = max(int(round(nz.duration_s * sample_rate)), 2)  # noqa: RUF046  int() keeps the count an int
+    t = np.arange(n) / sample_rate
+    if nz.kind == "thump":
+        f_res = rng.uniform(40.0, 120.0)
+        body = np.sin(2.0 * np.pi * f_res * t + rng.uniform(0, 2 * np.pi)) * np.exp(-t / 0.025)
+        rumble = scipy.signal.sosfilt(_thump_sos(sample_rate), rng.standard_normal(n)) * np.exp(-t / 0.015)
+        x = body + 0.5 * rumble / (np.std(rumble) + 1e-30) * np.std(body)
+        x *= 1.0 - np.exp(-t / 0.001)  # no step at the start
+    elif nz.kind == "click":
+        x = rng.standard_normal(n) * np.exp(-t / 0.0005)
+    else:
+        x = scipy.signal.sosfilt(_breath_sos(sample_rate), rng.standard_normal(n))
+        edge = 0.05
+        x *= _raised_cosine(t / edge) * _raised_cosine((nz.duration_s - t) / edge)
+    x *= 10.0 ** (nz.level_dbfs / 20.0) / np.sqrt(np.mean(x * x) + 1e-300)
+    return n0, np.asarray(x, dtype=np.float64)
+
+
+def nominal_tone_dbfs(score: Score) -> float:
+    """The tone's nominal RMS level: the notes' ``level_dbfs`` power-averaged over their lengths.
+
+    Crescendos, level steps and inaudible notes (below -150 dBFS) are left out; this is
+    the reference of ``snr_db`` in :func:`render`.
+
+    Returns
+    -------
+    float, dBFS
+        -inf when no note is audible.
+
+    Examples
+    --------
+    >>> round(nominal_tone_dbfs(plan([NoteEvent(440.0, 1.0, level_dbfs=-20.0),
+    ...                               NoteEvent(440.0, 1.0, level_dbfs=-30.0)], 48000)), 3)
+    -22.596
+    """
+    power = weight = 0.0
+    for start_s, end_s, ev in score.notes:
+        if ev.level_dbfs < -150.0:
+            continue
+        power += (end_s - start_s) * 10.0 ** (ev.level_dbfs / 10.0)
+        weight += end_s - start_s
+    return float(10.0 * np.log10(power / weight)) if weight > 0 else -np.inf
+
+
 def _dry_chunks(score: Score, seed: int, breath_noise_db: float, max_harmonics: int) -> Iterator[NDArray[np.float64]]:
     """The dry signal (notes and breath) in consecutive pieces of at most _CHUNK samples."""
     pos = 0
@@ -728,12 +947,14 @@ def render_blocks(
     hum_dbfs: float = -60.0,
     room_noise_dbfs: float | None = None,
     max_harmonics: int = _MAX_SOUNDING_HARMONICS,
+    snr_db: float | None = None,
 ) -> Iterator[NDArray[np.float32]]:
     """Render a score block by block (for long inputs; memory stays bounded).
 
     Yields float32 blocks of ``block_size`` samples (the last may be shorter). The
     concatenation equals ``render(...).audio`` for the same arguments, whatever
-    ``block_size``. Parameters as in :func:`render`.
+    ``block_size``. Parameters as in :func:`render` (handling noise comes with a Score made by
+    :func:`plan`).
     """
     score = events if isinstance(events, Score) else plan(events, sample_rate)
     if score.sample_rate != float(sample_rate):
@@ -746,6 +967,16 @@ def render_blocks(
         raise ValueError(f"hum_hz {hum_hz!r} must be > 0 Hz and below {_NYQUIST_SHARE} x sample_rate")
     if max_harmonics < 1:
         raise ValueError(f"max_harmonics {max_harmonics!r} must be >= 1")
+    if snr_db is not None and not np.isfinite(snr_db):
+        raise ValueError(f"snr_db {snr_db!r} must be a finite number of dB, or None for no noise floor")
+    floor = None
+    floor_gain = 0.0
+    if snr_db is not None:
+        tone_dbfs = nominal_tone_dbfs(score)
+        if np.isfinite(tone_dbfs):
+            floor = _GridNoise([seed, 0x5B], None)
+            floor_gain = 10.0 ** ((tone_dbfs - snr_db) / 20.0)
+    extras = [_noise_event_samples(nz, i, sample_rate, seed) for i, nz in enumerate(score.noises)]
     ir = _reverb_ir(sample_rate, reverb_s, seed, reverb_wet_db) if reverb_s > 0 else None
     tail = np.zeros(0)
     room = _GridNoise([seed, 0xA1], _room_sos(sample_rate)) if room_noise_dbfs is not None else None
@@ -754,6 +985,10 @@ def render_blocks(
     pos = 0
     for dry in _dry_chunks(score, seed, breath_noise_db, max_harmonics):
         n = dry.size
+        for n0, x in extras:  # handling noise and toneless breath sound in the room like the notes
+            lo, hi = max(n0, pos), min(n0 + x.size, pos + n)
+            if lo < hi:
+                dry[lo - pos : hi - pos] += x[lo - n0 : hi - n0]
         if ir is not None:
             wet = scipy.signal.fftconvolve(dry, ir)
             wet[: tail.size] += tail  # tail (len(ir) - 1) is never longer than wet
@@ -764,6 +999,8 @@ def render_blocks(
             chunk = chunk + _hum_block(pos, n, sample_rate, hum_hz, hum_dbfs)
         if room is not None and room_noise_dbfs is not None:
             chunk = chunk + 10.0 ** (room_noise_dbfs / 20.0) * room.take(n)
+        if floor is not None:
+            chunk = chunk + floor_gain * floor.take(n)
         pos += n
         pending.append(chunk)
         pending_n += n
@@ -780,6 +1017,7 @@ def render(
     events: Sequence[NoteEvent],
     sample_rate: float,
     *,
+    noises: Sequence[NoiseEvent] = (),
     seed: int = 0,
     breath_noise_db: float = -35.0,
     reverb_s: float = 0.0,
@@ -788,6 +1026,7 @@ def render(
     hum_dbfs: float = -60.0,
     room_noise_dbfs: float | None = None,
     max_harmonics: int = _MAX_SOUNDING_HARMONICS,
+    snr_db: float | None = None,
 ) -> Rendering:
     """Render notes laid end to end into one float32 signal with its exact truth.
 
@@ -795,6 +1034,9 @@ def render(
     ----------
     events : sequence of NoteEvent
     sample_rate : float >= 1000, Hz
+    noises : sequence of NoiseEvent
+        Handling noise (thumps, clicks) and breath without a tone; they sound in the room
+        like the notes; never voiced in the truth.
     seed : int
         Seeds every random part (harmonic phases, breath, chiff, reverb, room noise).
     breath_noise_db : float, dB
@@ -802,7 +1044,8 @@ def render(
     reverb_s : float >= 0, seconds
         T60 of a seeded exponentially decaying noise impulse response (0: dry).
     reverb_wet_db : float, dB
-        Energy of the reverberant tail relative to the direct sound.
+        Energy of the reverberant tail relative to the direct sound: the direct-to-reverberant
+        ratio is ``-reverb_wet_db`` dB.
     hum_hz : float or None, Hz
         Mains hum fundamental (50 or 60) with harmonics up to the 6th; None for none.
     hum_dbfs : float, dBFS
@@ -811,6 +1054,9 @@ def render(
         RMS of a low-passed room noise floor under everything; None for none.
     max_harmonics : int >= 1
         Most harmonics of the sounding note rendered (fewer near Nyquist).
+    snr_db : float or None, dB
+        Add white Gaussian noise whose RMS is ``snr_db`` under the tone's nominal level
+        (:func:`nominal_tone_dbfs`); None for none.
 
     Returns
     -------
@@ -829,7 +1075,7 @@ def render(
     >>> float(r.truth([0.15]).sounding_f0_hz[0])
     440.0
     """
-    score = plan(events, sample_rate)
+    score = plan(events, sample_rate, noises)
     blocks = list(
         render_blocks(
             score,
@@ -843,6 +1089,7 @@ def render(
             hum_dbfs=hum_dbfs,
             room_noise_dbfs=room_noise_dbfs,
             max_harmonics=max_harmonics,
+            snr_db=snr_db,
         )
     )
     audio = np.concatenate(blocks) if blocks else np.zeros(0, dtype=np.float32)

@@ -1,11 +1,12 @@
 #!/usr/bin/env bash
 # The whole test suite, with everything it needs installed first.
-# Debian packages (PortAudio, a JACK server, ALSA tools, libsndfile, sox, rsvg) when run as root
+# Debian packages (PortAudio, a JACK server, ALSA tools, libsndfile, sox, rsvg, and fluidsynth with
+# the FluidR3 General MIDI soundfont for the sampled recorder and flute notes) when run as root
 # on Debian/Ubuntu; Python packages with pip from the project's own pyproject.toml.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
-DEBS="libportaudio2 jackd2 alsa-utils libsndfile1 sox librsvg2-bin tmux"
+DEBS="libportaudio2 jackd2 alsa-utils libsndfile1 sox librsvg2-bin tmux fluidsynth fluid-soundfont-gm"
 if command -v apt-get >/dev/null 2>&1 && [ "$(id -u)" = 0 ]; then
     missing=""
     for p in $DEBS; do

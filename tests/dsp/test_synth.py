@@ -15,7 +15,7 @@ import scipy.signal
 
 from dsp.synth import NoteEvent, plan, register_profile_db, render, render_blocks
 
-QUIET = dict(breath_noise_db=-np.inf)
+QUIET = {"breath_noise_db": -np.inf}
 
 
 def _rms_dbfs(x: np.ndarray) -> float:
@@ -191,7 +191,7 @@ def test_truth_of_a_phrase():
         NoteEvent(440.0, 1.0, jump_at_s=0.4, jump_kind="vented", gap_s=0.2),
     ]
     r = render(events, 48000)
-    assert r.audio.size == int(round(2.8 * 48000))
+    assert r.audio.size == round(2.8 * 48000)
     assert [k for _, k, _ in r.jumps] == ["overblown", "vented"]
     assert r.jumps[0][0] == pytest.approx(0.6 + 0.5)
     assert r.jumps[0][2] == pytest.approx(784.0)
@@ -248,7 +248,7 @@ def test_reverb_decay_time():
 def test_blocks_equal_one_shot_and_seed_repeats():
     events = [NoteEvent(300.0, 0.7, vibrato_cents=10.0, gap_s=0.3),
               NoteEvent(600.0, 1.1, jump_at_s=0.5, jump_kind="vented")]
-    kw = dict(seed=7, reverb_s=0.3, hum_hz=60.0, room_noise_dbfs=-70.0)
+    kw = {"seed": 7, "reverb_s": 0.3, "hum_hz": 60.0, "room_noise_dbfs": -70.0}
     one = render(events, 44100, **kw).audio
     for block_size in (1, 1000, 44100):
         if block_size == 1:
@@ -269,14 +269,14 @@ def test_plan_timing_is_on_the_sample_grid():
 @pytest.mark.parametrize(
     "kwargs, match",
     [
-        (dict(f0_hz=-1.0, duration_s=1.0), "f0_hz -1.0"),
-        (dict(f0_hz=440.0, duration_s=0.0), "duration_s 0.0"),
-        (dict(f0_hz=440.0, duration_s=1.0, jump_at_s=0.5), "jump_at_s and jump_kind together"),
-        (dict(f0_hz=440.0, duration_s=1.0, jump_at_s=0.99, jump_kind="vented"), "jump_at_s 0.99"),
-        (dict(f0_hz=440.0, duration_s=1.0, jump_at_s=0.5, jump_kind="blown"), "jump_kind 'blown'"),
-        (dict(f0_hz=440.0, duration_s=1.0, mode=0), "mode 0"),
-        (dict(f0_hz=22000.0, duration_s=1.0), "raise sample_rate"),
-        (dict(f0_hz=440.0, duration_s=1.0, mode=2, jump_at_s=0.5, jump_kind="vented"), "jump_mode 2 equals mode"),
+        ({"f0_hz": -1.0, "duration_s": 1.0}, "f0_hz -1.0"),
+        ({"f0_hz": 440.0, "duration_s": 0.0}, "duration_s 0.0"),
+        ({"f0_hz": 440.0, "duration_s": 1.0, "jump_at_s": 0.5}, "jump_at_s and jump_kind together"),
+        ({"f0_hz": 440.0, "duration_s": 1.0, "jump_at_s": 0.99, "jump_kind": "vented"}, "jump_at_s 0.99"),
+        ({"f0_hz": 440.0, "duration_s": 1.0, "jump_at_s": 0.5, "jump_kind": "blown"}, "jump_kind 'blown'"),
+        ({"f0_hz": 440.0, "duration_s": 1.0, "mode": 0}, "mode 0"),
+        ({"f0_hz": 22000.0, "duration_s": 1.0}, "raise sample_rate"),
+        ({"f0_hz": 440.0, "duration_s": 1.0, "mode": 2, "jump_at_s": 0.5, "jump_kind": "vented"}, "jump_mode 2 equals mode"),
     ],
 )
 def test_bad_notes_are_named(kwargs, match):
@@ -336,3 +336,162 @@ def test_onset_overshoot_and_breath_wander_are_in_the_truth():
         render([NoteEvent(440.0, 1.0, onset_decay_s=0.0)], 16000)
     with pytest.raises(ValueError, match="wander_cents"):
         render([NoteEvent(440.0, 1.0, wander_cents=-1.0)], 16000)
+
+
+# --- outside-the-corpus features: breath rising into a break, vents with a level change,
+# cracked attacks, handling noise, toneless breath, SNR, direct-to-reverberant ratio, tremolo.
+# Every check is against the truth by construction (the documented controls) measured on the
+# rendered samples with the DFT / RMS definitions above.
+
+
+@pytest.mark.parametrize("jump_mode", [2, 3])
+def test_breath_rising_into_an_overblow(jump_mode):
+    # Level of the partial the new mode keeps (jump_mode x f0) rises by rise_db over rise_s (linear
+    # in dB: half of it at the middle); the fundamental, which the new mode lacks, also fades by
+    # weaken_db over the same span (half of it at the middle); then the new mode sounds.
+    from dsp.synth import RegisterEvent
+
+    f0, sr = 440.0, 48000
+    ev = NoteEvent(f0, 2.0, jump_at_s=1.2, jump_kind="overblown", jump_mode=jump_mode, rise_s=0.3, rise_db=10.0,
+                   jump_level_db=2.0, weaken_db=-20.0, chiff=False)
+    r = render([ev], sr, **QUIET)
+    rise_mid = 1.2 - 0.015 - 0.15
+    early, mid = _steady(r, 0.5, 0.54), _steady(r, rise_mid - 0.02, rise_mid + 0.02)  # equal lengths
+    kept_rise = _level_at(mid, sr, jump_mode * f0) - _level_at(early, sr, jump_mode * f0)
+    lacking_rise = _level_at(mid, sr, f0) - _level_at(early, sr, f0)
+    assert kept_rise == pytest.approx(5.0, abs=0.3)
+    assert lacking_rise == pytest.approx(5.0 - 10.0, abs=0.5)
+    # after the change: the whole tone is rise_db + jump_level_db louder (RMS definition)
+    delta = _rms_dbfs(_steady(r, 1.3, 1.9)) - _rms_dbfs(_steady(r, 0.2, 0.8))
+    assert delta == pytest.approx(12.0, abs=0.05)
+    tr = r.truth([0.5, rise_mid, 1.5])
+    assert tr.register.tolist() == ["steady", "weakening", "jumped"]
+    assert tr.level_dbfs == pytest.approx([-20.0, -15.0, -8.0])
+    assert r.events == (RegisterEvent(1.2, "overblown", 1, jump_mode, jump_mode * f0),)
+    with pytest.raises(ValueError, match="give jump_at_s too"):
+        render([NoteEvent(f0, 1.0, rise_s=0.1, rise_db=5.0)], sr)
+
+
+@pytest.mark.parametrize("step_db", [-3.0, 2.0])
+def test_vent_with_a_level_change(step_db):
+    # jump_level_db sets the level step of a vented change (RMS of both modes is the set level).
+    r = render([NoteEvent(440.0, 1.6, jump_at_s=0.8, jump_kind="vented", jump_level_db=step_db)], 48000, **QUIET)
+    delta = _rms_dbfs(_steady(r, 0.9, 1.5)) - _rms_dbfs(_steady(r, 0.1, 0.7))
+    assert delta == pytest.approx(step_db, abs=0.05)
+    assert [(e.kind, e.mode_before, e.mode_after) for e in r.events] == [("vented", 1, 2)]
+
+
+@pytest.mark.parametrize("crack_mode", [2, 3])
+def test_cracked_attack_speaks_the_upper_mode_then_falls(crack_mode):
+    # Before crack_s only multiples of crack_mode x f0 sound (Fletcher & Rossing 1998: the upper
+    # mode of an open pipe); after it the fundamental is back, as the truth says.
+    f0, sr = 440.0, 48000
+    ev = NoteEvent(f0, 0.6, attack_s=0.02, crack_mode=crack_mode, crack_s=0.055, chiff=False)
+    r = render([ev], sr, **QUIET)
+    cracked, settled = _steady(r, 0.021, 0.049), _steady(r, 0.3, 0.328)  # equal lengths, 28 ms
+    assert _level_at(cracked, sr, f0) < _level_at(cracked, sr, crack_mode * f0) - 40.0
+    assert _level_at(settled, sr, f0) > _level_at(settled, sr, crack_mode * f0)
+    tr = r.truth([0.035, 0.1])
+    assert tr.sounding_f0_hz.tolist() == pytest.approx([crack_mode * f0, f0])
+    assert tr.jump.tolist() == ["cracked", ""]
+    assert tr.mode.tolist() == [crack_mode, 1]
+    (event,) = r.events
+    assert (event.time_s, event.kind, event.mode_before, event.mode_after) == (0.055, "cracked", crack_mode, 1)
+    assert r.jumps == []  # overblown / vented only
+    with pytest.raises(ValueError, match="crack_s 0.02"):
+        render([NoteEvent(f0, 0.6, attack_s=0.02, crack_mode=2, crack_s=0.02)], sr)
+
+
+def _energy_share(x: np.ndarray, sample_rate: float, lo_hz: float, hi_hz: float) -> float:
+    """Share of the energy of x between lo_hz and hi_hz (Parseval on the DFT)."""
+    p = np.abs(np.fft.rfft(np.asarray(x, dtype=np.float64))) ** 2
+    f = np.fft.rfftfreq(x.size, 1.0 / sample_rate)
+    return float(p[(f >= lo_hz) & (f < hi_hz)].sum() / p.sum())
+
+
+def test_handling_noise_and_toneless_breath():
+    from dsp.synth import NoiseEvent
+
+    sr = 48000
+    noises = [NoiseEvent("thump", 0.2, -30.0, 0.15), NoiseEvent("click", 0.6, -25.0, 0.003),
+              NoiseEvent("breath", 1.0, -40.0, 0.8)]
+    r = render(_rest_note(0.5), sr, noises=noises, seed=4, **QUIET)
+    assert r.audio.size == int(1.8 * sr)  # the score grows to hold the last noise
+    x = r.audio.astype(np.float64)
+    thump, click, breath = x[int(0.2 * sr) : int(0.35 * sr)], x[int(0.6 * sr) : int(0.603 * sr)], x[int(1.0 * sr) :]
+    for part, nz in zip((thump, click, breath), noises):
+        assert _rms_dbfs(part) == pytest.approx(nz.level_dbfs, abs=0.01)  # RMS over its span
+    assert _energy_share(thump, sr, 0.0, 300.0) > 0.9  # low
+    assert _energy_share(click, sr, 2000.0, sr / 2) > 0.7  # broadband (white: 0.92 expected)
+    # the breath band, 400 Hz - 9 kHz, 2nd-order skirts: an octave outside it each filter is 12 dB down
+    assert _energy_share(breath, sr, 200.0, 18000.0) > 0.99
+    assert _energy_share(breath, sr, 0.0, 200.0) < 0.01
+    assert not r.truth(np.arange(0, 1.8, 0.01)).voiced.any()
+    # a Score with noises streams block by block like the rest
+    score = plan(_rest_note(0.5), sr, noises)
+    got = np.concatenate(list(render_blocks(score, sr, 5000, seed=4, **QUIET)))
+    np.testing.assert_array_equal(got, r.audio)
+
+
+def _rest_note(seconds: float) -> list[NoteEvent]:
+    return [NoteEvent(440.0, 0.01, level_dbfs=-200.0, attack_s=0.005, release_s=0.005, chiff=False,
+                      gap_s=seconds - 0.01)]
+
+
+def test_snr_against_the_tone():
+    # snr_db: the added noise's RMS is snr_db under the tone's RMS (measured on the rendered parts).
+    ev = NoteEvent(523.251, 2.0, level_dbfs=-18.0, chiff=False)
+    clean = render([ev], 48000, seed=2, **QUIET)
+    noisy = render([ev], 48000, seed=2, snr_db=12.0, **QUIET)
+    noise = noisy.audio.astype(np.float64) - clean.audio
+    snr = _rms_dbfs(_steady(clean, 0.2, 1.8)) - _rms_dbfs(noise)
+    assert snr == pytest.approx(12.0, abs=0.1)
+
+
+@pytest.mark.parametrize("hum_hz", [50.0, 60.0])
+def test_mains_hum_under_a_note(hum_hz):
+    # The hum adds its fundamental and harmonics to the note (difference of two renderings).
+    sr = 48000
+    ev = NoteEvent(440.0, 1.5, chiff=False)
+    diff = (render([ev], sr, hum_hz=hum_hz, hum_dbfs=-45.0, **QUIET).audio.astype(np.float64)
+            - render([ev], sr, **QUIET).audio)
+    assert _rms_dbfs(diff) == pytest.approx(-45.0, abs=0.05)
+    for k in (1, 2, 3):
+        assert _peak_hz(diff, sr, k * hum_hz) == pytest.approx(k * hum_hz, abs=0.01)
+
+
+def test_direct_to_reverberant_ratio():
+    # DRR = energy of the direct sound / energy of the reverberant part (the room's part is the
+    # wet rendering less the dry one); a broadband source (toneless breath) so that the random
+    # tail's response averages over many frequencies.
+    from dsp.synth import NoiseEvent
+
+    sr = 48000
+    noises = [NoiseEvent("breath", 0.1, -30.0, 1.5)]
+    dry = render(_rest_note(3.0), sr, noises=noises, **QUIET).audio.astype(np.float64)
+    wet = render(_rest_note(3.0), sr, noises=noises, reverb_s=0.6, reverb_wet_db=-5.0, **QUIET).audio
+    drr = 10 * np.log10(np.sum(dry * dry) / np.sum((wet - dry) ** 2))
+    assert drr == pytest.approx(5.0, abs=0.5)
+
+
+def test_vibrato_with_tremolo_and_a_10_db_crescendo():
+    # A 10 dB crescendo with a 20 c, 5 Hz vibrato and a 1.5 dB tremolo: the RMS over each whole
+    # vibrato period equals the truth's power average there, and the instantaneous frequency of a
+    # single partial (analytic signal, scipy.signal.hilbert) follows the truth.
+    sr = 48000
+    ev = NoteEvent(440.0, 2.2, crescendo_db=10.0, vibrato_cents=20.0, vibrato_hz=5.0, tremolo_db=1.5,
+                   cents_per_db=0.5, chiff=False)
+    r = render([ev], sr, max_harmonics=1, **QUIET)
+    x = r.audio.astype(np.float64)
+    for t0 in (0.2, 1.0, 1.8):
+        seg = slice(int(t0 * sr), int((t0 + 0.2) * sr))
+        t = np.arange(seg.start, seg.stop) / sr
+        want = 10 * np.log10(np.mean(10 ** (r.truth(t).level_dbfs / 10)))
+        assert _rms_dbfs(x[seg]) == pytest.approx(want, abs=0.05)
+    rise = _rms_dbfs(x[int(1.8 * sr) : int(2.0 * sr)]) - _rms_dbfs(x[int(0.2 * sr) : int(0.4 * sr)])
+    assert rise == pytest.approx(10.0 * 1.6 / 2.2, abs=0.1)
+    phase = np.unwrap(np.angle(scipy.signal.hilbert(x)))
+    inst_hz = np.diff(phase) * sr / (2 * np.pi)
+    sl = slice(int(0.3 * sr), int(1.9 * sr))
+    truth = r.truth((np.arange(inst_hz.size)[sl] + 0.5) / sr).sounding_f0_hz
+    assert np.max(np.abs(1200 * np.log2(inst_hz[sl] / truth))) < 0.05
