@@ -25,7 +25,7 @@ segment 4 (the ~11 ms after it), ``after`` = the loudest of segments 5-7.
 2. **Free decay** (a stop into a wet room, whose step is small): ``at`` is ``DECAY_DB``
    (3 dB) or more under ``peak`` (the highest ``pre`` of the note, allowed to fall
    ``PEAK_FALL_DB_PER_S``, 30 dB/s, faster than any diminuendo) while the least-squares
-   slope of segments 2-7 is ``DECAY_SLOPE_DB_PER_S`` (100 dB/s: 60 dB / 0.6 s) or steeper,
+   slope of segments 2-7 is ``DECAY_SLOPE_DB_PER_S`` (60 dB/s: a T60 of 1 s) or steeper,
    in both level sets, and ``kept_db <= -KEPT_DECAY_DB`` (0.5 dB).
 3. After either, this frame and those that follow are unvoiced (the *ended* state) until
    one of: ``at`` rises ``BACK_RISE_DB`` (3 dB) over its lowest since the end *and* is back
@@ -85,8 +85,9 @@ STOP_AFTER_DB = 3.5
 """Fall of the loudest of the newest three segments under the same, dB (rule 1)."""
 DECAY_DB = 3.0
 """Fall of the level at the centre under the note's peak, dB (rule 2)."""
-DECAY_SLOPE_DB_PER_S = 100.0
-"""Slope of a free decay over the newer 3/4 window, dB/s (rule 2): 60 dB / 0.6 s."""
+DECAY_SLOPE_DB_PER_S = 60.0
+"""Slope of a free decay over the newer 3/4 window, dB/s (rule 2): 60 dB / T60 for T60 <= 1 s; a
+diminuendo (10-20 dB/s) is far slower."""
 PEAK_FALL_DB_PER_S = 30.0
 """Fastest fall the note's peak follows, dB/s: over a 10-20 dB-per-second diminuendo."""
 BACK_RISE_DB = 3.0
@@ -98,7 +99,8 @@ FRESH_RISE_DB = 6.0
 KEPT_DB = 1.0
 """Every harmonic of the note must have fallen at least this far in the newest half window, dB."""
 KEPT_DECAY_DB = 0.5
-"""The same for a free decay (rule 2), dB: at 100 dB/s the newest half reads ~1-2 dB under the whole."""
+"""The same for a free decay (rule 2), dB (a decaying harmonic reads its newest half under the
+whole window; a held one, ~0 dB)."""
 STEADY_DB = 3.0
 """Spread of the window's segment levels under which a tone is steady, not a tail, dB: a
 free decay falls 60 dB / T60, >= 6.4 dB over the window for T60 <= 0.8 s."""

@@ -255,10 +255,10 @@ SEEDS = range(1000, 1010)  # ten of the tuning seeds per kind of scene (~15 s in
 #   notes in room    99.87 % (was 99.98)    1.44 % (was 53.0)
 #   diminuendo       99.82 % (100.0)        2.17 % (58.3)
 #   soft notes       99.62 % (99.97)        2.83 % (43.9)
-#   staccato         95.37 % (100.0)       19.7 %  (95.9)
-#   slurred steps    99.18 % (99.48)        2.07 % (43.4)
-#   level dips       97.21 % (99.87)        5.88 % (49.1)
-#   handling noise       -                  0.74 % (13.5)
+#   staccato         94.87 % (100.0)       18.1 %  (95.9)
+#   slurred steps    99.18 % (99.48)        1.54 % (43.4)
+#   level dips       96.90 % (99.87)        4.81 % (49.1)
+#   handling noise       -                  0.72 % (13.5)
 # The rooms here are harsher than the field set of issue #12 (its tails: 7.8 % before): the
 # reverberant tail reaches 0 dB re the direct sound and the room noise is quiet (-78..-68
 # dBFS), so a tail stays periodic for up to ~1 s. Where a tail is as loud as the direct
