@@ -48,6 +48,7 @@ _N_DIVISORS = 4
 _MAX_MATCH_HARMONIC = 24
 _MATCH_TOLERANCE = 0.015  # share of the candidate f0 a peak may sit off its harmonic (26 cents at H1)
 _EMPTY_PENALTY = 0.35
+_LOWEST_HARMONIC = 2  # a candidate's lowest harmonic among the peaks is at most its 2nd
 _CLEAN_BELOW_BINS = 12.0  # harmonic spacing (bins) under which leakage is modelled
 _CENTS_PER_LN = 1200.0 / math.log(2.0)
 _REASSIGN_VAR = 0.5
@@ -179,15 +180,26 @@ def coarse_f0(freq: _FloatArray, power: _FloatArray, count: int, fmin_hz: float,
                 continue
             on = 0.0
             n_match = 0
+            slots = np.int64(0)  # harmonic slots holding a peak, one bit each
             top_h = 0.0
+            low_h = np.inf
             for i in range(count):
                 ratio = freq[i] / cand
                 h = np.rint(ratio)
                 if 1.0 <= h <= _MAX_MATCH_HARMONIC and abs(ratio - h) <= _MATCH_TOLERANCE:
                     on += power[i]
-                    n_match += 1
+                    bit = np.int64(1) << np.int64(h)
+                    if not (slots & bit):  # a slot counts once, however many peaks it holds
+                        slots |= bit
+                        n_match += 1
                     if h > top_h:  # noqa: PLR1730  numba kernel: kept as written
                         top_h = h
+                    if h < low_h:  # noqa: PLR1730  numba kernel: kept as written
+                        low_h = h
+            if low_h > _LOWEST_HARMONIC:
+                # neither its fundamental nor its octave among the peaks: no sounding note of
+                # an open pipe, but the common sub-multiple of two notes overlapping in a room
+                continue
             explained = on / total
             score = explained - _EMPTY_PENALTY * (1.0 - n_match / max(top_h, 1.0))
             if score > best_score:
