@@ -48,6 +48,9 @@ _N_DIVISORS = 4
 _MAX_MATCH_HARMONIC = 24
 _MATCH_TOLERANCE = 0.015  # share of the candidate f0 a peak may sit off its harmonic (26 cents at H1)
 _EMPTY_PENALTY = 0.35
+_SLOT_RANGE_DB = 30.0
+"""Peaks within this of the strongest fill harmonic slots (a duct flute's 6th harmonic lies
+~30 dB under the fundamental: :func:`dsp.synth.register_profile_db`, common practice)."""
 _LOWEST_HARMONIC = 2  # a candidate's lowest harmonic among the peaks is at most its 2nd
 _CLEAN_BELOW_BINS = 12.0  # harmonic spacing (bins) under which leakage is modelled
 _CENTS_PER_LN = 1200.0 / math.log(2.0)
@@ -166,10 +169,15 @@ def coarse_f0(freq: _FloatArray, power: _FloatArray, count: int, fmin_hz: float,
     440.0
     """
     total = 0.0
+    strongest = 0.0
     for i in range(count):
         total += power[i]
+        strongest = max(strongest, power[i])
     if total <= 0.0:
         total = 1.0
+    # peaks this far under the strongest explain energy but fill no slot (a weak high
+    # harmonic or a noise maximum would otherwise stretch a candidate's slots to it)
+    slot_min = strongest * 10.0 ** (-_SLOT_RANGE_DB / 10.0)
     best_score = -np.inf
     best_f0 = np.nan
     best_explained = 0.0
@@ -188,6 +196,8 @@ def coarse_f0(freq: _FloatArray, power: _FloatArray, count: int, fmin_hz: float,
                 h = np.rint(ratio)
                 if 1.0 <= h <= _MAX_MATCH_HARMONIC and abs(ratio - h) <= _MATCH_TOLERANCE:
                     on += power[i]
+                    if power[i] < slot_min:
+                        continue
                     bit = np.int64(1) << np.int64(h)
                     if not (slots & bit):  # a slot counts once, however many peaks it holds
                         slots |= bit
