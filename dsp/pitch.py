@@ -66,6 +66,10 @@ _SPREAD_MARGIN = 2.0
 here (0, 1, 2, 3 tried) on the constructed vibrato notes, dry (strong vibrato 10-40 c at 4-7
 Hz: p95 0.74 -> 0.46 c, 0.42 c without the spread) and in rooms (p95 3.37 -> 3.49 c, 9.3 c
 without)."""
+_SPREAD_FLOOR_HZ = 3000.0
+"""Harmonics above this (Hz) have a floor of ``_SPREAD_FLOOR_CENTS`` times their frequency over
+it: tuned here (2, 3 kHz and none tried) on the constructed notes (strong dry vibrato p95
+0.46 -> 0.43 c; room 3.49 -> 3.52 c)."""
 _SPREAD_SNR_DB = 20.0
 """Harmonics this far over the floor (power, dB) judge the spread and, once there is one,
 alone make the fit (noise maxima reach ~10 dB; :data:`dsp.measure.PEAK_SNR_MIN_DB` is the
@@ -404,21 +408,27 @@ def refine_f0(
     for h in range(n_h):
         if used[h] and weight[h] >= strong_snr:
             strong[h] = True
+            # a vibrato's excursion in Hz grows with the harmonic, and with it what the
+            # smooth-chirp correction leaves: the floor grows above _SPREAD_FLOOR_HZ
+            grow = max(1.0, (h + 1.0) * coarse_hz / _SPREAD_FLOOR_HZ)
+            floor2 = floor_hz * floor_hz * grow * grow
             if narrow:
                 z[h] = y[h] + g * (y_narrow[h] - y[h])
-                var_z[h] = _CORRECTED_VAR_RATIO * var[h] + floor_hz * floor_hz
+                var_z[h] = _CORRECTED_VAR_RATIO * var[h] + floor2
             else:
                 z[h] = y[h]
-                var_z[h] = var[h] + floor_hz * floor_hz
+                var_z[h] = var[h] + floor2
     spread = _between_harmonic_var(z, var_z, strong)
     num = 0.0
     num_narrow = 0.0
     den = 0.0
+    noise_den = 0.0  # sum u^2 var: the noise variance of the weighted mean is noise_den / den^2
     for h in range(n_h):
         if used[h] and (strong[h] or spread == 0.0):  # the weak ones only where all agree
             u = 1.0 / (var[h] + spread)
             num += u * y[h]
             den += u
+            noise_den += u * u * var[h]
             if narrow:
                 num_narrow += u * y_narrow[h]
     f0 = num / den
@@ -426,9 +436,9 @@ def refine_f0(
         f0_narrow = num_narrow / den
         d = 1200.0 * math.log2(f0_narrow / f0)  # cents
         # shrunk where noise alone explains the difference, full above; the noise of d
-        # scales as the fit's standard error, 1 / sqrt(sum u) Hz (= 1 / sqrt(sum w k^2)
-        # bins when the harmonics agree within their noise)
-        tau = curvature_noise * _CENTS_PER_LN * math.sqrt(1.0 / (_REASSIGN_VAR * den)) / f0
+        # scales as the fit's standard error from noise, sqrt(sum u^2 var) / sum u Hz
+        # (= 1 / sqrt(sum w k^2) bins when the harmonics agree within their noise)
+        tau = curvature_noise * _CENTS_PER_LN * math.sqrt(noise_den / _REASSIGN_VAR) / den / f0
         d2 = d * d
         f0 = f0 * 2.0 ** ((1.0 + curvature_gain) * d * d2 / (d2 + tau * tau + 1e-300) / 1200.0)
     best_snr_db = 10.0 * math.log10(top_w) if top_w > 0.0 else -np.inf
