@@ -8,7 +8,11 @@ harmonic slots (up to the highest matched one) left empty. The penalty guards ag
 octave errors both ways: a sub-octave explains the same peaks but leaves its odd slots
 empty (downward error; decisive for high notes with only two or three partials), while the
 octave above cannot explain the odd harmonics of a note whose fundamental is weaker than
-its 2nd harmonic (upward error).
+its 2nd harmonic (upward error). A slot counts once however many peaks it holds (a room or
+a vibrato can split a partial in two), only peaks within 30 dB of the strongest fill slots
+(a stray weak peak high up would stretch the true note's slots), and a candidate with
+neither its 1st nor its 2nd harmonic filled is no note (two notes overlapping in a room
+share a sub-multiple that explains both).
 
 Refinement: each harmonic ``k`` of the coarse candidate gives a frequency ``f_k``,
 reassigned under a Hann^2 window (Auger & Flandrin 1995; the Hann^2 derivative window is
@@ -21,6 +25,14 @@ of e.g. Christensen & Jakobsson, *Multi-Pitch Estimation*, Morgan & Claypool 200
 from memory). For low notes (harmonics closer than 12 bins) the leakage of the two
 neighbours on each side and of the negative-frequency images is first subtracted with the
 exact Dirichlet kernel (two passes), which removes the interference bias that limits them.
+
+Where the harmonics disagree beyond their noise, the errors are not noise alone: a
+reverberant room lays its tail on each harmonic with its own phase, and under a vibrato
+the tail holds past frequencies that pull each harmonic's reading its own way (by several
+cents at a direct-to-reverberant ratio of 6 dB). The fit then takes a random-effects
+model (DerSimonian & Laird 1986): each harmonic's reading of f0 has its noise variance
+plus a common spread, estimated from the disagreement, so that the strong harmonics count
+more equally in cents instead of the fundamental alone.
 """
 
 from __future__ import annotations
@@ -310,7 +322,10 @@ def refine_f0(
     curvature_noise: float,
 ) -> tuple[float, float]:
     """Refined fundamental (Hz, nan if no harmonic was usable) and the SNR of the strongest
-    fitted harmonic (dB, -inf if none), by weighted least squares over reassigned harmonics.
+    fitted harmonic (dB, -inf if none), by weighted least squares over reassigned harmonics,
+    each harmonic weighted by its noise variance plus the harmonics' spread beyond noise
+    (:func:`_between_harmonic_var`; where there is a spread, only harmonics 20 dB over the
+    floor enter).
 
     Harmonics ``k = 1 .. amp_out.size`` of ``coarse_hz`` up to ``limit_hz`` are sought within
     +-2 bins (the Hann main lobe) of their expected bin; those ``snr_db`` over the floor, at
@@ -326,7 +341,7 @@ def refine_f0(
     k_narrow)``) is the pitch at the window centre. The step is shrunk, as
     ``d^2 / (d^2 + tau^2)``, where ``d`` is within noise: ``tau = curvature_noise`` fit
     standard errors (``1 / sqrt(sum w k^2)`` bins), so a steady note in noise keeps its
-    wide-window reading.
+    wide-window reading (the noise of the weighted mean alone, not the spread).
     """
     n_h = amp_out.size
     n_bins = power.size
