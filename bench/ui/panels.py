@@ -51,6 +51,8 @@ class SessionBar(LineView):
     """The engine's last word on why input stopped or failed ("" while all is well)."""
     clock_ppm: reactive[float | None] = reactive(None)
     """The input clock's error taken out of every reading, ppm; None when not calibrated."""
+    tone: reactive[str] = reactive("")
+    """The reference tone, e.g. "tone A4 440.00 Hz -18 dB" ("" while it is off)."""
 
     def render(self) -> Text:
         # Short, vital items first (state, level, drops, log); the long source description
@@ -103,6 +105,9 @@ class SessionBar(LineView):
         if self.clock_ppm is not None:
             text.append("  clock ", label)
             text.append(f"{self.clock_ppm:+.1f} ppm", value)
+        if self.tone:
+            text.append("  ")
+            text.append(self.tone, on)
         if self.analysis_load_pct is not None:
             # near a whole core, input will soon be dropped
             text.append("  dsp ", label)
