@@ -7,7 +7,8 @@ callback, never the input's), the target frequency of:
 
 1. the note the target is locked to, when one is locked (at once);
 2. otherwise the *home* note it was started with (``bench run --drone NOTE``), when it has one;
-3. otherwise the nearest note sounding, held as follows (chosen for a player tuning by ear):
+3. otherwise the nearest note sounding, held as follows (chosen for a player tuning by ear;
+   released from a lock, the tone stays on the locked note until another holds):
 
    - the tone stays on its note through silences of any length (unvoiced readings change
      nothing), so it does not drop out between breaths;
@@ -128,15 +129,16 @@ class ToneState:
     timbre: Timbre
     paused: bool = False
 
-    def describe(self) -> str:
-        """``tone A4 440.00 Hz -18 dB`` (short; '' when off)."""
+    def describe(self, *, short: bool = False) -> str:
+        """``tone A4 440.00 Hz -18 dB`` (``short``: ``tone A4 -18 dB``); '' when off."""
         if not self.on:
             return ""
         if self.paused:
             return "tone paused"
         if self.note is None or self.freq_hz is None:
             return f"tone waits {self.level_dbfs:.0f} dB"
-        return f"tone {self.note} {self.freq_hz:.2f} Hz {self.level_dbfs:.0f} dB"
+        hz = "" if short else f" {self.freq_hz:.2f} Hz"
+        return f"tone {self.note}{hz} {self.level_dbfs:.0f} dB"
 
 
 class ReferenceTone:
@@ -273,14 +275,16 @@ class ReferenceTone:
     def follow(self, settings: TuningSettings, locked_midi: int | None) -> None:
         """The settings or the lock changed by a key: move the tone at once."""
         with self._lock:
-            self._settings, self._locked = settings, locked_midi
+            self._settings = settings
+            self._set_lock(locked_midi)
             self._retarget()
 
     def take(self, reading: Reading) -> None:
         """The engine's consumer call (engine thread): follow the reading's lock, settings and note."""
         after = None
         with self._lock:
-            self._settings, self._locked = reading.settings, reading.locked_midi
+            self._settings = reading.settings
+            self._set_lock(reading.locked_midi)
             time_s = reading.stream_time_s
             self._last_time_s = time_s
             mapping = reading.mapping
@@ -337,6 +341,11 @@ class ReferenceTone:
             return ToneState(self.on, note, hz, self.level_dbfs, self.timbre, self._paused)
 
     # -- internals -------------------------------------------------------------------------
+
+    def _set_lock(self, locked_midi: int | None) -> None:
+        if locked_midi is None and self._locked is not None and self.home is None:
+            self._current, self._candidate = self._locked, None  # released: the note goes on till another holds
+        self._locked = locked_midi
 
     def _current_target(self) -> int | None:
         if self._locked is not None:

@@ -526,7 +526,8 @@ class BenchApp(App[int]):
         bar = self._view(SessionBar)
         bar.source = stats.source
         bar.clock_ppm = self.engine.clock_ppm
-        bar.tone = self.session.tone_state.describe()
+        tone = self.session.tone_state
+        bar.tone, bar.tone_short = tone.describe(), tone.describe(short=True)
         bar.state = stats.state
         bar.dropped_blocks = stats.dropped_blocks
         bar.analysis_load_pct = self._analysis_load_pct(stats.cpu_s)
