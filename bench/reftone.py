@@ -120,6 +120,8 @@ class ToneState:
     timbre : "sine" or "reed"
     paused : bool
         Paused for a capture.
+    no_output : bool
+        The last start found no output to play on (the session line says so until the next).
     """
 
     on: bool
@@ -128,11 +130,12 @@ class ToneState:
     level_dbfs: float
     timbre: Timbre
     paused: bool = False
+    no_output: bool = False
 
     def describe(self, *, short: bool = False) -> str:
         """``tone A4 440.00 Hz -18 dB`` (``short``: ``tone A4 -18 dB``); '' when off."""
         if not self.on:
-            return ""
+            return "tone: no output" if self.no_output else ""
         if self.paused:
             return "tone paused"
         if self.note is None or self.freq_hz is None:
@@ -188,6 +191,7 @@ class ReferenceTone:
         self._after_pause: Callable[[], None] | None = None
         self._paused = False
         self._hz_sent: float | None = None
+        self._no_output = False
 
     # -- keys ----------------------------------------------------------------------------------
 
@@ -200,6 +204,7 @@ class ReferenceTone:
                 self._retarget()
                 return
             self.on = True
+            self._no_output = False
             self._retarget()
             if self._player is None and not self._opening:
                 self._opening = True
@@ -214,7 +219,7 @@ class ReferenceTone:
             player, name, ppm = self._opener(freq_hz, self.level_dbfs, self.timbre)
         except BenchError as exc:
             with self._lock:
-                self._opening, self.on = False, False
+                self._opening, self.on, self._no_output = False, False, True
             self._report(f"reference tone off: {exc}", "error")
             return
         with self._lock:
@@ -338,7 +343,7 @@ class ReferenceTone:
             midi = self._current_target()
             hz = self._target_hz()
             note = None if midi is None else note_name(midi, flats=self._settings.flats)
-            return ToneState(self.on, note, hz, self.level_dbfs, self.timbre, self._paused)
+            return ToneState(self.on, note, hz, self.level_dbfs, self.timbre, self._paused, self._no_output)
 
     # -- internals -------------------------------------------------------------------------
 

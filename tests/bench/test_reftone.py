@@ -135,7 +135,7 @@ def test_without_an_output_the_tone_key_says_so_in_one_line(tmp_path):
     assert c.toggle_tone() is None  # the line comes through on_tone
     assert len(told) == 1 and told[0].severity == "error" and "no audio output device" in told[0].text
     assert not c.tone.on and c.tone not in engine.consumers
-    assert c.tone_state.describe() == ""
+    assert c.tone_state.describe() == "tone: no output"
 
 
 def test_nearest_note_held_through_silence_and_blips_and_moved_after_a_quarter_second(tmp_path):
