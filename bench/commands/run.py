@@ -55,6 +55,8 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
         src.add_argument("--block", default=None, metavar="N", help="samples per input block (default 512)")
         src.add_argument("--drone", default=None, metavar="NOTE",
                          help="sound NOTE's target through the default output from the start (see 'bench tone')")  # fmt: skip
+        src.add_argument("--drone-level-db", default=None, metavar="DBFS",
+                         help="peak level of the drone, dBFS (default -18; the . and , keys change it)")  # fmt: skip
         src.add_argument("--clock-ppm", default=None, metavar="PPM",
                          help="the input's clock error, ppm (default: what 'bench calibrate' stored for the device)")  # fmt: skip
         log = p.add_argument_group("session log")
@@ -197,6 +199,9 @@ def run_command(args: argparse.Namespace) -> int:
         from bench.tuning.notes import parse_note
 
         parse_note(args.drone)  # a bad name: one line, before any output opens
+    from bench.numbers import parse_bounded
+
+    args.drone_level_db = parse_bounded("--drone-level-db", args.drone_level_db, "a peak level in dBFS, e.g. -18", -80.0, 0.0)
     if args.no_ui:
         from bench import unattended
 
@@ -216,7 +221,7 @@ def run_command(args: argparse.Namespace) -> int:
     return _run_screen(args, source, settings, log_path, log_rate, notice)
 
 
-def _start_drone(note: str | None, settings: TuningSettings) -> Any:
+def _start_drone(note: str | None, settings: TuningSettings, level_dbfs: float | None = None) -> Any:
     """``--drone NOTE`` without the screen: the session's reference tone (:class:`bench.reftone.ReferenceTone`,
     as the screen's controller owns it) on NOTE while none is locked; None without a note or
     without an output (said in one line: the run goes on without the drone)."""
@@ -229,6 +234,8 @@ def _start_drone(note: str | None, settings: TuningSettings) -> Any:
         _say(f"warning: {text}" if severity == "error" else text)
 
     tone = ReferenceTone(settings, report=report, background=False)  # opened before the input
+    if level_dbfs is not None:
+        tone.level_dbfs = level_dbfs
     tone.start(parse_note(note))
     if not tone.on:
         return None
@@ -371,6 +378,7 @@ def _run_screen(
             profile=args.profile,
             label=args.label,
             tone_note=args.drone,  # the controller sounds it, as the tone key does
+            tone_level_dbfs=args.drone_level_db,
         )
     finally:
         if follower is not None:
@@ -399,7 +407,7 @@ def _run_unattended(
     # captures written beside the frame log (as on the screen)
     held_notes = HeldNoteCollector(on_note=lambda note: lines.put(("out", note.describe())))
     workflow = LiveWorkflow(profile=args.profile, log_path=None, label=args.label or "", clock_ppm=args.clock_ppm)
-    drone = _start_drone(args.drone, settings)  # its own output stream and callback
+    drone = _start_drone(args.drone, settings, args.drone_level_db)  # its own output stream and callback
     if drone is not None:
         workflow.hold_auto(True)  # no capture is measured with the tone in it
 

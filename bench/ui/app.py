@@ -217,6 +217,8 @@ class BenchApp(App[int]):
         (``bench run --drone NOTE``).
     tone_opener : callable, optional
         Opens the reference tone's output (the tests give a stand-in); the default output if None.
+    tone_level_dbfs : float, optional
+        Its starting peak level, dBFS (``--drone-level-db``); -18 if None.
 
     Raises
     ------
@@ -288,6 +290,7 @@ class BenchApp(App[int]):
         label: str = "",
         tone_note: str | None = None,
         tone_opener: Any = None,
+        tone_level_dbfs: float | None = None,
     ) -> None:
         super().__init__()
         if not poll_hz > 0:
@@ -328,6 +331,8 @@ class BenchApp(App[int]):
             tone_opener=tone_opener,
         )
         self.tone_note = tone_note
+        if tone_level_dbfs is not None:
+            self.session.tone.level_dbfs = float(tone_level_dbfs)
         """What the keys do to the session (settings, lock, log, label, captures): no Textual in it."""
         self.chart: TuningChart | None = None
         """Tuning chart of the captures so far."""
@@ -1069,6 +1074,7 @@ def run_app(
     profile: InstrumentProfile | str | None = None,
     label: str = "",
     tone_note: str | None = None,
+    tone_level_dbfs: float | None = None,
 ) -> int:
     """Show the bench screen until the user quits; start and stop the engine.
 
@@ -1108,6 +1114,8 @@ def run_app(
         Label of the first captures.
     tone_note : str, optional
         Sound the reference tone from the start on this note (``--drone``).
+    tone_level_dbfs : float, optional
+        Its peak level, dBFS (``--drone-level-db``).
 
     Returns
     -------
@@ -1135,6 +1143,7 @@ def run_app(
         profile=profile,
         label=label,
         tone_note=tone_note,
+        tone_level_dbfs=tone_level_dbfs,
     )
     try:
         code = app.run()

@@ -631,6 +631,11 @@ class CaptureDetector:
         self._track_break(p)
         return result
 
+    def forget_note_so_far(self) -> None:
+        """Leave the readings of the held note so far out of its automatic capture (they
+        were taken with the reference tone sounding); the rest of the note still counts."""
+        self._note.clear()
+
     def finish(self) -> Capture | None:
         """End of the stream: close the current held note; return its capture if any."""
         self._held.finish()

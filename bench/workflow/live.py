@@ -126,9 +126,12 @@ class LiveWorkflow:
 
     def hold_auto(self, held: bool) -> None:
         """Hold automatic captures back (True: while the reference tone sounds, a settled note
-        would be measured with the tone in it) or let them be taken again; :attr:`auto` keeps
+        would be measured with the tone in it) or let them be taken again (the readings of
+        the note held at that moment so far are left out of its capture); :attr:`auto` keeps
         what the person chose."""
         with self._lock:
+            if self._auto_held and not held:  # the note held now was heard with the tone in it
+                self._detector.forget_note_so_far()
             self._auto_held = bool(held)
             self._detector.auto = self._auto_wanted and not self._auto_held
 
