@@ -216,3 +216,23 @@ def test_reference_tone_closes_with_the_engine():
     tone.start(69)
     tone.close()  # the engine stopped and closed its consumers
     assert out.stopped == 1 and not tone.on
+
+
+def test_a_note_held_while_the_tone_sounded_is_not_captured_when_it_stops(tmp_path):
+    # the note's readings from before the tone stopped hold the tone: only what follows counts
+    # (0.2 s here, under the 0.3 s a capture needs), and the next note is captured as usual
+    out, told = Output(), []
+    c, engine = _controller(tmp_path, out, told)
+    c.start_workflow()
+    assert c.workflow is not None
+    c.lock(69)
+    c.toggle_tone()
+    engine.play(A4_HZ, 1.0)
+    c.toggle_tone()  # off while the note goes on
+    engine.play(A4_HZ, 0.2)
+    engine.play(None, 0.5)
+    assert c.workflow.captures() == []
+    engine.play(A4_HZ, 1.0)
+    engine.play(None, 0.5)
+    caps = c.workflow.captures()
+    assert len(caps) == 1 and caps[0].source == "auto" and caps[0].cents_raw == pytest.approx(0.0, abs=1e-6)
