@@ -236,7 +236,7 @@ class ReferenceTone:
             stop.stop()
             return
         clock = f", output clock {ppm:+.2f} ppm taken out" if ppm is not None else ""
-        self._report(f"reference tone on {name}{clock}; keep it 20 dB under the instrument at the mic", "information")
+        self._report(f"tone on: keep it 20 dB under the instrument at the mic; output {name}{clock}", "information")
 
     def stop(self) -> None:
         """Silence the tone and close its output."""

@@ -117,7 +117,7 @@ def test_the_tone_key_sounds_the_locked_note_and_follows_lock_and_standard(tmp_p
     assert said is not None and "F4 349.23 Hz" in said.text
     assert out.generator is not None and _sounding(out.generator)
     assert out.generator.freq_hz == pytest.approx(F4_HZ, abs=5e-5)
-    assert any("reference tone on test output" in n.text for n in told)
+    assert any("tone on: keep it 20 dB under the instrument at the mic; output test output" in n.text for n in told)
     assert c.tone in engine.consumers  # fed the engine's readings
     c.lock(67)  # G4: the tone moves at once, without waiting for a reading
     assert out.generator.freq_hz == pytest.approx(G4_HZ, abs=5e-5)
