@@ -109,7 +109,7 @@ def analyse_file(
             side.unlink()  # a link goes, never the file it points to
     held = HeldNoteCollector()
     counter = _FrameCounter()
-    workflow = LiveWorkflow(profile=profile, log_path=None, label=label) if csv_path is not None else None
+    workflow = LiveWorkflow(profile=profile, log_path=None, label=label, clock_ppm=clock_ppm) if csv_path is not None else None
     consumers: list[ReadingConsumer] = [held, counter]
     if workflow is not None:
         consumers.append(workflow)

@@ -6,7 +6,11 @@ which turns it into engine commands (:meth:`bench.engine.Engine.update_settings`
 requests, and answers with a :class:`Notice` -- one line for the person, with its severity --
 or None when there is nothing to say. Nothing here imports textual; the tests drive it
 directly. The controller owns the session workflow (captures, label, blowing curve) and
-attaches it to the engine as a consumer, so captures are taken on the engine thread.
+attaches it to the engine as a consumer, so captures are taken on the engine thread. It owns
+the reference tone too (:class:`bench.reftone.ReferenceTone`): it starts and stops it, sets
+its level and voice, feeds it the engine's readings (a consumer, like the workflow) and moves
+it at once when a key changes the lock or the settings; while it sounds, automatic captures
+wait and the capture key pauses it for the capture.
 """
 
 from __future__ import annotations
@@ -20,6 +24,7 @@ from bench.engine import Engine
 from bench.errors import BenchError, SettingsError
 from bench.numbers import parse_number
 from bench.reading import Reading
+from bench.reftone import LEVEL_STEP_DB, Opener, ReferenceTone, ToneState
 from bench.tuning import TuningSettings
 from bench.tuning.air import check_temp
 from bench.tuning.notes import (
@@ -102,6 +107,13 @@ class SessionController:
         Called on the engine thread with each new or updated capture.
     on_refusal : callable(str), optional
         Called on the engine thread when a requested capture could not be taken.
+    on_tone : callable(Notice), optional
+        Called from any thread with what the reference tone has to say after a key has
+        returned (its output opened, or there is none); unheard without it.
+    tone_opener : callable, optional
+        Opens the tone's output (:func:`bench.reftone.open_default_output` by default).
+    tone_background : bool
+        Open the tone's output in a thread of its own (the screen never waits on it).
     """
 
     def __init__(
@@ -115,6 +127,9 @@ class SessionController:
         temp_followed: bool = False,
         on_capture: Callable[[Capture], None] | None = None,
         on_refusal: Callable[[str], None] | None = None,
+        on_tone: Callable[[Notice], None] | None = None,
+        tone_opener: Opener | None = None,
+        tone_background: bool = True,
     ) -> None:
         self.engine = engine
         self.log_dir = Path(log_dir)
@@ -127,6 +142,12 @@ class SessionController:
         self._on_refusal = on_refusal
         self.workflow: LiveWorkflow | None = None
         """Captures, chart and blowing curve of the session (built by :meth:`start_workflow`)."""
+        self._on_tone = on_tone
+        self.tone = ReferenceTone(
+            engine.settings, report=self._tone_report, opener=tone_opener, background=tone_background
+        )
+        """The reference tone (off until :meth:`toggle_tone` or :meth:`start_tone`)."""
+        self._tone_attached = False
 
     # -- life cycle -------------------------------------------------------------------------
 
@@ -140,6 +161,7 @@ class SessionController:
             workflow = self._new_workflow(None)
             workflow.file_error = str(exc)
             problem = Notice(f"captures kept in memory only: {exc}", "error")
+        workflow.hold_auto(self.tone.on)
         self.workflow = workflow
         self.engine.add_consumer(workflow)
         return problem
@@ -152,6 +174,7 @@ class SessionController:
             auto=True,
             on_capture=self._on_capture,
             on_refusal=self._on_refusal,
+            clock_ppm=getattr(self.engine, "clock_ppm", None),
         )
 
     def close_workflow(self) -> None:
@@ -180,6 +203,7 @@ class SessionController:
             new = self.engine.update_settings(**changes)
         except (BenchError, ValueError, TypeError) as exc:
             return Notice(str(exc), "error")
+        self.tone.follow(new, self.engine.locked_midi)
         if self._remember is not None:
             try:
                 self._remember(new)
@@ -289,6 +313,7 @@ class SessionController:
             self.engine.lock(midi)
         except (BenchError, ValueError) as exc:
             return Notice(str(exc), "error")
+        self.tone.follow(self.engine.settings, midi)
         if midi is not None:
             return Notice(f"target locked to {self.locked_note}: every reading is judged against it", "information")
         return Notice("lock released: the target follows the nearest note", "information")
@@ -324,6 +349,8 @@ class SessionController:
         if workflow is None:
             return None
         if self.engine.running:
+            if self.tone.pause_for_capture(workflow.request_capture):
+                return Notice("tone paused for the capture: it sounds again in about a second")
             workflow.request_capture()
             return None
         if workflow.capture_now() is None:
@@ -349,3 +376,83 @@ class SessionController:
         if self.workflow is not None:
             self.workflow.label = label
         return Notice(f"next captures labelled {label!r}" if label else "next captures carry no label")
+
+    # -- reference tone -----------------------------------------------------------------------
+
+    @property
+    def tone_state(self) -> ToneState:
+        """What the reference tone is doing (for the screen)."""
+        return self.tone.state
+
+    def _tone_report(self, text: str, severity: str) -> None:
+        if severity == "error":
+            self._tone_changed(False)
+        if self._on_tone is not None:
+            self._on_tone(Notice(text, "error" if severity == "error" else "information"))
+
+    def _tone_changed(self, on: bool) -> None:
+        """Attach the tone to the engine's readings (or detach it) and hold automatic captures
+        back while it sounds."""
+        if on and not self._tone_attached:
+            self.engine.add_consumer(self.tone)
+            self._tone_attached = True
+        elif not on and self._tone_attached:
+            self.engine.remove_consumer(self.tone)
+            self._tone_attached = False
+        if self.workflow is not None:
+            self.workflow.hold_auto(on)
+
+    def start_tone(self, note: str | None = None) -> Notice | None:
+        """Sound the target (``note``: a drone's own note, sounded while none is locked, as
+        ``bench run --drone NOTE``); a bad note name is one error line."""
+        home = None
+        if note is not None:
+            try:
+                home = parse_note(note)
+            except SettingsError as exc:
+                return Notice(str(exc), "error")
+        self.tone.follow(self.engine.settings, self.engine.locked_midi)
+        self._tone_changed(True)
+        self.tone.start(home)
+        if not self.tone.on:  # the output could not open (told through on_tone)
+            return None
+        return Notice(self._tone_words("reference tone ON"))
+
+    def toggle_tone(self) -> Notice | None:
+        """The tone key: the target sounds, or stops."""
+        if self.tone.on:
+            self.tone.stop()
+            self._tone_changed(False)
+            return Notice("reference tone OFF")
+        return self.start_tone()
+
+    def _tone_words(self, head: str) -> str:
+        state = self.tone.state
+        if state.note is None:
+            what = "waits for a note (play one, or lock one with l or n)"
+        else:
+            what = f"{state.note} {state.freq_hz:.2f} Hz"
+        auto = "; automatic capture waits while it sounds" if self.workflow is not None and self.workflow.auto else ""
+        return f"{head}: {what}, {state.timbre}, {state.level_dbfs:.0f} dBFS{auto}"
+
+    def step_tone_level(self, steps: int) -> Notice:
+        """The tone ``steps`` times :data:`bench.reftone.LEVEL_STEP_DB` louder (or softer)."""
+        before = self.tone.level_dbfs
+        level = self.tone.step_level(steps * LEVEL_STEP_DB)
+        if level == before:
+            end = "loudest" if steps > 0 else "softest"
+            return Notice(f"tone level {level:.0f} dBFS is the {end} it goes", "warning")
+        return Notice(f"tone level {level:.0f} dBFS")
+
+    def next_tone_timbre(self) -> Notice:
+        """Sine <-> soft reed-like tone."""
+        try:
+            timbre = self.tone.next_timbre()
+        except SettingsError as exc:
+            return Notice(str(exc), "error")
+        return Notice(f"tone voice: {'sine' if timbre == 'sine' else 'soft reed (harmonics 1-5)'}")
+
+    def close_tone(self) -> None:
+        """Stop the tone (the session ends); safe to call twice."""
+        self.tone.stop()
+        self._tone_changed(False)

@@ -55,6 +55,8 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
         src.add_argument("--block", default=None, metavar="N", help="samples per input block (default 512)")
         src.add_argument("--drone", default=None, metavar="NOTE",
                          help="sound NOTE's target through the default output from the start (see 'bench tone')")  # fmt: skip
+        src.add_argument("--drone-level-db", default=None, metavar="DBFS",
+                         help="peak level of the drone, dBFS (default -18; the . and , keys change it)")  # fmt: skip
         src.add_argument("--clock-ppm", default=None, metavar="PPM",
                          help="the input's clock error, ppm (default: what 'bench calibrate' stored for the device)")  # fmt: skip
         log = p.add_argument_group("session log")
@@ -193,8 +195,13 @@ def run_command(args: argparse.Namespace) -> int:
     source, notice = build_source(args, realtime_file=not args.no_ui)
     args.clock_ppm = _clock_ppm(args, source)
     log_path = _log_file(args)
-    from bench.commands.tone import start_drone
+    if args.drone is not None:
+        from bench.tuning.notes import parse_note
 
+        parse_note(args.drone)  # a bad name: one line, before any output opens
+    from bench.numbers import parse_bounded
+
+    args.drone_level_db = parse_bounded("--drone-level-db", args.drone_level_db, "a peak level in dBFS, e.g. -18", -80.0, 0.0)
     if args.no_ui:
         from bench import unattended
 
@@ -205,19 +212,36 @@ def run_command(args: argparse.Namespace) -> int:
         if problem is not None:
             _say(f"error: {problem}")
             return unattended.EXIT_LOG
-    drone = start_drone(args.drone, settings, report=_say)  # its own output stream; None without --drone
-    args.drone_player = drone  # _start_engine makes it follow the engine's target
-    try:
-        if args.no_ui:
-            origins = unattended.setting_origins(args, saved.from_file, saved.path)
-            _say(unattended.describe_origins(settings, origins, args.label))
-            return _run_unattended(args, source, settings, log_path, log_rate, duration_s, origins)
-        if saved.problems:
-            notice = "; ".join([*saved.problems, *([notice] if notice else [])])
-        return _run_screen(args, source, settings, log_path, log_rate, notice)
-    finally:
-        if drone is not None:
-            drone.stop()
+    if args.no_ui:
+        origins = unattended.setting_origins(args, saved.from_file, saved.path)
+        _say(unattended.describe_origins(settings, origins, args.label))
+        return _run_unattended(args, source, settings, log_path, log_rate, duration_s, origins)
+    if saved.problems:
+        notice = "; ".join([*saved.problems, *([notice] if notice else [])])
+    return _run_screen(args, source, settings, log_path, log_rate, notice)
+
+
+def _start_drone(note: str | None, settings: TuningSettings, level_dbfs: float | None = None) -> Any:
+    """``--drone NOTE`` without the screen: the session's reference tone (:class:`bench.reftone.ReferenceTone`,
+    as the screen's controller owns it) on NOTE while none is locked; None without a note or
+    without an output (said in one line: the run goes on without the drone)."""
+    if note is None:
+        return None
+    from bench.reftone import ReferenceTone
+    from bench.tuning.notes import parse_note
+
+    def report(text: str, severity: str) -> None:
+        _say(f"warning: {text}" if severity == "error" else text)
+
+    tone = ReferenceTone(settings, report=report, background=False)  # opened before the input
+    if level_dbfs is not None:
+        tone.level_dbfs = level_dbfs
+    tone.start(parse_note(note))
+    if not tone.on:
+        return None
+    state = tone.state
+    _say(f"drone: {state.note} {state.freq_hz or 0.0:.4f} Hz; automatic captures wait while it sounds")
+    return tone
 
 
 def _clock_ppm(args: argparse.Namespace, source: Any) -> float | None:
@@ -315,8 +339,6 @@ def _start_engine(
         engine = make(DemoSource(source.sample_rate, block_size=source.block_size, profile=args.profile))
         engine.start()
         return engine, f"{exc}; playing the demo instrument instead"
-    if getattr(args, "drone_player", None) is not None:
-        args.drone_player.follow(engine)
     return engine, None
 
 
@@ -355,6 +377,8 @@ def _run_screen(
             notice=notice,
             profile=args.profile,
             label=args.label,
+            tone_note=args.drone,  # the controller sounds it, as the tone key does
+            tone_level_dbfs=args.drone_level_db,
         )
     finally:
         if follower is not None:
@@ -382,7 +406,10 @@ def _run_unattended(
     # consumers of the engine's readings, fed on its thread: the held-note lines, and the
     # captures written beside the frame log (as on the screen)
     held_notes = HeldNoteCollector(on_note=lambda note: lines.put(("out", note.describe())))
-    workflow = LiveWorkflow(profile=args.profile, log_path=None, label=args.label or "")
+    workflow = LiveWorkflow(profile=args.profile, log_path=None, label=args.label or "", clock_ppm=args.clock_ppm)
+    drone = _start_drone(args.drone, settings, args.drone_level_db)  # its own output stream and callback
+    if drone is not None:
+        workflow.hold_auto(True)  # no capture is measured with the tone in it
 
     log_failed: list[str] = []
 
@@ -426,13 +453,15 @@ def _run_unattended(
                 log_path=log_path,
                 log_rows_per_s=log_rate,
                 on_event=on_event,
-                consumers=[held_notes, workflow],
+                consumers=[held_notes, workflow, *([drone] if drone is not None else [])],
                 clock_ppm=args.clock_ppm,
             ),
             source,
             args,
         )
     except DeviceError as exc:
+        if drone is not None:
+            drone.stop()
         _say(f"error: {exc}")
         return unattended.EXIT_INPUT
     record = (

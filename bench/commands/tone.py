@@ -4,13 +4,10 @@ from __future__ import annotations
 
 import argparse
 import sys
-import threading
-from collections.abc import Callable
 from typing import Any
 
 from bench.commands.options import add_tuning_options, settings_from_args
 from bench.numbers import parse_bounded
-from bench.tuning import TuningSettings
 
 
 def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
@@ -61,87 +58,6 @@ def _clock_for(device: Any, given: float | None) -> float | None:
         return given
     stored = find_calibration(device.name, device.host_api)  # the same card's input clock
     return stored.clock_ppm if stored is not None else None
-
-
-class Drone:
-    """``bench run --drone``: a started tone that follows the session's target.
-
-    :meth:`follow` keeps it on the note the engine is locked to (the drone's own note when
-    none), at that note's target under the settings in force, read from the engine every
-    0.1 s in a thread of its own; the output callback picks up a new frequency at its next
-    buffer, phase-continuous.
-    """
-
-    POLL_S = 0.1
-
-    def __init__(self, player: Any, midi: int, settings: TuningSettings, clock_ppm: float | None) -> None:
-        self.player = player
-        self.midi = midi
-        self.clock_factor = 1.0 + (clock_ppm or 0.0) * 1e-6
-        self.target_hz = self._target(midi, settings)
-        self._stop = threading.Event()
-        self._thread: threading.Thread | None = None
-
-    @staticmethod
-    def _target(midi: int, settings: TuningSettings) -> float:
-        from bench.tuning import target_hz_at_air
-
-        return target_hz_at_air(midi, settings)
-
-    def update_from(self, engine: Any) -> float:
-        """One step of following: set the tone to the engine's target; returns it (Hz, true)."""
-        locked = engine.locked_midi
-        target_hz = self._target(self.midi if locked is None else int(locked), engine.settings)
-        if target_hz != self.target_hz:
-            self.target_hz = target_hz
-            self.player.generator.set_frequency(target_hz / self.clock_factor)
-        return target_hz
-
-    def follow(self, engine: Any) -> None:
-        """Follow ``engine``'s lock and settings until :meth:`stop`."""
-
-        def run() -> None:
-            while not self._stop.wait(self.POLL_S):
-                try:
-                    self.update_from(engine)
-                except Exception:  # noqa: BLE001, S112 - a target out of reach keeps the last tone
-                    continue
-
-        self._thread = threading.Thread(target=run, name="bench-drone", daemon=True)
-        self._thread.start()
-
-    def stop(self) -> None:
-        self._stop.set()
-        self.player.stop()
-
-
-def start_drone(note: str | None, settings: TuningSettings, *, report: Callable[[str], None]) -> Drone | None:
-    """For ``bench run --drone NOTE``: start the note's target on the default output; None without a note.
-
-    Runs on its own output stream and callback, never in the input's path. Returns the
-    started :class:`Drone` (call ``follow(engine)``, then ``stop()``).
-    """
-    if note is None:
-        return None
-    from bench.sources.tone_out import (
-        DEFAULT_LEVEL_DBFS,
-        ToneGenerator,
-        TonePlayer,
-        resolve_output_device,
-    )
-    from bench.tuning import target_hz_at_air
-    from bench.tuning.notes import note_name, parse_note
-
-    midi = parse_note(note)
-    freq_hz = target_hz_at_air(midi, settings)
-    device = resolve_output_device(None)
-    ppm = _clock_for(device, None)
-    generator = ToneGenerator(round(device.default_rate_hz), freq_hz / (1.0 + (ppm or 0.0) * 1e-6), DEFAULT_LEVEL_DBFS)
-    player = TonePlayer(device, generator)
-    player.start()
-    clock = f"; output clock {ppm:+.2f} ppm taken out" if ppm is not None else ""
-    report(f"drone: {note_name(midi, settings.flats)} {freq_hz:.4f} Hz on {device.label()}{clock}")
-    return Drone(player, midi, settings, ppm)
 
 
 def run_tone(args: argparse.Namespace) -> int:

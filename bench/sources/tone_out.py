@@ -62,19 +62,12 @@ class ToneGenerator:
 
     def __init__(self, sample_rate: float, freq_hz: float, level_dbfs: float = DEFAULT_LEVEL_DBFS,
                  timbre: Timbre = "sine") -> None:  # fmt: skip
-        if timbre not in TIMBRES:
-            raise SettingsError(f"timbre {timbre!r} is not known; use one of {', '.join(TIMBRES)}")
-        if not (math.isfinite(level_dbfs) and -80.0 <= level_dbfs <= 0.0):
-            raise SettingsError(f"level {level_dbfs!r} dBFS is out of range; give -80 to 0 dBFS, e.g. -18")
+        _check_level(level_dbfs)
         self.sample_rate = float(sample_rate)
         self.timbre: Timbre = timbre
-        weights = np.array(REED_HARMONICS if timbre == "reed" else (1.0,))
-        self._harmonics = np.arange(1, len(weights) + 1, dtype=np.float64)
-        # scale so the peak of the summed waveform is 1 (found on one period, finely sampled)
-        grid = np.linspace(0.0, 2 * np.pi, 4096, endpoint=False)
-        peak = float(np.max(np.abs(np.sin(np.outer(grid, self._harmonics)) @ weights)))
-        self._weights = weights / peak
+        self._voice = _voice(timbre)  # (harmonic numbers, weights): swapped whole, never half
         self._phase = 0.0  # radians of the fundamental, kept in [0, 2 pi)
+        self.level_dbfs = float(level_dbfs)
         self._gain = 10 ** (level_dbfs / 20.0)
         self._fade_gain = 0.0  # 0 -> 1 at the start, -> 0 when stopping
         self._fade_target = 1.0
@@ -84,13 +77,36 @@ class ToneGenerator:
 
     def set_frequency(self, freq_hz: float) -> None:
         """Follow a new target (Hz on the nominal rate) from the next buffer, phase continuous."""
-        if not (math.isfinite(freq_hz) and 0.0 < freq_hz < 0.45 * self.sample_rate / len(self._harmonics)):
+        if not (math.isfinite(freq_hz) and 0.0 < freq_hz < 0.45 * self.sample_rate / len(self._voice[0])):
             raise SettingsError(f"tone frequency {freq_hz!r} Hz cannot be played at {self.sample_rate:g} Hz")
         self.freq_hz = float(freq_hz)
+
+    def set_level(self, level_dbfs: float) -> None:
+        """Peak level from the next buffer, dBFS (-80 to 0)."""
+        _check_level(level_dbfs)
+        self.level_dbfs = float(level_dbfs)
+        self._gain = 10 ** (level_dbfs / 20.0)
+
+    def set_timbre(self, timbre: Timbre) -> None:
+        """Sine or reed-like from the next buffer (the phase of the fundamental runs on).
+
+        Raises
+        ------
+        SettingsError
+            An unknown timbre, or a reed tone whose fifth harmonic would pass 0.45 of the rate.
+        """
+        voice = _voice(timbre)
+        if not self.freq_hz < 0.45 * self.sample_rate / len(voice[0]):
+            raise SettingsError(f"a {timbre} tone at {self.freq_hz:g} Hz cannot be played at {self.sample_rate:g} Hz")
+        self._voice, self.timbre = voice, timbre
 
     def fade_out(self) -> None:
         """Fade to silence over :data:`FADE_S`."""
         self._fade_target = 0.0
+
+    def fade_in(self) -> None:
+        """Fade back to the full level over :data:`FADE_S` (after :meth:`fade_out`)."""
+        self._fade_target = 1.0
 
     @property
     def silent(self) -> bool:
@@ -101,13 +117,31 @@ class ToneGenerator:
         """The next ``n`` samples."""
         step = 2 * math.pi * self.freq_hz / self.sample_rate
         phase = self._phase + step * np.arange(n, dtype=np.float64)
-        x = np.sin(np.multiply.outer(phase, self._harmonics)) @ self._weights
+        harmonics, weights = self._voice
+        x = np.sin(np.multiply.outer(phase, harmonics)) @ weights
         direction = float(np.sign(self._fade_target - self._fade_gain))
         fade = np.clip(self._fade_gain + direction * self._fade_step * np.arange(1, n + 1), 0.0, 1.0)
         self._fade_gain = float(fade[-1]) if n else self._fade_gain
         self._phase = math.fmod(self._phase + step * n, 2 * math.pi)
         out: NDArray[np.float32] = (self._gain * fade * x).astype(np.float32)
         return out
+
+
+def _check_level(level_dbfs: float) -> None:
+    if not (math.isfinite(level_dbfs) and -80.0 <= level_dbfs <= 0.0):
+        raise SettingsError(f"level {level_dbfs!r} dBFS is out of range; give -80 to 0 dBFS, e.g. -18")
+
+
+def _voice(timbre: str) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Harmonic numbers and weights of a timbre, scaled so the summed waveform peaks at 1."""
+    if timbre not in TIMBRES:
+        raise SettingsError(f"timbre {timbre!r} is not known; use one of {', '.join(TIMBRES)}")
+    weights = np.array(REED_HARMONICS if timbre == "reed" else (1.0,))
+    harmonics = np.arange(1, len(weights) + 1, dtype=np.float64)
+    # the peak of the summed waveform, found on one period finely sampled
+    grid = np.linspace(0.0, 2 * np.pi, 4096, endpoint=False)
+    peak = float(np.max(np.abs(np.sin(np.outer(grid, harmonics)) @ weights)))
+    return harmonics, weights / peak
 
 
 def list_output_devices() -> list[OutputDevice]:
@@ -201,6 +235,7 @@ class TonePlayer:
         """Fade out, then close the stream."""
         if self._stream is None:
             return
+        self._done.clear()  # a tone paused (silent) and faded in again must fade out again
         self.generator.fade_out()
         self._done.wait(timeout_s)
         stream, self._stream = self._stream, None

@@ -144,6 +144,10 @@ CONTROLS: tuple[Control, ...] = (
     Control("v", "chart_view", "chart", "Tuning chart view: the compass against its targets", True),
     Control("w", "blowing_view", "blowing", "Blowing-curve view: slope in c/dB, break level", True),
     Control("escape", "live_view", "live", "Back to the live view"),
+    Control("o", "tone", "tone", "Reference tone on / off: the target note sounds through the output"),
+    Control("O", "tone_voice", "tone voice", "Reference tone voice: sine / soft reed"),
+    Control("full_stop", "tone_level(1)", "tone +3 dB", "Reference tone 3 dB louder"),
+    Control("comma", "tone_level(-1)", "tone -3 dB", "Reference tone 3 dB softer"),
     Control("question_mark,f1,h", "guide", "keys", "Key guide (this list)", True),
     Control("q", "quit", "quit", "Quit (stops the engine and closes the log)", True),
 )
@@ -208,6 +212,13 @@ class BenchApp(App[int]):
         profile file, or a profile; the alto if None.
     label : str
         Session label put on the first captures (changed with the label key).
+    tone_note : str, optional
+        Sound the reference tone from the start, on this note while none is locked
+        (``bench run --drone NOTE``).
+    tone_opener : callable, optional
+        Opens the reference tone's output (the tests give a stand-in); the default output if None.
+    tone_level_dbfs : float, optional
+        Its starting peak level, dBFS (``--drone-level-db``); -18 if None.
 
     Raises
     ------
@@ -236,6 +247,14 @@ class BenchApp(App[int]):
         def __init__(self, text: str) -> None:
             super().__init__()
             self.text = text
+
+    class ToneReported(Message):
+        """The reference tone's word after a key returned: its output opened, or there is none
+        (posted from the thread that opened it)."""
+
+        def __init__(self, notice: Notice) -> None:
+            super().__init__()
+            self.notice = notice
 
     class EngineReported(Message):
         """The engine reported a rare event (register jump, source ended, device lost, log...)."""
@@ -269,6 +288,9 @@ class BenchApp(App[int]):
         temp_follower: AirTemperatureFollower | None = None,
         profile: InstrumentProfile | str | None = None,
         label: str = "",
+        tone_note: str | None = None,
+        tone_opener: Any = None,
+        tone_level_dbfs: float | None = None,
     ) -> None:
         super().__init__()
         if not poll_hz > 0:
@@ -305,7 +327,12 @@ class BenchApp(App[int]):
             temp_followed=temp_follower is not None,
             on_capture=self._capture_from_engine,
             on_refusal=self._refusal_from_engine,
+            on_tone=self._tone_from_thread,
+            tone_opener=tone_opener,
         )
+        self.tone_note = tone_note
+        if tone_level_dbfs is not None:
+            self.session.tone.level_dbfs = float(tone_level_dbfs)
         """What the keys do to the session (settings, lock, log, label, captures): no Textual in it."""
         self.chart: TuningChart | None = None
         """Tuning chart of the captures so far."""
@@ -365,6 +392,8 @@ class BenchApp(App[int]):
         self.settings = self.engine.settings
         self._show_lock()
         self._start_workflow()
+        if self.tone_note is not None:
+            self._tell(self.session.start_tone(self.tone_note))
         self._refresh_session()
         self.on_resize()
         if self.notice:
@@ -434,6 +463,7 @@ class BenchApp(App[int]):
         workflow = self.workflow
         if workflow is not None:  # the screen is going: no notes to show
             workflow.on_capture = workflow.on_refusal = None
+        self.session.close_tone()
         self._stop_engine()
         self.session.close_workflow()
         if getattr(self, "_froze_gc", False):
@@ -501,6 +531,8 @@ class BenchApp(App[int]):
         bar = self._view(SessionBar)
         bar.source = stats.source
         bar.clock_ppm = self.engine.clock_ppm
+        tone = self.session.tone_state
+        bar.tone, bar.tone_short = tone.describe(), tone.describe(short=True)
         bar.state = stats.state
         bar.dropped_blocks = stats.dropped_blocks
         bar.analysis_load_pct = self._analysis_load_pct(stats.cpu_s)
@@ -894,6 +926,28 @@ class BenchApp(App[int]):
 
     def action_capture(self) -> None:
         self._tell(self.session.capture())
+        self._refresh_session()
+
+    # -- reference tone --------------------------------------------------------------------------
+
+    def _tone_from_thread(self, notice: Notice) -> None:
+        """The controller's ``on_tone``: called from the thread that opened the output."""
+        self.post_message(self.ToneReported(notice))
+
+    def on_bench_app_tone_reported(self, message: ToneReported) -> None:
+        self._tell(message.notice)
+        self._refresh_session()
+
+    def action_tone(self) -> None:
+        self._tell(self.session.toggle_tone())
+        self._refresh_session()
+
+    def action_tone_voice(self) -> None:
+        self._tell(self.session.next_tone_timbre())
+
+    def action_tone_level(self, steps: int) -> None:
+        self._tell(self.session.step_tone_level(steps))
+        self._refresh_session()
 
     def action_auto_capture(self) -> None:
         self._tell(self.session.toggle_auto())
@@ -1019,6 +1073,8 @@ def run_app(
     temp_follower: AirTemperatureFollower | None = None,
     profile: InstrumentProfile | str | None = None,
     label: str = "",
+    tone_note: str | None = None,
+    tone_level_dbfs: float | None = None,
 ) -> int:
     """Show the bench screen until the user quits; start and stop the engine.
 
@@ -1056,6 +1112,10 @@ def run_app(
         Instrument of the session (built-in name or ``.toml`` file); the alto if None.
     label : str
         Label of the first captures.
+    tone_note : str, optional
+        Sound the reference tone from the start on this note (``--drone``).
+    tone_level_dbfs : float, optional
+        Its peak level, dBFS (``--drone-level-db``).
 
     Returns
     -------
@@ -1082,6 +1142,8 @@ def run_app(
         temp_follower=temp_follower,
         profile=profile,
         label=label,
+        tone_note=tone_note,
+        tone_level_dbfs=tone_level_dbfs,
     )
     try:
         code = app.run()

@@ -51,27 +51,37 @@ class SessionBar(LineView):
     """The engine's last word on why input stopped or failed ("" while all is well)."""
     clock_ppm: reactive[float | None] = reactive(None)
     """The input clock's error taken out of every reading, ppm; None when not calibrated."""
+    tone: reactive[str] = reactive("")
+    """The reference tone, e.g. "tone A4 440.00 Hz -18 dB" ("" while it is off)."""
+    tone_short: reactive[str] = reactive("")
+    """The same without its frequency, e.g. "tone A4 -18 dB", for a narrow line."""
 
     def render(self) -> Text:
-        # Short, vital items first (state, level, drops, log); the long source description
-        # last. On a narrow line: the log's file name for its path, then the source's first
-        # words, then no source at all -- whole words, never a word cut in two.
+        # Short, vital items first (state, level, drops, log, tone); the long source
+        # description last. On a narrow line: the log's file name for its path, then the
+        # source's first words, then no source at all, then no dsp load, then REC without the
+        # log's name, then the tone without its frequency -- whole items, never a word cut in two.
         width = self.content_size.width
         log_name = Path(self.log_path).name if self.log_path else None
+        rec = "" if self.log_path else None  # REC, no name
         source = self.source or "?"
         short_source = source.split(",")[0].split(" (")[0].split(":")[0]
-        for log_shown, source_shown in (
-            (self.log_path, source),
-            (log_name, source),
-            (log_name, short_source),
-            (log_name, None),
+        tone, short_tone = self.tone, self.tone_short or self.tone
+        for log_shown, source_shown, tone_shown, dsp in (
+            (self.log_path, source, tone, True),
+            (log_name, source, tone, True),
+            (log_name, short_source, tone, True),
+            (log_name, None, tone, True),
+            (log_name, None, tone, False),
+            (rec, None, tone, False),
+            (rec, None, short_tone, False),
         ):
-            text = self._line(log_shown, source_shown)
+            text = self._line(log_shown, source_shown, tone_shown, dsp)
             if text.cell_len <= width:
                 return text
         return text
 
-    def _line(self, log_shown: str | None, source_shown: str | None) -> Text:
+    def _line(self, log_shown: str | None, source_shown: str | None, tone: str = "", dsp: bool = True) -> Text:
         label = self.get_component_rich_style("session-bar--label")
         value = self.get_component_rich_style("session-bar--value")
         alarm = self.get_component_rich_style("session-bar--alarm")
@@ -95,15 +105,19 @@ class SessionBar(LineView):
         text.append("  dropped ", label)
         text.append(str(self.dropped_blocks), alarm if self.dropped_blocks else value)
         text.append("  log ", label)
-        if log_shown:
+        if log_shown is not None and self.log_path:
             text.append(" REC ", on)
-            text.append(f" {log_shown}", value)
+            if log_shown:
+                text.append(f" {log_shown}", value)
         else:
             text.append("off", value)
         if self.clock_ppm is not None:
             text.append("  clock ", label)
             text.append(f"{self.clock_ppm:+.1f} ppm", value)
-        if self.analysis_load_pct is not None:
+        if tone:
+            text.append("  ")
+            text.append(tone, on)
+        if self.analysis_load_pct is not None and dsp:
             # near a whole core, input will soon be dropped
             text.append("  dsp ", label)
             text.append(f"{self.analysis_load_pct:.0f} %", alarm if self.analysis_load_pct >= 80.0 else value)

@@ -103,7 +103,7 @@ CAPTURE_COLUMNS: tuple[str, ...] = (
     "level_dbfs", "level_min_dbfs", "level_max_dbfs",
     "odd_even_db", "h1_db", "h2_db", "h3_db", "h4_db", "h5_db", "h6_db", "h7_db", "h8_db",
     "register_margin_db", "break_level_dbfs",
-    "temperament", "tonic", "a4_hz", "temp_c", "ref_temp_c", "rh_percent",
+    "temperament", "tonic", "a4_hz", "temp_c", "ref_temp_c", "rh_percent", "clock_ppm",
 )  # fmt: skip
 """Columns of a captures file, in this order.
 
@@ -118,7 +118,14 @@ MAD, cents), cents_raw (median, uncorrected), f0_hz / target_hz (median, Hz), le
 (median), level_min_dbfs / level_max_dbfs, odd_even_db and h1_db..h8_db (medians, dB re the
 strongest harmonic), register_margin_db (dB the level could rise before the note broke; blank
 if no break was seen), break_level_dbfs (level at the break), then the settings: temperament,
-tonic, a4_hz (Hz), temp_c and ref_temp_c (degC), rh_percent (blank: dry air)."""
+tonic, a4_hz (Hz), temp_c and ref_temp_c (degC), rh_percent (blank: dry air), and clock_ppm (the
+input clock's error taken out of the readings when the capture was taken, ppm; blank: none).
+
+A file written before clock_ppm was added (the same columns without it) still reads, its
+captures with ``clock_ppm`` None, and a resumed session appends rows in its layout."""
+
+CAPTURE_COLUMNS_BEFORE_CLOCK: tuple[str, ...] = CAPTURE_COLUMNS[:-1]
+"""Columns of a captures file written before ``clock_ppm`` was added."""
 
 
 CAPTURES_LIMIT_BYTES = 64 << 20
@@ -206,6 +213,7 @@ class Capture:
     temp_c: float
     ref_temp_c: float
     rh_percent: float | None
+    clock_ppm: float | None = None
 
     @property
     def settings(self) -> SettingsKey:
@@ -257,6 +265,7 @@ def capture_from_points(
     jumped: Reading | None = None,
     jump_mode: int | None = None,
     no_steady: bool = False,
+    clock_ppm: float | None = None,
 ) -> Capture:
     """Sum up voiced points of one fingered note as a :class:`Capture`.
 
@@ -283,6 +292,8 @@ def capture_from_points(
     no_steady : bool
         The note broke before it was ever steady: ``points`` only name the note; cents,
         spread, f0 and level are left empty (NaN).
+    clock_ppm : float or None, ppm
+        The input clock's error taken out of the readings (None: no correction).
 
     Raises
     ------
@@ -341,6 +352,7 @@ def capture_from_points(
         temp_c=s.temp_c,
         ref_temp_c=s.ref_temp_c,
         rh_percent=s.rh_percent,
+        clock_ppm=clock_ppm,
     )
 
 
@@ -494,6 +506,8 @@ class CaptureDetector:
     thresholds : CaptureThresholds
     first_index : int
         Number of the first capture (continue a session: ``len(old) + 1``).
+    clock_ppm : float or None, ppm
+        The input clock's error the readings were corrected for, put on each capture.
 
     Notes
     -----
@@ -525,10 +539,12 @@ class CaptureDetector:
         auto: bool = True,
         thresholds: CaptureThresholds | None = None,
         first_index: int = 1,
+        clock_ppm: float | None = None,
     ) -> None:
         self.profile = profile
         self.label = label
         self.auto = auto
+        self.clock_ppm = clock_ppm
         self.thresholds = thresholds or CaptureThresholds()
         self._first_index = int(first_index)
         self.reset()
@@ -614,6 +630,11 @@ class CaptureDetector:
         self._note.append(p)
         self._track_break(p)
         return result
+
+    def forget_note_so_far(self) -> None:
+        """Leave the readings of the held note so far out of its automatic capture (they
+        were taken with the reference tone sounding); the rest of the note still counts."""
+        self._note.clear()
 
     def finish(self) -> Capture | None:
         """End of the stream: close the current held note; return its capture if any."""
@@ -753,6 +774,7 @@ class CaptureDetector:
             jumped=jumped,
             jump_mode=jump_mode,
             no_steady=not points,
+            clock_ppm=self.clock_ppm,
         )
         self._next_index += 1
         self.captures.append(cap)
@@ -873,6 +895,7 @@ def capture_row(cap: Capture) -> list[str]:
         number_cell(cap.temp_c, 2),
         number_cell(cap.ref_temp_c, 2),
         number_cell(cap.rh_percent, 1),
+        number_cell(cap.clock_ppm, 3),
     ]
 
 
@@ -893,16 +916,18 @@ class CaptureFile:
 
     def __init__(self, path: str | Path) -> None:
         self.path = Path(path)
+        self._width = len(CAPTURE_COLUMNS)
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
             fresh = not self.path.exists() or self.path.stat().st_size == 0
             if not fresh:
                 with open(self.path, encoding="utf-8", newline="") as f:
                     header = next(csv.reader(f), [])
-                if tuple(header) != CAPTURE_COLUMNS:
+                if tuple(header) not in (CAPTURE_COLUMNS, CAPTURE_COLUMNS_BEFORE_CLOCK):
                     raise LogError(
                         f"{self.path} exists and is not a captures file; move it or choose another log name"
                     )
+                self._width = len(header)  # a file from before clock_ppm goes on in its own layout
             self._file: io.TextIOWrapper | None = open(  # noqa: SIM115 - closed in close()
                 self.path, "a", encoding="utf-8", newline=""
             )
@@ -920,7 +945,7 @@ class CaptureFile:
         if self._file is None:
             raise LogError(f"captures file {self.path} is closed")
         try:
-            self._writer.writerow(capture_row(cap))
+            self._writer.writerow(capture_row(cap)[: self._width])
             self._file.flush()
         except OSError as exc:
             raise LogError(f"writing captures to {self.path} failed: {exc.strerror or exc}") from None
@@ -994,13 +1019,14 @@ def read_captures(path: str | Path) -> list[Capture]:
         text = text[: text.rfind("\n") + 1]
     reader = csv.reader(io.StringIO(text, newline=""))
     header = next(reader, None)
-    if header is None or tuple(header) != CAPTURE_COLUMNS:
+    if header is None or tuple(header) not in (CAPTURE_COLUMNS, CAPTURE_COLUMNS_BEFORE_CLOCK):
         raise LogError(f"{path} is not a captures file (its header differs); give a file written by bench")
+    columns = tuple(header)
     by_index: dict[int, Capture] = {}
     for line_no, cells in enumerate(reader, start=2):
-        if len(cells) < len(CAPTURE_COLUMNS):
+        if len(cells) < len(columns):
             continue
-        r = dict(zip(CAPTURE_COLUMNS, cells, strict=False))
+        r = dict(zip(columns, cells, strict=False))
         col = ""
         try:
             col = "index"
@@ -1010,7 +1036,7 @@ def read_captures(path: str | Path) -> list[Capture]:
             if source not in ("auto", "manual"):
                 raise ValueError(source)
             values: dict[str, float | None] = {}
-            for col in CAPTURE_COLUMNS:
+            for col in columns:
                 if col in ("index", "label", "source", "note", "jump", "temperament", "tonic"):
                     continue
                 values[col] = _opt(r[col])
@@ -1045,6 +1071,7 @@ def read_captures(path: str | Path) -> list[Capture]:
                 temp_c=values["temp_c"] if values["temp_c"] is not None else 20.0,
                 ref_temp_c=values["ref_temp_c"] if values["ref_temp_c"] is not None else 20.0,
                 rh_percent=values["rh_percent"],
+                clock_ppm=values.get("clock_ppm"),
             )
         except ValueError:
             raise LogError(

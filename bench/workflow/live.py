@@ -59,6 +59,9 @@ class LiveWorkflow:
     on_refusal : callable(str), optional
         Called (in the feeding thread) with one line when a requested capture could not be
         taken (nothing sounding).
+    clock_ppm : float or None, ppm
+        The input clock's error the engine takes out of the readings (``engine.clock_ppm``),
+        written with each capture.
 
     Raises
     ------
@@ -76,6 +79,7 @@ class LiveWorkflow:
         thresholds: CaptureThresholds | None = None,
         on_capture: Callable[[Capture], None] | None = None,
         on_refusal: Callable[[str], None] | None = None,
+        clock_ppm: float | None = None,
     ) -> None:
         self._lock = threading.Lock()
         self.on_refusal = on_refusal
@@ -100,21 +104,41 @@ class LiveWorkflow:
             auto=auto,
             thresholds=thresholds,
             first_index=max((c.index for c in earlier), default=0) + 1,
+            clock_ppm=clock_ppm,
         )
         self._blowing = BlowingCurveTracker()
         self._last_break: BlowingCurve | None = None
+        self._auto_wanted = bool(auto)
+        self._auto_held = False
 
     # -- switches ----------------------------------------------------------------------------
 
     @property
     def auto(self) -> bool:
-        """Automatic capture on or off."""
-        return self._detector.auto
+        """Automatic capture on or off (as the person set it; see :meth:`hold_auto`)."""
+        return self._auto_wanted
 
     @auto.setter
     def auto(self, value: bool) -> None:
         with self._lock:
-            self._detector.auto = bool(value)
+            self._auto_wanted = bool(value)
+            self._detector.auto = self._auto_wanted and not self._auto_held
+
+    def hold_auto(self, held: bool) -> None:
+        """Hold automatic captures back (True: while the reference tone sounds, a settled note
+        would be measured with the tone in it) or let them be taken again (the readings of
+        the note held at that moment so far are left out of its capture); :attr:`auto` keeps
+        what the person chose."""
+        with self._lock:
+            if self._auto_held and not held:  # the note held now was heard with the tone in it
+                self._detector.forget_note_so_far()
+            self._auto_held = bool(held)
+            self._detector.auto = self._auto_wanted and not self._auto_held
+
+    @property
+    def auto_held(self) -> bool:
+        """Automatic captures are held back (the reference tone sounds)."""
+        return self._auto_held
 
     @property
     def label(self) -> str:

@@ -145,3 +145,47 @@ def test_drone_sounds_beside_a_live_run_without_holding_up_the_input(jack_server
     x, rate = sf.read(wav, dtype="float32")
     x = x[rate:]  # past the fade-in and any moment the feeder was connected too
     assert abs(1200 * math.log2(_praat_hz(x, rate) / (440.0 / (1 + ppm * 1e-6)))) < 0.01
+
+
+# -- the tone must not be read as the instrument -------------------------------------------------
+# tests/audio/tone_pull.py: a recorder-like F4 (by construction, ``offset`` cents sharp) played
+# into bench run's input while its drone, a sine at F4's target (349.2282 Hz, REFERENCES section
+# 1), is looped into the same input ``under`` dB (RMS) under it. The pull is the reading with
+# the drone minus the reading without.
+TONE_UNDER_DB = 20.0
+"""The level the README advises: the tone at least this far under the instrument at the mic."""
+
+
+def test_the_tone_under_the_instrument_pulls_its_readings_less_than_a_fifth_of_a_cent(jack_server, tmp_path):
+    import tone_pull
+
+    offset = 10.0  # cents sharp: a note a maker would still be tuning
+    alone = tone_pull.measure(jack_server.name, tmp_path, offset, None)
+    assert alone["rows"] > 300 and abs(alone["cents"] - offset) < 0.05  # the truth by construction
+    advised = tone_pull.measure(jack_server.name, tmp_path, offset, TONE_UNDER_DB)
+    loud = tone_pull.measure(jack_server.name, tmp_path, offset, 6.0)
+    print(f"alone {alone['cents']:.3f} c; tone {TONE_UNDER_DB:g} dB under: {advised['cents']:.3f} c; "
+          f"6 dB under: {loud['cents']:.3f} c")  # fmt: skip
+    assert "drone: F4 349.2282 Hz" in advised["stderr"]
+    assert advised["rows"] > 300 and loud["rows"] > 300
+    assert abs(advised["cents"] - alone["cents"]) < 0.2  # the issue's bound
+    # the tone did reach the input: louder, it pulls the reading toward its target (0 c)
+    assert loud["cents"] - alone["cents"] < -0.2
+
+
+def test_a_capture_with_the_tone_sounding_is_taken_with_the_tone_paused(jack_server):
+    # the tone 6 dB under the instrument at the input (far louder than advised): the readings are pulled
+    # visibly; a capture taken with the capture key pauses it and reads the instrument alone
+    # (its offset by construction), and the tone then sounds again
+    env = _env(jack_server.name)
+    done = subprocess.run([sys.executable, str(Path(__file__).with_name("tone_capture_case.py")), "10"], env=env,
+                          capture_output=True, text=True, timeout=120, check=False)  # fmt: skip
+    assert done.returncode == 0, done.stderr[-2000:]
+    got = json.loads(done.stdout.strip().splitlines()[-1])
+    print(got)
+    assert got["said"] is not None and "paused" in got["said"]
+    assert got["capture_cents_raw"] is not None and abs(got["capture_cents_raw"] - 10.0) < 0.05
+    assert got["capture_start_s"] > got["key_s"]  # from input after the key, none from before
+    assert abs(got["tone_on_median"] - 10.0) > 0.2  # with the tone sounding the readings are pulled
+    assert abs(got["tone_back_median"] - 10.0) > 0.2  # and it sounds again after the capture
+    assert got["auto_captures"] == 0  # none while it sounded

@@ -97,24 +97,26 @@ def test_bad_tone_options_are_one_line(argv, message, capsys):
 
 
 def test_drone_follows_the_locked_note_and_the_settings():
-    # the drone's target is the engine's locked note (its own note when none) under the settings
-    # in force: F4 = 349.2282 Hz at A4 = 440, 329.3857 Hz at A4 = 415 (REFERENCES section 1)
+    # the drone (the session's reference tone with a note of its own) sounds the locked note,
+    # its own note when none, under the settings in force: F4 = 349.2282 Hz at A4 = 440,
+    # 329.3857 Hz at A4 = 415 (REFERENCES section 1); the output's clock error is taken out
     import dataclasses
     import types
 
-    from bench.commands.tone import Drone
+    from bench.reftone import ReferenceTone
     from bench.tuning import TuningSettings
 
     generator = ToneGenerator(SR, 440.0)
-    player = types.SimpleNamespace(generator=generator, stop=lambda: None)
+    player = types.SimpleNamespace(generator=generator, start=lambda: None, stop=lambda timeout_s=1.0: None)
     s440 = TuningSettings()
-    drone = Drone(player, 69, s440, clock_ppm=100.0)
-    engine = types.SimpleNamespace(locked_midi=None, settings=s440)
-    assert drone.update_from(engine) == pytest.approx(440.0)
-    engine.locked_midi = 65  # the player locks F4
-    assert drone.update_from(engine) == pytest.approx(349.2282, abs=5e-5)
+    drone = ReferenceTone(s440, report=lambda text, severity: None,
+                          opener=lambda hz, level, timbre: (player, "test output", 100.0), background=False)  # fmt: skip
+    drone.start(69)
+    assert drone.state.freq_hz == pytest.approx(440.0)
+    drone.follow(s440, 65)  # the player locks F4
+    assert drone.state.freq_hz == pytest.approx(349.2282, abs=5e-5)
     assert generator.freq_hz == pytest.approx(349.2282 / (1 + 1e-4), abs=5e-5)  # clock taken out
-    engine.settings = dataclasses.replace(s440, a4_hz=415.0)
-    assert drone.update_from(engine) == pytest.approx(329.3857, abs=5e-5)
-    engine.locked_midi = None
-    assert drone.update_from(engine) == pytest.approx(415.0)
+    drone.follow(dataclasses.replace(s440, a4_hz=415.0), 65)
+    assert drone.state.freq_hz == pytest.approx(329.3857, abs=5e-5)
+    drone.follow(dataclasses.replace(s440, a4_hz=415.0), None)
+    assert drone.state.freq_hz == pytest.approx(415.0)

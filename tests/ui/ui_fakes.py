@@ -141,3 +141,30 @@ class FakeEngine:
         for c in self.consumers:  # the engine thread's work, done here at once
             c.take(reading)  # type: ignore[attr-defined]
         return reading
+
+
+class FakeOutput:
+    """A stand-in for the reference tone's output: a real tone generator, no device
+    (``BenchApp(tone_opener=FakeOutput())``); ``fail`` makes it raise as a machine without
+    an output does."""
+
+    def __init__(self, fail: str | None = None) -> None:
+        self.fail = fail
+        self.generator = None
+        self.stopped = 0
+
+    def __call__(self, freq_hz: float, level_dbfs: float, timbre: str):
+        import types
+
+        from bench.errors import DeviceError
+        from bench.sources.tone_out import ToneGenerator
+
+        if self.fail:
+            raise DeviceError(self.fail)
+        self.generator = ToneGenerator(48000, freq_hz, level_dbfs, timbre)  # type: ignore[arg-type]
+        self.generator.fade_out()
+        player = types.SimpleNamespace(generator=self.generator, start=lambda: None, stop=self._stop)
+        return player, "fake output", None
+
+    def _stop(self, timeout_s: float = 1.0) -> None:
+        self.stopped += 1

@@ -326,6 +326,37 @@ def test_capture_file_torn_last_line_and_bad_files(tmp_path, scale_rows):
         read_captures(tmp_path / "none.csv")
 
 
+def test_clock_ppm_is_written_with_each_capture_and_old_files_still_read(tmp_path, scale_rows):
+    # the clock correction in force goes into a clock_ppm column and reads back; a file from
+    # before that column (its header one column shorter) reads with clock_ppm None, and a
+    # resumed session goes on appending rows in that file's own layout
+    import dataclasses
+
+    det = CaptureDetector(profile=ALTO, clock_ppm=-37.25)
+    for r in scale_rows:
+        det.push(r)
+    det.finish()
+    caps = det.captures
+    assert caps and {c.clock_ppm for c in caps} == {-37.25}
+    path = write_captures(tmp_path / "new.captures.csv", caps)
+    with open(path, encoding="utf-8", newline="") as f:
+        raw = list(csv.reader(f))
+    assert raw[0][-1] == "clock_ppm" and {row[-1] for row in raw[1:]} == {"-37.250"}
+    assert [c.clock_ppm for c in read_captures(path)] == [-37.25] * len(caps)
+    none = write_captures(tmp_path / "none.captures.csv", [dataclasses.replace(caps[0], clock_ppm=None)])
+    assert read_captures(none)[0].clock_ppm is None  # a blank cell: no correction
+    old = tmp_path / "old.captures.csv"
+    old.write_text("".join(",".join(row[:-1]) + "\r\n" for row in raw), encoding="utf-8")
+    back = read_captures(old)
+    assert [c.index for c in back] == [c.index for c in caps] and all(c.clock_ppm is None for c in back)
+    assert [c.cents for c in back] == pytest.approx([c.cents for c in caps], abs=1e-3)
+    with CaptureFile(old) as f:  # resumed: appended in the old layout, still one file
+        f.write(dataclasses.replace(caps[0], index=99))
+    lines = old.read_text(encoding="utf-8").splitlines()
+    assert len(lines[-1].split(",")) == len(CAPTURE_COLUMNS) - 1
+    assert read_captures(old)[-1].index == 99
+
+
 def test_captures_path_beside_the_log(tmp_path):
     assert captures_path_for(tmp_path / "session-20260101-101500.csv") == (
         tmp_path / "session-20260101-101500.captures.csv"
