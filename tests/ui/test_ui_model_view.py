@@ -143,3 +143,23 @@ def test_a_profile_without_geometry_says_how_to_give_one(make_app):
             return _text(app, "#model-status")
 
     assert "--geometry FILE" in asyncio.run(scenario())
+
+
+def test_a_geometry_given_is_the_one_the_view_fits(make_app):
+    from bench.model.geometry import builtin_geometry
+
+    engine = _engine()
+
+    async def scenario():
+        app = make_app(engine, profile="tenor", geometry=builtin_geometry("wren-alto"))
+        async with app.run_test(size=(80, 24)) as pilot:
+            _play(engine, ["F4", "G4"])
+            await until(pilot, lambda: len(app.workflow.captures()) == 2)
+            await pilot.press("m")
+            await until(pilot, lambda: app.model_report is not None, 30.0)
+            await pilot.pause(0.1)
+            return _text(app, "#model-title"), _text(app, "#model-status")
+
+    title, status = asyncio.run(scenario())
+    assert "Wren alto" in title and "fitted to 2 notes" in title
+    assert "--geometry" not in status
