@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
+from functools import lru_cache
 from itertools import pairwise
 
 import numpy as np
@@ -106,8 +107,10 @@ def _radiation(freq: FArray, radius_m: float, air: Air, options: ModelOptions) -
     return radiation_impedance(freq, radius_m, air, lossless=options.radiation == "unflanged-lossless")
 
 
-def _pieces(geometry: Geometry) -> list[tuple[str, float, float, float, float, int]]:
-    """Elements from the top down: ("duct", z0, z1, r0, r1, -1) and ("hole", z, z, r, r, index)."""
+@lru_cache(maxsize=64)
+def _pieces(geometry: Geometry) -> tuple[tuple[str, float, float, float, float, int], ...]:
+    """Elements from the top down: ("duct", z0, z1, r0, r1, -1) and ("hole", z, z, r, r, index);
+    kept for the geometries in use (a fit or a search asks again for the same ones)."""
     cuts = sorted({z for z, _ in geometry.bore_mm} | {h.position_mm for h in geometry.holes})
     hole_at = {h.position_mm: i for i, h in enumerate(geometry.holes)}
     out: list[tuple[str, float, float, float, float, int]] = []
@@ -117,7 +120,7 @@ def _pieces(geometry: Geometry) -> list[tuple[str, float, float, float, float, i
             out.append(("hole", z0, z0, r, r, hole_at[z0]))
         out.append(("duct", z0 / 1000.0, z1 / 1000.0,
                     geometry.diameter_at(z0) / 2000.0, geometry.diameter_at(z1) / 2000.0, -1))
-    return out
+    return tuple(out)
 
 
 def top_impedance(freq_hz: FArray, geometry: Geometry, air: Air, options: ModelOptions) -> CArray:
@@ -172,23 +175,36 @@ def input_impedance(
     n_f = states.shape[0]
     given = np.asarray(freq_hz, dtype=np.float64)
     freq = np.broadcast_to(given, (n_f, given.shape[-1]))
-    # one frequency row shared by every fingering: compute each element once on it and let
-    # broadcasting apply it to all fingerings
+    # One frequency row shared by every fingering: each element is computed once on it, and
+    # fingerings whose holes agree from the foot up to the element share the impedance seen
+    # there (one row per distinct suffix of hole states: 82 rows instead of 216 for the 27
+    # fingerings of the alto over its 8 holes). Otherwise every fingering is its own group.
     shared = given.ndim == 1
     f_el = given if shared else freq
     foot_r = geometry.bore_mm[-1][1] / 2000.0
-    z = np.broadcast_to(_radiation(f_el, foot_r, air, options), freq.shape).astype(np.complex128)
+    radiation = _radiation(f_el, foot_r, air, options)
+    if shared:
+        group = np.zeros(n_f, dtype=np.intp)  # the group of each fingering
+        z = radiation.reshape(1, -1).astype(np.complex128)
+    else:
+        group = np.arange(n_f)
+        z = np.broadcast_to(radiation, freq.shape).astype(np.complex128)
     scales = options.hole_diameter_scale
     for kind, z0, z1, r0, r1, idx in reversed(_pieces(geometry)):
         if kind == "duct":
             z = load(cone_matrix(f_el, z1 - z0, r0, r1, air, options.losses), z)
             continue
         hole = geometry.holes[idx]
-        col = states[:, idx][:, None]
+        if shared:  # the new groups: a group below and this hole's state
+            pairs, group = np.unique(group * 3 + states[:, idx], return_inverse=True)
+            group = group.reshape(-1)
+            parent, state_of = pairs // 3, pairs % 3
+        else:
+            parent, state_of = np.arange(n_f), states[:, idx]
         scale = scales[idx] if idx < len(scales) else 1.0
-        z_new = np.empty_like(z)
+        z_new = np.empty((len(parent), z.shape[1]), dtype=np.complex128)
         for state in (_CLOSED, _OPEN, _HALF):
-            rows = np.flatnonzero(col[:, 0] == state)
+            rows = np.flatnonzero(state_of == state)
             if rows.size == 0:
                 continue
             f_rows = given if shared else freq[rows]
@@ -205,8 +221,10 @@ def input_impedance(
             z0_main = air.density_kg_m3 * air.speed_m_s / (math.pi * r0**2)
             t_a = lengths.series_open_m if is_open else lengths.series_closed_m
             za = (1j * z0_main * k * t_a).astype(np.complex128)
-            z_new[rows] = load(tee_matrix(za, zs), z[rows])
+            z_new[rows] = load(tee_matrix(za, zs), z[parent[rows]])
         z = z_new
+    if shared:
+        z = z[group]  # one row per fingering again
     if include_top:
         z = z + top_impedance(f_el, geometry, air, options)
     return z
