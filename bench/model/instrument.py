@@ -315,6 +315,7 @@ def _polish(
     air: Air,
     options: ModelOptions = ModelOptions(),
     iterations: int = 4,
+    start_fraction: float = 1.0,
 ) -> tuple[FArray, FArray]:
     """Frequencies of the minimum of ``|Z|`` near good guesses, by shrinking parabolas.
 
@@ -337,6 +338,9 @@ def _polish(
     air : Air
     options : ModelOptions
     iterations : int >= 1
+    start_fraction : float in (0, 1]
+        The first parabola is ``start_fraction * half_width`` wide (guesses better than the
+        grid's own points start narrower).
 
     Returns
     -------
@@ -350,7 +354,7 @@ def _polish(
     g0 = np.where(missing, 100.0, guess)
     lo, hi = g0 * (1.0 - half_width), g0 * (1.0 + half_width)
     v = g0
-    h = g0 * half_width
+    h = g0 * half_width * start_fraction
     k = guess.shape[1]
     zm = np.zeros_like(g0)
     for _ in range(iterations):
@@ -446,8 +450,10 @@ def playing_frequencies(
     A coarse logarithmic grid (step ``options.grid_step_ratio``) from a quarter of the
     half-wave frequency of the whole bore to ``max_hz``; minima of ``|Z|`` with a prominence of
     at least a factor 1.5 (scipy.signal.find_peaks on ``-log |Z|``) are taken in rising order and
-    refined by :func:`polish_minima` (shrinking parabolas on ``|Z|^2``, starting one grid step
-    wide). The grid ends at ``max_hz`` or, lower, at ``registers + 1`` times the half-wave
+    refined: first the vertex of the parabola in ``|Z|^2`` through the grid's minimum and its
+    neighbours, then three rounds of :func:`polish_minima`'s shrinking parabolas starting an
+    eighth of a grid step wide (within 0.01 c of a fine golden-section search on the built-in
+    instruments: tests/model/test_fast_paths.py). The grid ends at ``max_hz`` or, lower, at ``registers + 1`` times the half-wave
     frequency of the bore down to the highest hole any fingering opens (a mode's frequency is
     below ``k c / 2 L`` of the shortest air column that plays it, with room to spare for the
     window's and the holes' end corrections, which only lower it).
@@ -481,11 +487,28 @@ def playing_frequencies(
     for i in range(len(patterns)):
         peaks, _ = find_peaks(log_z[i], prominence=math.log(1.5))
         for k, p in enumerate(peaks[:registers]):
-            guess[i, k] = grid[p]
-    freq, z_abs = _polish(geometry, states, guess, options.grid_step_ratio - 1.0, air, options)
+            guess[i, k] = _grid_vertex(grid, z_grid[i], p)
+    # the grid's own parabola stands for the first round of the polish: it starts an eighth of
+    # a grid step wide, three rounds from there reach what four from the grid point did
+    step = options.grid_step_ratio - 1.0
+    freq, z_abs = _polish(geometry, states, guess, step, air, options, iterations=3, start_fraction=0.125)
     z_top_bore = air.density_kg_m3 * air.speed_m_s / (math.pi * (geometry.bore_mm[0][1] / 2000.0) ** 2)
     depth = z_abs / z_top_bore
     return Resonances(freq, np.where(np.isfinite(freq), depth, np.nan))
+
+
+def _grid_vertex(grid: FArray, z_abs: FArray, p: int) -> float:
+    """Vertex of the parabola in ``|Z|^2`` through grid point ``p`` and its neighbours, kept
+    between the neighbours (the grid point itself at an edge or where there is no minimum)."""
+    if p <= 0 or p >= len(grid) - 1:
+        return float(grid[p])
+    x0, x1, x2 = grid[p - 1], grid[p], grid[p + 1]
+    y0, y1, y2 = z_abs[p - 1] ** 2, z_abs[p] ** 2, z_abs[p + 1] ** 2
+    num = (x1 - x0) ** 2 * (y1 - y2) - (x1 - x2) ** 2 * (y1 - y0)
+    den = (x1 - x0) * (y1 - y2) - (x1 - x2) * (y1 - y0)
+    if den == 0.0 or not math.isfinite(num / den):
+        return float(grid[p])
+    return float(min(max(x1 - 0.5 * num / den, x0), x2))
 
 
 def with_end_correction(geometry: Geometry, end_correction_mm: float) -> Geometry:
