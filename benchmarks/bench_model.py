@@ -6,6 +6,9 @@ different machines can be compared:
 
 * predict: every fingering of the built-in Wren alto (27 fingerings x 3 registers), the
   coarse grid and the refinement together;
+* grid: the impedance of the 27 fingerings on the coarse grid, rows shared between fingerings
+  whose holes agree from the foot up, against the same computed with a row of frequencies per
+  fingering (the plain path the refinement takes) in the same run;
 * fit: ``bench model fit``'s fitting on 12 captures synthesised from the model (every
   parameter free), timed once;
 * suggest: ``bench model suggest``'s search (enlarge or wax, every hole) on the 8 notes of the
@@ -34,7 +37,12 @@ from bench.model.acoustics import air_at
 from bench.model.demo import demo_notes
 from bench.model.fit import FitTarget, fit_model
 from bench.model.geometry import builtin_geometry
-from bench.model.instrument import ModelOptions, playing_frequencies
+from bench.model.instrument import (
+    ModelOptions,
+    input_impedance,
+    playing_frequencies,
+    states_of,
+)
 from bench.model.predict import predict
 from bench.model.suggest import Limits, suggest
 from bench.tuning import TuningSettings
@@ -64,6 +72,12 @@ def main() -> int:
     preds = predict(geometry, air, 3)
     predict_s = _median_time(lambda: predict(geometry, air, 3), args.repeat)
 
+    states = states_of([f.holes for f in geometry.fingerings])
+    grid = np.geomspace(98.0, 4300.0, 380)
+    tiled = np.tile(grid, (len(states), 1))
+    shared_s = _median_time(lambda: input_impedance(geometry, states, grid, air), args.repeat)
+    plain_s = _median_time(lambda: input_impedance(geometry, states, tiled, air), args.repeat)
+
     truth = replace(geometry, top=replace(geometry.top, end_correction_mm=geometry.top.end_correction_mm + 1.5))
     fings = [geometry.fingering(n) for n in FIT_NOTES]
     res = playing_frequencies(truth, [f.holes for f in fings], air_at(25.0, 60.0), 3,
@@ -85,6 +99,8 @@ def main() -> int:
     print(f"predict: {len(geometry.fingerings)} fingerings x 3 registers ({len(preds)} rows): "
           f"{predict_s * 1e3:.0f} ms = {predict_s / ref_s:.0f} x reference "
           f"({predict_s / len(preds) * 1e3:.2f} ms per note and register)")
+    print(f"grid: {len(states)} fingerings x {len(grid)} frequencies: shared rows {shared_s * 1e3:.1f} ms, "
+          f"each fingering alone {plain_s * 1e3:.1f} ms: {plain_s / shared_s:.2f} x faster")
     rms = math.sqrt(float(np.mean(result.after_cents**2)))
     print(f"fit: {len(targets)} captures, {len(result.parameters)} parameters: {fit_s:.2f} s = "
           f"{fit_s / ref_s:.0f} x reference (residual rms after {rms:.2f} c)")

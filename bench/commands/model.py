@@ -83,6 +83,9 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
                    help="widen the bore between these distances from the blown end (with --by-mm)")
     w.add_argument("--by-mm", type=number_arg, metavar="D", help="how much wider the reamed stretch gets, mm")
     w.add_argument("--sensitivity", action="store_true", help="cents per 0.1 mm for every hole and note")
+    w.add_argument("--captures", type=Path, metavar="CAPTURES.csv",
+                   help="fit the model to these captures first: the change is predicted on the fitted model and "
+                   "its +- is propagated from the fit's covariance (without it: the spread between model variants)")
     _air_options(w)
     w.set_defaults(func=run_whatif)
 
@@ -219,25 +222,42 @@ def run_whatif(args: argparse.Namespace) -> int:
         )
     geometry = _with_fingerings(load_geometry(args.geometry))
     air = air_at(args.temp, args.rh)
-    print(f"{geometry.title}: air {air.temp_c:g} degC {air.rh_percent:g} % RH")
+    fit = None
+    model = geometry
+    if args.captures is not None:
+        from bench.model.fit import fit_model, targets_from_captures
+        from bench.workflow.captures import read_captures
+
+        targets = targets_from_captures(read_captures(args.captures), geometry, default_rh=args.rh)
+        fit = fit_model(geometry, targets)
+        model = fit.geometry  # the fitted end correction; the hole factors go in as options
+        room_c = sum(t.temp_c for t in targets) / len(targets)
+        air = air_at(min(max(room_c + fit.warming_c, -10.0), 45.0), args.rh)
+        print(f"{geometry.title}: the model fitted to {len(targets)} captured notes of {args.captures}; "
+              f"air {air.temp_c:.1f} degC (the room {room_c:.1f} degC, the bore {fit.warming_c:.1f} degC warmer) "
+              f"{air.rh_percent:g} % RH")
+        print("uncertainty: propagated from the fit's covariance (J Sigma J^T), one standard deviation")
+    else:
+        print(f"{geometry.title}: air {air.temp_c:g} degC {air.rh_percent:g} % RH")
+        print("uncertainty: the spread between model variants (give --captures to propagate a fit's instead)")
+
+    def show(changed: Geometry, desc: str) -> None:
+        print(format_change(predict_change(model, changed, desc, air, args.registers, uncertainty=True, fit=fit)), end="")
+
     if args.hole is not None:
-        changed = enlarge_hole(geometry, args.hole, args.diameter)
+        changed = enlarge_hole(model, args.hole, args.diameter)  # an unknown hole: one line
         old = next(h for h in geometry.holes if h.label == args.hole).outer_diameter_mm
-        desc = f"hole {args.hole} from {old:g} to {args.diameter:g} mm: change in cents"
-        print(format_change(predict_change(geometry, changed, desc, air, args.registers, uncertainty=True)), end="")
+        show(changed, f"hole {args.hole} from {old:g} to {args.diameter:g} mm: change in cents")
     if args.move is not None:
-        changed = move_hole(geometry, args.move, args.to_mm)
-        old = next(h for h in geometry.holes if h.label == args.move).position_mm
-        desc = f"hole {args.move} moved from {old:g} to {args.to_mm:g} mm: change in cents"
-        print(format_change(predict_change(geometry, changed, desc, air, args.registers, uncertainty=True)), end="")
+        changed = move_hole(model, args.move, args.to_mm)
+        old_pos = next(h for h in geometry.holes if h.label == args.move).position_mm
+        show(changed, f"hole {args.move} moved from {old_pos:g} to {args.to_mm:g} mm: change in cents")
     if args.ream is not None:
-        changed = ream(geometry, args.ream[0], args.ream[1], args.by_mm)
-        desc = f"bore reamed {args.by_mm:g} mm wider from {args.ream[0]:g} to {args.ream[1]:g} mm: change in cents"
-        print(format_change(predict_change(geometry, changed, desc, air, args.registers, uncertainty=True)), end="")
+        changed = ream(model, args.ream[0], args.ream[1], args.by_mm)
+        show(changed, f"bore reamed {args.by_mm:g} mm wider from {args.ream[0]:g} to {args.ream[1]:g} mm: change in cents")
     if args.shorten_foot is not None:
-        changed = shorten_foot(geometry, args.shorten_foot)
-        desc = f"foot shortened by {args.shorten_foot:g} mm: change in cents"
-        print(format_change(predict_change(geometry, changed, desc, air, args.registers, uncertainty=True)), end="")
+        changed = shorten_foot(model, args.shorten_foot)
+        show(changed, f"foot shortened by {args.shorten_foot:g} mm: change in cents")
     if args.sensitivity:
         print(format_sensitivity(*sensitivity(geometry, air, args.registers)), end="")
     return 0

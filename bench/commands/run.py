@@ -79,6 +79,11 @@ def register(sub: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
             help="instrument: sopranino, soprano, alto (default), tenor, bass, ... or a .toml profile",
         )
         work.add_argument("--label", default="", metavar="TEXT", help="label of the first captures, e.g. 'as made'")
+        work.add_argument(
+            "--geometry", default=None, metavar="FILE|NAME",
+            help="the instrument's geometry for the model view (key m): a geometry .toml or a built-in "
+            "(wren-alto, wren-soprano); default: the profile's built-in geometry",
+        )
         add_tuning_options(p)
         p.set_defaults(func=run_command)
 
@@ -180,6 +185,13 @@ def run_command(args: argparse.Namespace) -> int:
         from bench.workflow.profiles import get_profile
 
         args.profile = get_profile(args.profile)  # a bad name or file: one line, before any input opens
+    if args.geometry is not None:
+        if args.no_ui:
+            raise SettingsError("--geometry applies to the screen's model view; leave it out with --no-ui "
+                                "(bench model fit GEOMETRY CAPTURES fits a session's captures afterwards)")
+        from bench.model.geometry import load_geometry
+
+        args.geometry = load_geometry(args.geometry)  # a bad file: one line, before the screen opens
     saved = read_saved_settings()
     for warning in saved.problems:  # said in the terminal, and on the screen's notice line below
         _say(f"warning: {warning}")
@@ -379,6 +391,7 @@ def _run_screen(
             label=args.label,
             tone_note=args.drone,  # the controller sounds it, as the tone key does
             tone_level_dbfs=args.drone_level_db,
+            geometry=args.geometry,
         )
     finally:
         if follower is not None:

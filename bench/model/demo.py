@@ -1,9 +1,10 @@
 """The demo instrument's notes, rendered from a geometry through the model.
 
-The demo plays the built-in Wren alto with two holes deliberately off (:data:`DEMO_HOLES_OFF_MM`:
-h3 bored 0.3 mm too small, h5 0.4 mm too large), so that ``bench model suggest`` on the demo's
-captures finds those holes. The demo source asks :func:`demo_notes` for the frequency of each
-note it plays instead of keeping a table of its own.
+The demo plays a built-in Wren (the alto, or the soprano for the soprano profile) with two
+holes deliberately off (:data:`DEMO_HOLES_OFF_MM`: h3 bored 0.3 mm too small, h5 0.4 mm too
+large), so that ``bench model suggest`` on the demo's captures finds those holes. The demo source
+(:mod:`bench.sources.demo`) asks :func:`demo_notes` for the frequency of each note it plays
+instead of keeping a table of its own.
 """
 
 from __future__ import annotations
@@ -16,12 +17,21 @@ from bench.model.geometry import Geometry, builtin_geometry
 from bench.model.instrument import playing_frequencies
 from bench.model.suggest import apply_cut
 
-__all__ = ["DEMO_GEOMETRY", "DEMO_HOLES_OFF_MM", "DemoNote", "demo_geometry", "demo_notes"]
+__all__ = [
+    "DEMO_BORE_C",
+    "DEMO_GEOMETRY",
+    "DEMO_HOLES_OFF_MM",
+    "DemoNote",
+    "demo_geometry",
+    "demo_notes",
+]
 
 DEMO_GEOMETRY = "wren-alto"
-"""The built-in geometry the demo plays."""
+"""The built-in geometry the demo plays when no other is asked for."""
 DEMO_HOLES_OFF_MM: Mapping[str, float] = {"h3": -0.3, "h5": 0.4}
 """Holes put off on purpose, by label: diameter change in mm (negative: too small)."""
+DEMO_BORE_C = 25.0
+"""Air in the demo's bore, degC: a bore warmed by breath in a 20 degC room."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -46,9 +56,9 @@ class DemoNote:
     freq_hz: float
 
 
-def demo_geometry(off_mm: Mapping[str, float] = DEMO_HOLES_OFF_MM) -> Geometry:
-    """The demo's geometry: the built-in alto with ``off_mm`` applied to its holes."""
-    g = builtin_geometry(DEMO_GEOMETRY)
+def demo_geometry(off_mm: Mapping[str, float] = DEMO_HOLES_OFF_MM, geometry: str = DEMO_GEOMETRY) -> Geometry:
+    """The demo's geometry: the built-in ``geometry`` with ``off_mm`` applied to its holes."""
+    g = builtin_geometry(geometry)
     labels = [h.label for h in g.holes]
     for label, delta in off_mm.items():
         i = labels.index(label)
@@ -57,7 +67,10 @@ def demo_geometry(off_mm: Mapping[str, float] = DEMO_HOLES_OFF_MM) -> Geometry:
 
 
 def demo_notes(
-    temp_c: float = 25.0, rh_percent: float = 60.0, off_mm: Mapping[str, float] = DEMO_HOLES_OFF_MM
+    temp_c: float = DEMO_BORE_C,
+    rh_percent: float = 60.0,
+    off_mm: Mapping[str, float] = DEMO_HOLES_OFF_MM,
+    geometry: str = DEMO_GEOMETRY,
 ) -> list[DemoNote]:
     """Every fingering of the demo instrument in the mode it is named for, from the model.
 
@@ -68,6 +81,8 @@ def demo_notes(
     rh_percent : float, percent
     off_mm : mapping of str to float
         Holes put off, by label (see :data:`DEMO_HOLES_OFF_MM`).
+    geometry : str
+        A built-in geometry's name (``wren-alto``, ``wren-soprano``).
 
     Returns
     -------
@@ -81,8 +96,10 @@ def demo_notes(
     349
     >>> notes["D5"].freq_hz < 587.33 * 2 ** (-5 / 1200)  # h3 too small: D5 is flat
     True
+    >>> round({n.name: n for n in demo_notes(geometry="wren-soprano")}["C5"].freq_hz)
+    523
     """
-    g = demo_geometry(off_mm)
+    g = demo_geometry(off_mm, geometry)
     air = air_at(temp_c, rh_percent)
     modes = max(f.register for f in g.fingerings)
     res = playing_frequencies(g, [f.holes for f in g.fingerings], air, modes)

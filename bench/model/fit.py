@@ -128,6 +128,10 @@ class FitResult:
         Per-register offset.
     left_out : tuple of str
         Parameters not fitted because there were too few captures.
+    covariance : float ndarray, shape (P, P), or None
+        Covariance of the fitted parameters (``parameters`` order, in their units): the
+        Gauss-Newton ``(J^T J)^-1`` scaled by the prior spreads; None when nothing was fitted.
+        :func:`bench.model.whatif.predict_change` propagates it to a change's prediction.
     """
 
     parameters: tuple[FitParameter, ...]
@@ -139,6 +143,7 @@ class FitResult:
     warming_c: float
     offsets_cents: dict[int, float]
     left_out: tuple[str, ...]
+    covariance: NDArray[np.float64] | None = None
 
 
 def targets_from_captures(captures: Sequence[Capture], geometry: Geometry, default_rh: float = 50.0) -> list[FitTarget]:
@@ -316,14 +321,18 @@ def fit_model(
         sol = least_squares(residuals, np.zeros(len(free)), jac=jacobian, method="trf")
         x = np.asarray(sol.x, dtype=np.float64)
         jac = np.asarray(sol.jac, dtype=np.float64)
+        spreads = np.array([p.spread for p in free])
         try:
             cov = np.linalg.inv(jac.T @ jac)
             sd_scaled = np.sqrt(np.clip(np.diag(cov), 0.0, None))
-        except np.linalg.LinAlgError:
+        except np.linalg.LinAlgError:  # no information beyond the priors (whose J^T J is 1)
+            cov = np.eye(len(free))
             sd_scaled = np.ones(len(free))
+        covariance: NDArray[np.float64] | None = np.asarray(cov * np.outer(spreads, spreads), dtype=np.float64)
     else:
         x = np.zeros(0)
         sd_scaled = np.zeros(0)
+        covariance = None
     vals = {**model.values(x), **fixed}
     after = model.cents(vals, guess)
     fitted: list[FitParameter] = []
@@ -332,7 +341,8 @@ def fit_model(
                                    p.prior, p.spread, bool(s < PINNED_FRACTION)))
     fit_geometry, fit_options, warming = model.configure(vals)
     offsets = {int(m): vals.get(f"offset_r{m}_cents", 0.0) for m in sorted(set(model.modes.tolist()))}
-    return FitResult(tuple(fitted), tuple(targets), before, after, fit_geometry, fit_options, warming, offsets, tuple(left_out))
+    return FitResult(tuple(fitted), tuple(targets), before, after, fit_geometry, fit_options, warming, offsets,
+                     tuple(left_out), covariance)
 
 
 def format_fit(result: FitResult) -> str:

@@ -49,11 +49,13 @@ from bench.errors import GeometryError
 __all__ = [
     "BUILTIN_GEOMETRIES",
     "MAX_FILE_BYTES",
+    "PROFILE_GEOMETRIES",
     "Fingering",
     "Geometry",
     "Hole",
     "Top",
     "builtin_geometry",
+    "geometry_for_profile",
     "geometry_to_toml",
     "load_geometry",
     "parse_geometry_text",
@@ -67,6 +69,8 @@ BUILTIN_GEOMETRIES: dict[str, str] = {
     "wren-soprano": "wren_soprano.toml",
 }
 """Built-in geometries of the invented Hollin Lane Flute Works, by name -> package data file."""
+PROFILE_GEOMETRIES: dict[str, str] = {"alto": "wren-alto", "soprano": "wren-soprano"}
+"""The built-in geometry of an instrument profile, by profile name (the other profiles have none)."""
 
 HoleState = Literal["x", "o", "h"]
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.#-]*$")
@@ -468,6 +472,14 @@ def builtin_geometry(name: str) -> Geometry:
     text = resources.files("bench.model").joinpath(BUILTIN_GEOMETRIES[name]).read_text(encoding="utf-8")
     return parse_geometry_text(text, f"built-in {name}")
 
+
+def geometry_for_profile(profile_name: str) -> str | None:
+    """Name of the built-in geometry of an instrument profile, None when it has none.
+
+    >>> geometry_for_profile("soprano"), geometry_for_profile("tenor")
+    ('wren-soprano', None)
+    """
+    return PROFILE_GEOMETRIES.get(profile_name)
 
 
 def geometry_to_toml(geometry: Geometry, header: str = "") -> str:

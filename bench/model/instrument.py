@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
+from functools import lru_cache
 from itertools import pairwise
 
 import numpy as np
@@ -106,8 +107,10 @@ def _radiation(freq: FArray, radius_m: float, air: Air, options: ModelOptions) -
     return radiation_impedance(freq, radius_m, air, lossless=options.radiation == "unflanged-lossless")
 
 
-def _pieces(geometry: Geometry) -> list[tuple[str, float, float, float, float, int]]:
-    """Elements from the top down: ("duct", z0, z1, r0, r1, -1) and ("hole", z, z, r, r, index)."""
+@lru_cache(maxsize=64)
+def _pieces(geometry: Geometry) -> tuple[tuple[str, float, float, float, float, int], ...]:
+    """Elements from the top down: ("duct", z0, z1, r0, r1, -1) and ("hole", z, z, r, r, index);
+    kept for the geometries in use (a fit or a search asks again for the same ones)."""
     cuts = sorted({z for z, _ in geometry.bore_mm} | {h.position_mm for h in geometry.holes})
     hole_at = {h.position_mm: i for i, h in enumerate(geometry.holes)}
     out: list[tuple[str, float, float, float, float, int]] = []
@@ -117,7 +120,7 @@ def _pieces(geometry: Geometry) -> list[tuple[str, float, float, float, float, i
             out.append(("hole", z0, z0, r, r, hole_at[z0]))
         out.append(("duct", z0 / 1000.0, z1 / 1000.0,
                     geometry.diameter_at(z0) / 2000.0, geometry.diameter_at(z1) / 2000.0, -1))
-    return out
+    return tuple(out)
 
 
 def top_impedance(freq_hz: FArray, geometry: Geometry, air: Air, options: ModelOptions) -> CArray:
@@ -172,23 +175,36 @@ def input_impedance(
     n_f = states.shape[0]
     given = np.asarray(freq_hz, dtype=np.float64)
     freq = np.broadcast_to(given, (n_f, given.shape[-1]))
-    # one frequency row shared by every fingering: compute each element once on it and let
-    # broadcasting apply it to all fingerings
+    # One frequency row shared by every fingering: each element is computed once on it, and
+    # fingerings whose holes agree from the foot up to the element share the impedance seen
+    # there (one row per distinct suffix of hole states: 82 rows instead of 216 for the 27
+    # fingerings of the alto over its 8 holes). Otherwise every fingering is its own group.
     shared = given.ndim == 1
     f_el = given if shared else freq
     foot_r = geometry.bore_mm[-1][1] / 2000.0
-    z = np.broadcast_to(_radiation(f_el, foot_r, air, options), freq.shape).astype(np.complex128)
+    radiation = _radiation(f_el, foot_r, air, options)
+    if shared:
+        group = np.zeros(n_f, dtype=np.intp)  # the group of each fingering
+        z = radiation.reshape(1, -1).astype(np.complex128)
+    else:
+        group = np.arange(n_f)
+        z = np.broadcast_to(radiation, freq.shape).astype(np.complex128)
     scales = options.hole_diameter_scale
     for kind, z0, z1, r0, r1, idx in reversed(_pieces(geometry)):
         if kind == "duct":
             z = load(cone_matrix(f_el, z1 - z0, r0, r1, air, options.losses), z)
             continue
         hole = geometry.holes[idx]
-        col = states[:, idx][:, None]
+        if shared:  # the new groups: a group below and this hole's state
+            pairs, group = np.unique(group * 3 + states[:, idx], return_inverse=True)
+            group = group.reshape(-1)
+            parent, state_of = pairs // 3, pairs % 3
+        else:
+            parent, state_of = np.arange(n_f), states[:, idx]
         scale = scales[idx] if idx < len(scales) else 1.0
-        z_new = np.empty_like(z)
+        z_new = np.empty((len(parent), z.shape[1]), dtype=np.complex128)
         for state in (_CLOSED, _OPEN, _HALF):
-            rows = np.flatnonzero(col[:, 0] == state)
+            rows = np.flatnonzero(state_of == state)
             if rows.size == 0:
                 continue
             f_rows = given if shared else freq[rows]
@@ -205,8 +221,10 @@ def input_impedance(
             z0_main = air.density_kg_m3 * air.speed_m_s / (math.pi * r0**2)
             t_a = lengths.series_open_m if is_open else lengths.series_closed_m
             za = (1j * z0_main * k * t_a).astype(np.complex128)
-            z_new[rows] = load(tee_matrix(za, zs), z[rows])
+            z_new[rows] = load(tee_matrix(za, zs), z[parent[rows]])
         z = z_new
+    if shared:
+        z = z[group]  # one row per fingering again
     if include_top:
         z = z + top_impedance(f_el, geometry, air, options)
     return z
@@ -297,6 +315,7 @@ def _polish(
     air: Air,
     options: ModelOptions = ModelOptions(),
     iterations: int = 4,
+    start_fraction: float = 1.0,
 ) -> tuple[FArray, FArray]:
     """Frequencies of the minimum of ``|Z|`` near good guesses, by shrinking parabolas.
 
@@ -319,6 +338,9 @@ def _polish(
     air : Air
     options : ModelOptions
     iterations : int >= 1
+    start_fraction : float in (0, 1]
+        The first parabola is ``start_fraction * half_width`` wide (guesses better than the
+        grid's own points start narrower).
 
     Returns
     -------
@@ -332,7 +354,7 @@ def _polish(
     g0 = np.where(missing, 100.0, guess)
     lo, hi = g0 * (1.0 - half_width), g0 * (1.0 + half_width)
     v = g0
-    h = g0 * half_width
+    h = g0 * half_width * start_fraction
     k = guess.shape[1]
     zm = np.zeros_like(g0)
     for _ in range(iterations):
@@ -428,8 +450,10 @@ def playing_frequencies(
     A coarse logarithmic grid (step ``options.grid_step_ratio``) from a quarter of the
     half-wave frequency of the whole bore to ``max_hz``; minima of ``|Z|`` with a prominence of
     at least a factor 1.5 (scipy.signal.find_peaks on ``-log |Z|``) are taken in rising order and
-    refined by :func:`polish_minima` (shrinking parabolas on ``|Z|^2``, starting one grid step
-    wide). The grid ends at ``max_hz`` or, lower, at ``registers + 1`` times the half-wave
+    refined: first the vertex of the parabola in ``|Z|^2`` through the grid's minimum and its
+    neighbours, then three rounds of :func:`polish_minima`'s shrinking parabolas starting an
+    eighth of a grid step wide (within 0.01 c of a fine golden-section search on the built-in
+    instruments: tests/model/test_fast_paths.py). The grid ends at ``max_hz`` or, lower, at ``registers + 1`` times the half-wave
     frequency of the bore down to the highest hole any fingering opens (a mode's frequency is
     below ``k c / 2 L`` of the shortest air column that plays it, with room to spare for the
     window's and the holes' end corrections, which only lower it).
@@ -463,11 +487,28 @@ def playing_frequencies(
     for i in range(len(patterns)):
         peaks, _ = find_peaks(log_z[i], prominence=math.log(1.5))
         for k, p in enumerate(peaks[:registers]):
-            guess[i, k] = grid[p]
-    freq, z_abs = _polish(geometry, states, guess, options.grid_step_ratio - 1.0, air, options)
+            guess[i, k] = _grid_vertex(grid, z_grid[i], p)
+    # the grid's own parabola stands for the first round of the polish: it starts an eighth of
+    # a grid step wide, three rounds from there reach what four from the grid point did
+    step = options.grid_step_ratio - 1.0
+    freq, z_abs = _polish(geometry, states, guess, step, air, options, iterations=3, start_fraction=0.125)
     z_top_bore = air.density_kg_m3 * air.speed_m_s / (math.pi * (geometry.bore_mm[0][1] / 2000.0) ** 2)
     depth = z_abs / z_top_bore
     return Resonances(freq, np.where(np.isfinite(freq), depth, np.nan))
+
+
+def _grid_vertex(grid: FArray, z_abs: FArray, p: int) -> float:
+    """Vertex of the parabola in ``|Z|^2`` through grid point ``p`` and its neighbours, kept
+    between the neighbours (the grid point itself at an edge or where there is no minimum)."""
+    if p <= 0 or p >= len(grid) - 1:
+        return float(grid[p])
+    x0, x1, x2 = grid[p - 1], grid[p], grid[p + 1]
+    y0, y1, y2 = z_abs[p - 1] ** 2, z_abs[p] ** 2, z_abs[p + 1] ** 2
+    num = (x1 - x0) ** 2 * (y1 - y2) - (x1 - x2) ** 2 * (y1 - y0)
+    den = (x1 - x0) * (y1 - y2) - (x1 - x2) * (y1 - y0)
+    if den == 0.0 or not math.isfinite(num / den):
+        return float(grid[p])
+    return float(min(max(x1 - 0.5 * num / den, x0), x2))
 
 
 def with_end_correction(geometry: Geometry, end_correction_mm: float) -> Geometry:

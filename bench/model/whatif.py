@@ -10,12 +10,13 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING, Literal
 
 import numpy as np
 from numpy.typing import NDArray
 
 from bench.errors import SettingsError
-from bench.model.acoustics import Air
+from bench.model.acoustics import Air, air_at
 from bench.model.geometry import Geometry, Hole
 from bench.model.instrument import (
     ModelOptions,
@@ -38,6 +39,9 @@ __all__ = [
     "shorten_foot",
 ]
 
+if TYPE_CHECKING:
+    from bench.model.fit import FitResult
+
 _BRACKET = 0.08  # relative half-width of the search around the unchanged frequency
 UNCERTAIN_END_CORRECTION_MM = 3.0
 """How far the window's end correction is varied to gauge a change's uncertainty, mm (the
@@ -54,8 +58,10 @@ class Change:
     fingerings : tuple of str
     before_hz, after_hz : float ndarray, shape (F, K), Hz
     uncertainty_cents : float ndarray, shape (F, K), cents, or None
-        How far the change's prediction moves under other plausible models (see
-        :func:`predict_change`); None when not asked for.
+        The change's uncertainty (see :func:`predict_change`); None when not asked for.
+    uncertainty_kind : "fit" | "models" | ""
+        ``fit``: one standard deviation propagated from the fit's covariance; ``models``: the
+        largest departure under other plausible models; "" when there is none.
     """
 
     description: str
@@ -63,6 +69,7 @@ class Change:
     before_hz: NDArray[np.float64]
     after_hz: NDArray[np.float64]
     uncertainty_cents: NDArray[np.float64] | None = None
+    uncertainty_kind: Literal["fit", "models", ""] = ""
 
     @property
     def cents(self) -> NDArray[np.float64]:
@@ -203,18 +210,30 @@ def predict_change(
     registers: int = 3,
     options: ModelOptions | None = None,
     uncertainty: bool = False,
+    fit: FitResult | None = None,
 ) -> Change:
     """Predicted frequencies of every fingering before and after a change.
 
     The changed geometry's modes are searched within 8 % of the unchanged ones, so that mode k
     stays mode k (a change of more than a semitone and a third is followed only that far).
 
-    With ``uncertainty`` the change is predicted again under other plausible models -- the other
-    tone-hole model (Dubos et al. 1999 against Lefebvre & Scavone 2012) and the window's end
-    correction :data:`UNCERTAIN_END_CORRECTION_MM` lower and higher (the spread of its prior in
-    the fit) -- and the largest departure from the nominal change, in cents, is its
+    With ``fit`` (the model fitted to captures, :func:`bench.model.fit.fit_model`) the change is
+    predicted on the fitted model -- its window end correction on both geometries, its hole
+    diameter factors as ``options``; ``air`` should be the room of the captures warmed by the
+    fitted ``warming_c`` -- and its uncertainty is propagated from the fit's covariance:
+    ``sqrt(diag(J Sigma J^T))`` with ``J`` the derivative of the change in cents over the fitted
+    parameters (forward differences of 1 % of each prior spread) and ``Sigma`` the fit's
+    covariance (the first-order propagation of error; JCGM 100:2008 (GUM), sec. 5.1.2). The
+    per-register offsets move a note alike before and after, so they do not enter a change.
+
+    Otherwise, with ``uncertainty``, the change is predicted again under other plausible models
+    -- the other tone-hole model (Dubos et al. 1999 against Lefebvre & Scavone 2012) and the
+    window's end correction :data:`UNCERTAIN_END_CORRECTION_MM` lower and higher (the spread of
+    its prior in the fit) -- and the largest departure from the nominal change, in cents, is its
     uncertainty. This is the spread between models, not a confidence interval.
     """
+    if fit is not None:
+        return _predict_with_fit(geometry, changed, description, air, registers, fit)
     options = options or ModelOptions()
     patterns = [f.holes for f in geometry.fingerings]
     before = playing_frequencies(geometry, patterns, air, registers, options).freq_hz
@@ -235,7 +254,52 @@ def predict_change(
             b = playing_frequencies(g0, patterns, air, registers, opts).freq_hz
             a = _after(g1, patterns, b, air, opts)
             spread = np.fmax(spread, np.abs(1200.0 * np.log2(a / b) - nominal))
-    return Change(description, tuple(f.name for f in geometry.fingerings), before, after, spread)
+    return Change(description, tuple(f.name for f in geometry.fingerings), before, after, spread,
+                  "models" if uncertainty else "")
+
+
+_FIT_STEP = 0.01  # finite-difference step over a fitted parameter, in prior spreads (as in the fit)
+
+
+def _predict_with_fit(
+    geometry: Geometry, changed: Geometry, description: str, air: Air, registers: int, fit: FitResult
+) -> Change:
+    """The change on the fitted model, its uncertainty propagated from the fit's covariance."""
+    patterns = [f.holes for f in geometry.fingerings]
+    labels = [h.label for h in geometry.holes]
+    values = {p.name: p.value for p in fit.parameters}
+    base_scales = fit.options.hole_diameter_scale or (1.0,) * len(labels)
+
+    def change_cents(vals: dict[str, float]) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+        g0, g1 = geometry, changed
+        if "end_correction_mm" in vals and g0.top.kind == "window" and g1.top.kind == "window":
+            ec = max(vals["end_correction_mm"], 0.0)
+            g0, g1 = with_end_correction(g0, ec), with_end_correction(g1, ec)
+        scales = tuple(max(vals.get(f"scale_{label}", s), 0.05) for label, s in zip(labels, base_scales, strict=True))
+        opts = replace(fit.options, hole_diameter_scale=scales)
+        warm = vals.get("warming_c", fit.warming_c) - fit.warming_c
+        a = air_at(min(max(air.temp_c + warm, -10.0), 45.0), air.rh_percent) if warm else air
+        before = playing_frequencies(g0, patterns, a, registers, opts).freq_hz
+        after = _after(g1, patterns, before, a, opts)
+        cents: NDArray[np.float64] = 1200.0 * np.log2(after / before)
+        return before, after, cents
+
+    before, after, nominal = change_cents(values)
+    params = [p for p in fit.parameters if not p.name.startswith("offset_r")]
+    index = {p.name: i for i, p in enumerate(fit.parameters)}
+    cov = fit.covariance
+    if cov is None or not params:
+        return Change(description, tuple(f.name for f in geometry.fingerings), before, after,
+                      np.zeros_like(nominal), "fit")
+    jac = np.zeros((*nominal.shape, len(params)))
+    for j, p in enumerate(params):
+        step = _FIT_STEP * p.prior_spread
+        jac[..., j] = (change_cents({**values, p.name: p.value + step})[2] - nominal) / step
+    rows = [index[p.name] for p in params]
+    sigma = cov[np.ix_(rows, rows)]
+    variance = np.einsum("...i,ij,...j->...", jac, sigma, jac)
+    return Change(description, tuple(f.name for f in geometry.fingerings), before, after,
+                  np.sqrt(np.clip(variance, 0.0, None)), "fit")
 
 
 def sensitivity(
@@ -284,9 +348,12 @@ def format_change(change: Change) -> str:
             else:
                 cells += f"{f'{c:+.1f} +-{unc[j, r]:.1f}':>{width}}"
         lines.append(f"{name:<10}{cells}")
-    if unc is not None:
-        lines.append("+-: the largest departure under the other tone-hole model or a window end correction "
-                     f"{UNCERTAIN_END_CORRECTION_MM:g} mm off")
+    if unc is not None and change.uncertainty_kind == "fit":
+        lines.append("+-: one standard deviation propagated from the fit to the captures (J Sigma J^T over the "
+                     "fitted parameters)")
+    elif unc is not None:
+        lines.append("+-: spread between model variants, not a confidence interval: the largest departure under the "
+                     f"other tone-hole model or a window end correction {UNCERTAIN_END_CORRECTION_MM:g} mm off")
     return "\n".join(lines) + "\n"
 
 

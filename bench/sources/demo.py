@@ -2,13 +2,17 @@
 "Wren", an alto recorder in F from the (invented) Hollin Lane Flute Works.
 
 The loop is rendered once by :mod:`dsp.synth` when the source starts, then handed out
-block by block at real-time pace, over and over. It climbs the first register and
-into the second, with a few things worth fixing on the bench: a flat A4, a sharp-ish
-C6, a slightly flat E5, one note blown in a crescendo until it breaks into the octave (the
-blowing curve then shows a slope and a break level) and one vented octave.
+block by block at real-time pace, over and over. Every pitch comes from the instrument's
+geometry through bench's own model (:mod:`bench.model.demo`): the Wren with two tone holes
+deliberately off (h3 bored too small, so D5 is flat; h5 too large, so Bb4 is sharp), which
+``bench model suggest`` on the demo's captures finds. The player climbs the notes the holes
+were placed for (F4 to F#5, the first register), blows one note in a crescendo until it breaks
+into the octave (the blowing curve then shows a slope and a break level) and vents one note
+into its octave.
 
-Each member of the family plays its own instrument: the Wren's scale moved to the lowest note
-of the profile asked for (the soprano's scale starts on C5, the tenor's on C4 ...).
+Each member of the family plays its own instrument: the soprano plays the built-in Wren soprano
+(its scale starts on C5) through the model, the alto the Wren alto; a member with no built-in
+geometry (tenor, bass ...) plays the alto's model pitches moved to its lowest note.
 """
 
 from __future__ import annotations
@@ -38,14 +42,12 @@ INSTRUMENT = "Hollin Lane Flute Works 'Wren' alto in F"
 
 @dataclass(frozen=True, slots=True)
 class DemoNote:
-    """One note of the demo loop.
+    """One note of the demo loop (its pitch comes from the model: :func:`demo_pitches_hz`).
 
     Attributes
     ----------
     midi : int
-        Fingered note (MIDI number) at A4 = 440 Hz, equal temperament.
-    cents : float, cents
-        How far off the Wren plays it.
+        Fingered note (MIDI number) on the alto; the fingering of that name is played.
     duration_s : float, seconds
     jump : "overblown" | "vented" | None
         A register jump part-way through the note.
@@ -56,33 +58,36 @@ class DemoNote:
     """
 
     midi: int
-    cents: float = 0.0
     duration_s: float = 1.1
     jump: Literal["overblown", "vented"] | None = None
     level_dbfs: float = -20.0
     crescendo_db: float = 0.0
 
 
-# F major over two registers, lowest note F4 (MIDI 65), then a short way down.
+# The notes the alto's holes were placed for (first register), lowest note F4 (MIDI 65), then
+# a short way down. The model plays the other fingerings of the Wren (forked ones, the second
+# register) well off their names, so the demo leaves them out: its faults are the two holes.
 DEMO_SCALE: tuple[DemoNote, ...] = (
-    DemoNote(65, +2),  # F4
-    DemoNote(67, -3),  # G4
-    DemoNote(69, -19),  # A4: flat, the thumb hole wants undercutting
-    DemoNote(70, +4),  # Bb4
-    DemoNote(72, +1),  # C5
-    DemoNote(72, +1, duration_s=3.0, jump="overblown", level_dbfs=-26.0, crescendo_db=12.0),  # C5 crescendo: breaks
-    DemoNote(74, -2),  # D5
-    DemoNote(76, -12),  # E5: a little flat
-    DemoNote(77, +3),  # F5
-    DemoNote(79, +5, level_dbfs=-17),  # G5 (second register)
-    DemoNote(81, +2, level_dbfs=-16),  # A5
-    DemoNote(82, -4, level_dbfs=-16),  # Bb5
-    DemoNote(84, +14, level_dbfs=-15),  # C6: sharp
-    DemoNote(79, 0, level_dbfs=-17),  # G5
-    DemoNote(69, -17),  # A4 again: still flat
-    DemoNote(67, -2, duration_s=1.6, jump="vented"),  # G4 vented into its octave
-    DemoNote(65, +1, duration_s=1.6),  # F4
+    DemoNote(65),  # F4: every hole closed, in tune
+    DemoNote(67),  # G4
+    DemoNote(69),  # A4
+    DemoNote(70),  # Bb4: sharp, h5 is too large
+    DemoNote(72),  # C5
+    DemoNote(72, duration_s=3.0, jump="overblown", level_dbfs=-26.0, crescendo_db=12.0),  # C5 crescendo: breaks
+    DemoNote(74),  # D5: flat, h3 is too small
+    DemoNote(76),  # E5
+    DemoNote(78),  # F#5
+    DemoNote(74),  # D5 again: still flat
+    DemoNote(70),  # Bb4 again: still sharp
+    DemoNote(67, duration_s=1.6, jump="vented"),  # G4 vented into its octave
+    DemoNote(65, duration_s=1.6),  # F4
 )
+
+
+def _profile(profile: str | InstrumentProfile) -> InstrumentProfile:
+    from bench.workflow.profiles import get_profile
+
+    return get_profile(profile) if isinstance(profile, str) else profile
 
 
 def demo_transpose(profile: str | InstrumentProfile | None) -> int:
@@ -93,24 +98,55 @@ def demo_transpose(profile: str | InstrumentProfile | None) -> int:
     """
     if profile is None:
         return 0
-    from bench.workflow.profiles import get_profile
+    return _profile(profile).lowest_midi - DEMO_SCALE[0].midi
 
-    prof = get_profile(profile) if isinstance(profile, str) else profile
-    return prof.lowest_midi - DEMO_SCALE[0].midi
+
+def demo_geometry_name(profile: str | InstrumentProfile | None) -> str:
+    """The built-in geometry whose model pitches the demo plays for ``profile`` (the alto's when
+    the profile has none of its own).
+
+    >>> demo_geometry_name("soprano"), demo_geometry_name("tenor"), demo_geometry_name(None)
+    ('wren-soprano', 'wren-alto', 'wren-alto')
+    """
+    from bench.model.demo import DEMO_GEOMETRY
+    from bench.model.geometry import geometry_for_profile
+
+    if profile is None:
+        return DEMO_GEOMETRY
+    return geometry_for_profile(_profile(profile).name) or DEMO_GEOMETRY
+
+
+def demo_pitches_hz(profile: str | InstrumentProfile | None = None) -> list[float]:
+    """Frequency of each note of :data:`DEMO_SCALE` on ``profile``'s instrument, Hz, from the model.
+
+    The fingering named by the note (moved to the profile's compass) of the profile's built-in
+    geometry, with the demo's holes put off, in its own register, bore at 25 degC
+    (:func:`bench.model.demo.demo_notes`). A profile with no built-in geometry plays the alto's
+    pitches moved by :func:`demo_transpose` semitones (12-TET ratios).
+    """
+    from bench.model.demo import demo_notes
+    from bench.tuning.notes import parse_note
+
+    name = demo_geometry_name(profile)
+    shift = demo_transpose(profile)
+    by_midi = {parse_note(n.name): n.freq_hz for n in demo_notes(geometry=name)}
+    if name == "wren-alto":
+        ratio = 2.0 ** (shift / 12.0)
+        return [by_midi[n.midi] * ratio for n in DEMO_SCALE]
+    return [by_midi[n.midi + shift] for n in DEMO_SCALE]
 
 
 def demo_events(a4_hz: float = 440.0, profile: str | InstrumentProfile | None = None) -> list[NoteEvent]:
-    """The demo loop as :class:`dsp.synth.NoteEvent` objects (pitch at ``a4_hz``), played
-    on the family member ``profile`` (a name or a profile; None: the alto)."""
+    """The demo loop as :class:`dsp.synth.NoteEvent` objects, played on the family member
+    ``profile`` (a name or a profile; None: the alto). The instrument is built for A4 = 440 Hz;
+    another ``a4_hz`` scales every pitch by ``a4_hz / 440``."""
     from dsp.synth import NoteEvent
 
-    shift = demo_transpose(profile)
     events = []
-    for i, note in enumerate(DEMO_SCALE):
-        f0_hz = a4_hz * 2 ** ((note.midi + shift - 69) / 12) * 2 ** (note.cents / 1200)
+    for i, (note, f0_hz) in enumerate(zip(DEMO_SCALE, demo_pitches_hz(profile), strict=True)):
         events.append(
             NoteEvent(
-                f0_hz,
+                f0_hz * a4_hz / 440.0,
                 note.duration_s,
                 level_dbfs=note.level_dbfs,
                 vibrato_cents=4.0 if i % 3 == 2 and not note.crescendo_db else 0.0,
@@ -140,9 +176,7 @@ def demo_instrument(profile: str | InstrumentProfile | None = None) -> str:
     """What the demo plays for ``profile`` (the Wren alto for None)."""
     if profile is None:
         return INSTRUMENT
-    from bench.workflow.profiles import get_profile
-
-    prof = get_profile(profile) if isinstance(profile, str) else profile
+    prof = _profile(profile)
     return f"Hollin Lane Flute Works 'Wren' {prof.title}"
 
 

@@ -24,7 +24,7 @@ import time
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, ClassVar
+from typing import TYPE_CHECKING, Any, ClassVar
 
 from textual.app import App, ComposeResult
 from textual.binding import Binding
@@ -58,6 +58,7 @@ from bench.ui.deviation import DeviationScale
 from bench.ui.dialogs import ValueDialog
 from bench.ui.harmonics import HarmonicBars
 from bench.ui.help_screen import KeyGuide, binding_rows
+from bench.ui.model_view import ModelScreen
 from bench.ui.notices import KEEP_S, NoticeLine, ShownNotice
 from bench.ui.panels import DetailLine, SessionBar, SettingsPanel
 from bench.ui.readout import CentsFace, NoteFace, offset_side
@@ -69,6 +70,10 @@ from bench.workflow.captures import Capture
 from bench.workflow.chart import TuningChart
 from bench.workflow.live import LiveWorkflow
 from bench.workflow.profiles import InstrumentProfile, get_profile
+
+if TYPE_CHECKING:
+    from bench.model.geometry import Geometry
+    from bench.model.live import ModelReport
 
 POLL_HZ = 30.0
 """Default screen update rate, polls of ``engine.latest()`` per second."""
@@ -84,6 +89,8 @@ _EARLY_EVENTS = 64  # events kept while the app is not yet listening
 _BLOWING_EVERY = 3  # polls between blowing-curve updates on its view (10 Hz at 30 Hz)
 DEFAULT_PROFILE = "alto"
 """Instrument profile when none is given."""
+MODEL_DEBOUNCE_S = 0.6
+"""The model view refits this long after the last capture (captures often come in a run)."""
 
 
 
@@ -143,6 +150,7 @@ CONTROLS: tuple[Control, ...] = (
     Control("e", "type_label", "label", "Type the session label put on the next captures"),
     Control("v", "chart_view", "chart", "Tuning chart view: the compass against its targets", True),
     Control("w", "blowing_view", "blowing", "Blowing-curve view: slope in c/dB, break level", True),
+    Control("m", "model_view", "model", "Model view: captured notes against the instrument model, and its fit", True),
     Control("escape", "live_view", "live", "Back to the live view"),
     Control("o", "tone", "tone", "Reference tone on / off: the target note sounds through the output"),
     Control("O", "tone_voice", "tone voice", "Reference tone voice: sine / soft reed"),
@@ -219,6 +227,9 @@ class BenchApp(App[int]):
         Opens the reference tone's output (the tests give a stand-in); the default output if None.
     tone_level_dbfs : float, optional
         Its starting peak level, dBFS (``--drone-level-db``); -18 if None.
+    geometry : Geometry, optional
+        The instrument's geometry for the model view; the built-in geometry of the profile if
+        None (:func:`bench.model.geometry.geometry_for_profile`).
 
     Raises
     ------
@@ -240,6 +251,14 @@ class BenchApp(App[int]):
         def __init__(self, capture: Capture) -> None:
             super().__init__()
             self.capture = capture
+
+    class ModelRefreshed(Message):
+        """The model was refitted to the captures (posted from the worker thread)."""
+
+        def __init__(self, report: ModelReport, generation: int) -> None:
+            super().__init__()
+            self.report = report
+            self.generation = generation
 
     class CaptureRefused(Message):
         """A requested capture could not be taken (posted from the engine thread)."""
@@ -291,6 +310,7 @@ class BenchApp(App[int]):
         tone_note: str | None = None,
         tone_opener: Any = None,
         tone_level_dbfs: float | None = None,
+        geometry: Geometry | None = None,
     ) -> None:
         super().__init__()
         if not poll_hz > 0:
@@ -342,6 +362,15 @@ class BenchApp(App[int]):
         self._seen_captures: set[int] = set()
         self._last_capture: Any = None
         self._blowing_line = ""
+        self.geometry: Geometry | None = geometry
+        """Instrument geometry of the model view (resolved from the profile when first needed)."""
+        self.model_report: ModelReport | None = None
+        """The latest report of the model view (captures against the model, and the fit)."""
+        self._geometry_problem = ""
+        self._model_generation = 0  # captures seen, as a version number
+        self._model_shown_generation = -1  # captures the latest report was made from
+        self._model_due_s: float | None = None  # when the debounced refit starts
+        self._model_busy = False
 
     # -- building -------------------------------------------------------------------
 
@@ -492,6 +521,8 @@ class BenchApp(App[int]):
 
     def _poll(self) -> None:
         self._polls += 1
+        if self._model_due_s is not None and not self._model_busy and time.monotonic() >= self._model_due_s:
+            self._start_model_fit()
         if self._polls % _STATS_EVERY == 0:
             self._refresh_session()
             if self._notices:
@@ -830,6 +861,9 @@ class BenchApp(App[int]):
         if new or (last is not None and last.index == cap.index):  # a margin learnt later: not newer
             self._last_capture = cap
         self.chart = self.workflow.chart() if self.workflow is not None else None
+        self._model_generation += 1
+        if isinstance(self._top_screen(), ModelScreen):
+            self._model_due_s = time.monotonic() + MODEL_DEBOUNCE_S
         self._show_workflow()
         if new:
             how = "by key" if cap.source == "manual" else "auto"
@@ -895,7 +929,71 @@ class BenchApp(App[int]):
                 )
             view.query_one("#chart-last", Label).update(last)
             self._refresh_chart_blowing_line(view)
+        if isinstance(view, ModelScreen):
+            self._fill_model_view(view)
+            return
         self._refresh_blowing(view)
+
+    # -- the model view: captures against the instrument model, refitted in a worker ------------
+
+    def _model_geometry(self) -> Geometry | None:
+        """The session's geometry (the profile's built-in one unless one was given), or None
+        with the reason kept for the view."""
+        if self.geometry is None and not self._geometry_problem:
+            from bench.model.geometry import builtin_geometry, geometry_for_profile
+
+            name = geometry_for_profile(self.profile.name)
+            if name is None:
+                self._geometry_problem = (
+                    f"no built-in geometry for the {self.profile.name}; give one with --geometry FILE "
+                    "(bench model predict explains the format)"
+                )
+            else:
+                self.geometry = builtin_geometry(name)
+        return self.geometry
+
+    def _fill_model_view(self, view: ModelScreen) -> None:
+        """Show the latest report; ask for a refit when captures came since it was made."""
+        stale = self._model_shown_generation != self._model_generation
+        if self._model_geometry() is not None and stale and self._model_due_s is None:
+            self._model_due_s = time.monotonic()  # just opened: refit at once
+        busy = self._model_busy or self._model_due_s is not None
+        view.show(self.model_report, self._geometry_problem, busy)
+
+    def _start_model_fit(self) -> None:
+        """Refit the model to the captures so far, in a worker thread (about a second: never on
+        the screen's thread, never on the engine's)."""
+        self._model_due_s = None
+        geometry = self._model_geometry()
+        workflow = self.workflow
+        if geometry is None or workflow is None:
+            return
+        captures = list(workflow.captures())
+        generation = self._model_generation
+        settings = getattr(self, "settings", None)
+        rh = settings.rh_percent if settings is not None else None
+        self._model_busy = True
+
+        def fit() -> None:  # worker thread
+            from bench.model.live import ModelReport, model_report
+
+            try:
+                report = model_report(geometry, captures, default_rh=60.0 if rh is None else rh)
+            except Exception as exc:  # noqa: BLE001 - a fault of the model must not leave the view waiting
+                report = ModelReport(geometry.title, len(captures), problem=f"the fit failed: {exc}")
+            self.post_message(self.ModelRefreshed(report, generation))
+
+        self.run_worker(fit, thread=True, group="model", name="model fit", exit_on_error=False)
+
+    def on_bench_app_model_refreshed(self, message: ModelRefreshed) -> None:
+        self._model_busy = False
+        self.model_report = message.report
+        self._model_shown_generation = message.generation
+        top = self._top_screen()
+        if isinstance(top, ModelScreen):
+            if message.generation != self._model_generation and self._model_due_s is None:
+                self._model_due_s = time.monotonic() + MODEL_DEBOUNCE_S  # captures came meanwhile
+            self._fill_model_view(top)
 
     def _refresh_blowing(self, view: WorkflowView) -> None:
         if self.workflow is None:
@@ -978,7 +1076,7 @@ class BenchApp(App[int]):
             if isinstance(top, kind or ()):  # the same key again: back to live
                 return
         if kind is not None:
-            name = "chart" if kind is ChartScreen else "blowing"
+            name = {ChartScreen: "chart", BlowingScreen: "blowing", ModelScreen: "model"}[kind]
             if not self.is_screen_installed(name):
                 self.install_screen(kind(), name=name)
             self.push_screen(name)
@@ -988,6 +1086,9 @@ class BenchApp(App[int]):
 
     def action_blowing_view(self) -> None:
         self._switch_view(BlowingScreen)
+
+    def action_model_view(self) -> None:
+        self._switch_view(ModelScreen)
 
     def action_live_view(self) -> None:
         self._switch_view(None)
@@ -1075,6 +1176,7 @@ def run_app(
     label: str = "",
     tone_note: str | None = None,
     tone_level_dbfs: float | None = None,
+    geometry: Geometry | None = None,
 ) -> int:
     """Show the bench screen until the user quits; start and stop the engine.
 
@@ -1116,6 +1218,8 @@ def run_app(
         Sound the reference tone from the start on this note (``--drone``).
     tone_level_dbfs : float, optional
         Its peak level, dBFS (``--drone-level-db``).
+    geometry : Geometry, optional
+        The instrument's geometry for the model view (see :class:`BenchApp`).
 
     Returns
     -------
@@ -1144,6 +1248,7 @@ def run_app(
         label=label,
         tone_note=tone_note,
         tone_level_dbfs=tone_level_dbfs,
+        geometry=geometry,
     )
     try:
         code = app.run()

@@ -85,6 +85,8 @@ def test_temperature_source_sets_the_air_in_the_log(tmp_path, capsys):
         (["run", "--log-rate", "0", "--input", "demo", "--no-ui"], "--log-rate '0' must be above 0"),
         (["run", "--temp-source", "cmd:", "--input", "demo"], "names no command"),
         (["run", "--a4", "1000", "--input", "demo"], "1000"),
+        (["run", "--input", "demo", "--geometry", "missing.toml"], "missing.toml: file: not found"),
+        (["demo", "--no-ui", "--geometry", "wren-alto"], "--geometry applies to the screen's model view"),
     ],
 )
 def test_bad_options_get_one_line_and_exit_2(argv, message, capsys):

@@ -105,14 +105,24 @@ def test_frame_blocks_and_to_mono():
 # -- demo instrument -----------------------------------------------------------------
 
 
-def test_demo_scale_is_the_wren_in_f_over_two_registers():
+def test_demo_scale_is_the_wren_in_f_as_the_model_plays_it():
+    from bench.model.demo import demo_notes
+    from bench.tuning.notes import parse_note
+
     events = demo_events()
-    # F4 = 349.2282 Hz at A4 = 440 (REFERENCES section 1, equal temperament), the lowest note
-    assert DEMO_SCALE[0].midi == min(n.midi for n in DEMO_SCALE) == 65
-    assert events[0].f0_hz == pytest.approx(349.2282 * 2 ** (DEMO_SCALE[0].cents / 1200), rel=1e-6)
-    assert max(n.midi for n in DEMO_SCALE) - 65 >= 12  # reaches the second register
+    # every pitch is the model's for the fingering of that name (the alto with two holes off)
+    model = {n.name: n.freq_hz for n in demo_notes()}
+    by_midi = {parse_note(name): hz for name, hz in model.items()}
+    assert [e.f0_hz for e in events] == pytest.approx([by_midi[n.midi] for n in DEMO_SCALE], rel=1e-12)
+    assert DEMO_SCALE[0].midi == min(n.midi for n in DEMO_SCALE) == 65  # F4, every hole closed
+    # F4 = 349.2282 Hz at A4 = 440 (REFERENCES section 1, equal temperament): the lowest note
+    # is in tune (the window's end correction was set for it)
+    assert 1200 * np.log2(events[0].f0_hz / 349.2282) == pytest.approx(0.0, abs=3.0)
     assert {e.jump_kind for e in events} == {None, "overblown", "vented"}
-    assert any(-25 <= n.cents <= -10 for n in DEMO_SCALE)  # something flat to fix
+    # something to fix: D5 (587.3295 Hz) flat through the narrow h3, Bb4 (466.1638 Hz) sharp
+    assert 1200 * np.log2(model["D5"] / 587.3295) < -5.0
+    assert 1200 * np.log2(model["Bb4"] / 466.1638) > 5.0
+    assert demo_events(a4_hz=415.0)[0].f0_hz == pytest.approx(events[0].f0_hz * 415.0 / 440.0, rel=1e-12)
 
 
 def test_demo_loop_plays_its_first_note_at_the_intended_pitch():
@@ -135,7 +145,7 @@ def test_demo_loop_plays_its_first_note_at_the_intended_pitch():
         f = float(pitch(np.ascontiguousarray(audio[i : i + 512]))[0])
         if pitch.get_confidence() > 0.8:
             f0.append(f)
-    want_hz = 349.2282 * 2 ** (DEMO_SCALE[0].cents / 1200)
+    want_hz = demo_events()[0].f0_hz  # the model's F4 (see the test above)
     assert len(f0) > 20
     assert 1200 * np.log2(np.median(f0) / want_hz) == pytest.approx(0.0, abs=3.0)
 

@@ -150,3 +150,63 @@ def test_a_change_carries_the_spread_between_plausible_models():
     assert 0.0 < change.uncertainty_cents[j, 0] < abs(change.cents[j, 0])
     assert np.all(change.uncertainty_cents[np.isfinite(change.uncertainty_cents)] >= 0.0)
     assert "+-" in format_change(change)
+
+
+def test_uncertainty_propagated_from_the_fit_agrees_with_monte_carlo():
+    # The first-order propagation sqrt(diag(J Sigma J^T)) (JCGM 100:2008, GUM sec. 5.1.2) is
+    # checked against its Monte Carlo counterpart (JCGM 101:2008, GUM Supplement 1): the change
+    # predicted for parameters drawn from the fit's normal distribution, whose standard deviation
+    # must match. The fit is to the demo's notes (the alto with h3 and h5 put off, bench.model.demo).
+    from dataclasses import replace as dc_replace
+
+    from bench.model.demo import demo_notes
+    from bench.model.fit import FitTarget, fit_model
+    from bench.model.instrument import with_end_correction
+
+    names = ["F4", "G4", "A4", "Bb4", "C5", "D5", "E5", "F#5"]
+    demo = {n.name: n.freq_hz for n in demo_notes()}
+    g = builtin_geometry("wren-alto")
+    fit = fit_model(g, [FitTarget(n, 1, demo[n], 20.0, 60.0, 2.0) for n in names])
+    air = air_at(20.0 + fit.warming_c, 60.0)
+    changed = enlarge_hole(fit.geometry, "h3", 6.5)
+    change = predict_change(fit.geometry, changed, "h3", air, registers=1, fit=fit)
+    assert change.uncertainty_kind == "fit" and "propagated from the fit" in format_change(change)
+    j = change.fingerings.index("D5")
+    assert change.cents[j, 0] > 3.0  # D5 vents through h3: it rises
+    # Monte Carlo over the fitted parameters (offsets leave a change alone and are drawn too)
+    rng = np.random.default_rng(5)
+    names_p = [p.name for p in fit.parameters]
+    draws = rng.multivariate_normal([p.value for p in fit.parameters], fit.covariance, size=40)
+    labels = [h.label for h in g.holes]
+    d5 = []
+    for draw in draws:
+        vals = dict(zip(names_p, draw, strict=True))
+        scales = tuple(vals.get(f"scale_{lab}", s) for lab, s in zip(labels, fit.options.hole_diameter_scale, strict=True))
+        ec = vals["end_correction_mm"]
+        opts = dc_replace(fit.options, hole_diameter_scale=scales)
+        a = air_at(20.0 + vals["warming_c"], 60.0)
+        c = predict_change(with_end_correction(fit.geometry, ec), with_end_correction(changed, ec), "mc", a, 1, opts)
+        d5.append(c.cents[j, 0])
+    mc_sd = float(np.std(d5, ddof=1))
+    print(f"D5: change {change.cents[j, 0]:.2f} c, propagated sd {change.uncertainty_cents[j, 0]:.3f} c, Monte Carlo sd {mc_sd:.3f} c")
+    # 40 draws: the sample standard deviation is within about +-25 % (2 sigma) of the true one
+    assert change.uncertainty_cents[j, 0] == pytest.approx(mc_sd, rel=0.35)
+    assert float(np.mean(d5)) == pytest.approx(change.cents[j, 0], abs=2 * mc_sd / math.sqrt(40) + 0.05)
+
+
+def test_whatif_command_says_which_uncertainty(tmp_path, capsys):
+    from bench.model.demo import demo_notes
+    from bench.workflow.captures import write_captures
+    from tests.model.test_fit import _capture
+
+    demo = {n.name: n for n in demo_notes()}
+    caps = [_capture(i + 1, n, 1, demo[n].freq_hz) for i, n in enumerate(["F4", "G4", "A4", "Bb4", "C5", "D5", "E5", "F#5"])]
+    path = tmp_path / "a.captures.csv"
+    write_captures(path, caps)
+    assert main(["model", "whatif", "wren-alto", "--hole", "h3", "--diameter", "6.5", "--registers", "1",
+                 "--captures", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "the model fitted to 8 captured notes" in out and "propagated from the fit's covariance" in out
+    assert main(["model", "whatif", "wren-alto", "--hole", "h3", "--diameter", "6.5", "--registers", "1"]) == 0
+    out = capsys.readouterr().out
+    assert "spread between model variants" in out and "propagated" not in out

@@ -9,6 +9,8 @@ trade that blowing harder sharpens a duct flute and finally breaks it into the o
 
 from __future__ import annotations
 
+import math
+
 import pytest
 
 from bench.reading import make_reading
@@ -21,10 +23,22 @@ from bench.workflow.profiles import get_profile
 
 @pytest.mark.parametrize("name", ["soprano", "alto", "tenor", "bass"])
 def test_each_profile_plays_its_own_instrument(name):
+    from bench.model.demo import demo_notes
+    from bench.sources.demo import demo_transpose
+
     prof = get_profile(name)
     events = demo_events(profile=name)
     lowest_hz = 440.0 * 2 ** ((prof.lowest_midi - 69) / 12)  # ISO 16 / 12-TET
-    assert events[0].f0_hz == pytest.approx(lowest_hz * 2 ** (DEMO_SCALE[0].cents / 1200), rel=1e-9)
+    # its lowest note, every hole closed, within a few cents of the profile's lowest note
+    assert 1200 * math.log2(events[0].f0_hz / lowest_hz) == pytest.approx(0.0, abs=3.0)
+    if name in ("alto", "soprano"):  # its own built-in geometry, through the model
+        geometry = f"wren-{name}"
+        first = demo_notes(geometry=geometry)[0]
+        assert first.holes == "x" * len(first.holes) and events[0].f0_hz == pytest.approx(first.freq_hz, rel=1e-12)
+    else:  # no geometry of its own: the alto's model pitches moved to its compass
+        alto = demo_events()
+        ratio = 2 ** (demo_transpose(name) / 12)
+        assert [e.f0_hz for e in events] == pytest.approx([e.f0_hz * ratio for e in alto], rel=1e-12)
     assert name in DemoSource(48000, profile=name).description
 
 
