@@ -454,12 +454,15 @@ def main() -> int:
     ap.add_argument("--no-pyin", action="store_true", help="leave librosa pyin out of the scene tables (slow)")
     ap.add_argument("--skip", nargs="*", default=[], choices=["scenes", "outside", "speed"])
     ap.add_argument("--json", type=Path, help="write the figures to this JSON file")
+    ap.add_argument("--n-seeds", type=int, default=None, help="the first N seeds of the set per scene type")
     args = ap.parse_args()
     if hasattr(os, "sched_setaffinity"):
         os.sched_setaffinity(0, {min(os.sched_getaffinity(0))})
     seeds = list(TUNING_SEEDS if args.seeds == "tuning" else HELDOUT_SEEDS)
     if args.quick:
         seeds = seeds[:QUICK_SEEDS]
+    if args.n_seeds is not None:
+        seeds = seeds[: max(1, args.n_seeds)]
     scene_types = args.scene or list(SCENE_TYPES)
     print(f"bench field benchmark: {args.seeds} seeds {seeds[0]}-{seeds[-1]} ({len(seeds)} per scene type)"
           f"{' (quick)' if args.quick else ''}")
