@@ -134,28 +134,7 @@ def test_ours_agrees_with_pyin(note):
     assert abs(err) <= PYIN_TOL_CENTS, f"ours - pyin {err:+.2f} c"
 
 
-# Measured on the analyser of this branch (ours reads these an octave LOW on 6 and 10 frames of
-# the inner part, 30-50 ms, where Praat ac and pyin read the note: the frames' H1 is the sampled
-# tone's faint sub-octave, -43 to -57 dB under H2). A defect of the analyser the register/voicing
-# issue is about, left to its owners; strict, so that the fix shows here as XPASS.
-OCTAVE_LOW_KNOWN = {("flute", 79), ("flute", 83)}
-# Measured after the end-of-note voicing rule (dsp/voicing.py) was merged: the sampled flute's
-# E4 dips 8 dB in 60 ms mid-note (about 120 dB/s, faster than the rule's 60 dB/s free decay), and
-# 14 of its 110 inner frames (70 ms) go unvoiced. A defect of that rule on real material, left
-# open in the register/voicing issue; strict, so a fix shows here as XPASS.
-MID_NOTE_GAP_KNOWN = {("flute", 64)}
-
-
-@pytest.mark.parametrize(
-    "note",
-    [pytest.param(n, marks=pytest.mark.xfail(strict=True, reason="ours reads a few frames an octave low (sub-octave "
-                                             "at -43..-57 dB re H2); analyser defect, measured"))
-     if (n.instrument, n.midi) in OCTAVE_LOW_KNOWN
-     else pytest.param(n, marks=pytest.mark.xfail(strict=True, reason="end-of-note rule unvoices 70 ms of an 8 dB "
-                                                  "mid-note dip; voicing defect, measured"))
-     if (n.instrument, n.midi) in MID_NOTE_GAP_KNOWN else n for n in NOTES],
-    ids=_name,
-)
+@pytest.mark.parametrize("note", NOTES, ids=_name)
 def test_no_octave_errors_against_the_nominal_note(note):
     # Every voiced frame of ours inside the note is within half an octave of the nominal note
     # (a sample may be tuned a few cents off, never by a tritone), and most frames are voiced.
