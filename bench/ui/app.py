@@ -405,6 +405,14 @@ class BenchApp(App[int]):
 
     def on_mount(self) -> None:
         self._main_screen = self.screen
+        # Find every live widget now, while the screen holds them: a poll that comes during
+        # shutdown, after the widgets were removed, then sets values on them instead of
+        # failing to find them (seen under load when another view was on top until the end).
+        for selector in (NoteFace, CentsFace, DeviationScale, DetailLine, HarmonicBars, PitchTrail,
+                         RegisterBanner, CaptureLine, SessionBar, SettingsPanel):
+            self._view(selector)
+        for caption in ("#cents-caption", "#note-caption"):
+            self._view(caption, Label)
         self._view("#harmonics").border_title = "harmonic balance"
         self._view("#trail").border_title = f"trail {TRAIL_WINDOW_S:.0f} s"
         self._view("#tuning").border_title = (
