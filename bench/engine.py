@@ -22,7 +22,6 @@ from __future__ import annotations
 
 import collections
 import dataclasses
-import math
 import threading
 import time
 from collections.abc import Callable, Sequence
@@ -35,7 +34,7 @@ from numpy.typing import NDArray
 
 from bench.errors import DeviceError, LogError, SettingsError
 from bench.framelog import CsvFrameLog, new_log_path
-from bench.reading import Reading, make_reading, map_or_none
+from bench.reading import Reading, make_reading, map_or_none, mode_of
 from bench.sources.base import AudioSource, Clock
 from bench.tuning import TuningSettings, map_frequency
 from bench.tuning.mapping import target_hz_at_air
@@ -897,7 +896,7 @@ def _crack_message(reading: Reading, recent_f0_hz: list[float]) -> str:
     held = _note_of(held_hz, reading.settings) or "note"
     upper = None
     if held_hz:
-        spoke = [f for f in recent_f0_hz if f > 0.0 and min(abs(1200.0 * math.log2(f / (m * held_hz))) for m in (2, 3)) <= 50.0]
+        spoke = [f for f in recent_f0_hz if mode_of(f, held_hz) in (2, 3)]
         upper = _note_of(max(spoke), reading.settings) if spoke else None
     if upper:
         return f"{held} cracked attack: spoke {upper} first"

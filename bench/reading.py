@@ -20,7 +20,7 @@ from dataclasses import dataclass
 from bench.tuning import NoteMapping, TuningSettings, map_frequency
 from dsp.frame import Frame
 
-__all__ = ["Reading", "SettingsKey", "make_reading", "map_or_none"]
+__all__ = ["Reading", "SettingsKey", "make_reading", "map_or_none", "mode_of"]
 
 _NO_HARMONICS: tuple[float | None, ...] = (None,) * 8
 
@@ -225,14 +225,25 @@ class Reading:
         From the ratio of the sounding to the held fundamental when both are known and the
         ratio lies within 50 cents of a whole number; None otherwise.
         """
-        f0, held = self.f0_hz, self.held_f0_hz
-        if f0 is None or not held:
-            return None
-        ratio = f0 / held
-        n = round(ratio)
-        if n < 1 or abs(1200.0 * math.log2(ratio / n)) > 50.0:
-            return None
-        return int(n)
+        return mode_of(self.f0_hz, self.held_f0_hz)
+
+
+def mode_of(f0_hz: float | None, held_f0_hz: float | None) -> int | None:
+    """Mode (1, 2, 3 ...) of a held note ``held_f0_hz`` that a sound at ``f0_hz`` is, Hz.
+
+    The nearest whole ratio when it lies within 50 cents; None otherwise or when either is
+    unknown.
+
+    >>> mode_of(880.0, 440.0), mode_of(660.0, 440.0), mode_of(None, 440.0)
+    (2, None, None)
+    """
+    if not f0_hz or not held_f0_hz:
+        return None
+    ratio = f0_hz / held_f0_hz
+    n = round(ratio)
+    if n < 1 or abs(1200.0 * math.log2(ratio / n)) > 50.0:
+        return None
+    return int(n)
 
 
 def make_reading(
