@@ -16,7 +16,9 @@ odd/even balance, and the register evidence (:mod:`dsp.measure`). The register m
 (read out of the same FFT) and the level of the newest quarter window; a sounding note stays
 voiced on weaker evidence (hysteresis). Once a jump is past a frame's centre and the window
 still shows the held note (reverberation), the frame's pitch is measured on the harmonics of
-mode x held note. Python only checks the block and builds the Frames.
+mode x held note. A reading ends with the note: once the direct sound has stopped by a
+frame's centre, its reverberant tail is no longer voiced (:mod:`dsp.voicing`). Python only
+checks the block and builds the Frames.
 
 Known limits: the window's smoothing of a vibrato is taken out only to second order (a 40-cent,
 7 Hz vibrato still reads ~0.35 cent off in the median) and not at all below 12 bins of f0
@@ -59,6 +61,7 @@ from dsp.measure import MAINS_HZ, MAINS_TOLERANCE
 from dsp.rates import MAX_SAMPLE_RATE, MIN_SAMPLE_RATE
 from dsp.register import JUMP_NAMES, REGISTER_NAMES, RegisterMonitor
 from dsp.spectrum import newest_half_taps
+from dsp.voicing import N_VOICING_STATE, voicing_reset
 
 __all__ = ["FMAX_HZ", "FMIN_HZ", "MAX_SAMPLE_RATE", "MIN_SAMPLE_RATE", "StreamingAnalyser", "prepare_kernels"]
 
@@ -174,6 +177,7 @@ class StreamingAnalyser:
         )  # fmt: skip
         self._half_taps = newest_half_taps(self._n)
         self._carry = np.empty(2)
+        self._voicing = np.empty(N_VOICING_STATE)  # end-of-note state (dsp.voicing)
         c = _CHUNK_FRAMES
         # what one chunk's frames are measured into; views per chunk size in self._work
         self._work_arrays = (
@@ -216,6 +220,7 @@ class StreamingAnalyser:
         self._next_end = self._n
         self._carry[CARRY_PREV_F0] = math.nan
         self._carry[CARRY_JUMPED_RUN] = 0.0
+        voicing_reset(self._voicing)
         self._monitor.lock(None)
         self._monitor.reset()
 
@@ -323,7 +328,7 @@ class StreamingAnalyser:
         if work is None:
             x32, power, floor, out = (a[:c] for a in self._work_arrays)
             work = self._work[c] = (
-                x32, power, floor, self._params, self._hum_hz, *self._half_taps, *self._monitor.arrays, self._carry, out,
+                x32, power, floor, self._params, self._hum_hz, *self._half_taps, *self._monitor.arrays, self._carry, self._voicing, out,
             )  # fmt: skip
         analyse_chunk(self._store, first, self._hop, *work)
         sr = self._sr

@@ -5,7 +5,8 @@ single precision (rounding noise ~1e-7 of the peak, far under any microphone's f
 their FFTs (pocketfft, called from inside numba through rocket-fft; one per frame, the newest
 half window's spectrum is read out of it); measures each frame
 (:func:`dsp.measure.measure_frames`); keeps a sounding note voiced on weaker evidence
-(hysteresis); steps the register monitor (:func:`dsp.register.monitor_update`); and, once a
+(hysteresis); ends the reading with the note (:func:`dsp.voicing.end_of_note`: the tail
+in a room is no note); steps the register monitor (:func:`dsp.register.monitor_update`); and, once a
 jump is past a frame's centre while the window still shows the held note (reverberation),
 measures the frame's pitch on the harmonics of mode x held note. One row of ``out`` per
 frame; Python only turns the rows into :class:`dsp.frame.Frame` objects. The monitor's jump
@@ -31,6 +32,7 @@ from dsp.measure import (
     CURVATURE_NOISE,
     FIT_SNR_DB,
     N_FIT_HARMONICS,
+    N_SEGMENTS,
     copy_frames,
     measure_frames,
 )
@@ -47,6 +49,7 @@ from dsp.register import (
     cents_apart,
     monitor_update,
 )
+from dsp.voicing import end_of_note
 
 __all__ = [
     "N_OUT",
@@ -116,6 +119,7 @@ def analyse_chunk(
     st: NDArray[np.float64],
     hist: NDArray[np.float64],
     carry: NDArray[np.float64],
+    voicing: NDArray[np.float64],
     out: NDArray[np.float64],
 ) -> None:
     """Analyse ``x32.shape[0]`` frames; frame ``i`` is ``store[first + i hop :][:n]``, n = ``x32.shape[1]``.
@@ -133,6 +137,8 @@ def analyse_chunk(
     cfg, st, hist : the register monitor's arrays (:class:`dsp.register.RegisterMonitor`)
     carry : float64 (2,), updated
         Previous frame's f0 and the count of jumped frames, from the last chunk.
+    voicing : float64 (:data:`dsp.voicing.N_VOICING_STATE`,), updated
+        State of the end-of-note rule (:func:`dsp.voicing.end_of_note`).
     out : (n_frames, N_OUT) out
         One row per frame (the ``O_*`` columns).
     """
@@ -153,11 +159,16 @@ def analyse_chunk(
     harm_db_a = np.empty((n_frames, N_REPORTED))
     odd_even_a = np.empty(n_frames)
     evidence_a = np.empty((n_frames, EVIDENCE_MODES, 4))
+    seg_ms_a = np.empty((n_frames, 2 * N_SEGMENTS))
+    kept_db_a = np.empty(n_frames)
     measure_frames(
         store, first, hop, n, rect, half_offsets, half_weights, sr, int(params[_P_LO_BIN]), int(params[_P_HI_BIN]),
         int(params[_P_FAST_KEEP]), limit_hz, params[_P_FMIN], params[_P_FMAX], hum_hz[0], hum_hz[1], power, floor,
         f0_a, clarity_a, level_a, fast_level_a, clip_a, voiced_a, sustain_a, harm_db_a, odd_even_a, evidence_a,
+        seg_ms_a, kept_db_a,
     )  # fmt: skip
+    seg_s = n / N_SEGMENTS / sr
+    hop_s = hop / sr
     amp = np.empty(N_FIT_HARMONICS)
     prev = carry[CARRY_PREV_F0]
     jumped_run = carry[CARRY_JUMPED_RUN]
@@ -165,6 +176,7 @@ def analyse_chunk(
         f0 = f0_a[i] if voiced_a[i] else np.nan
         if math.isnan(f0) and not math.isnan(prev) and sustain_a[i] and cents_apart(f0_a[i], prev) <= hold:
             f0 = f0_a[i]
+        f0 = end_of_note(voicing, f0, seg_ms_a[i], kept_db_a[i], seg_s, hop_s)  # the tail of a stopped note is not the note
         monitor_update(cfg, st, hist, f0, evidence_a[i], fast_level_a[i])
         row = out[i]
         held = st[OUT_HELD]

@@ -32,7 +32,7 @@ from dsp.pitch import coarse_f0, refine_f0, strongest_peaks
 from dsp.register import EVIDENCE_HARMONICS, EVIDENCE_MODES, summarise_row
 from dsp.spectrum import band_floor, hann_power, newest_half_power_at
 
-__all__ = ["CLIP_THRESHOLD", "CURVATURE_GAIN", "CURVATURE_NOISE", "FIT_SNR_DB", "MAINS_HZ", "MAINS_TOLERANCE", "N_FIT_HARMONICS", "copy_frames", "measure_frames"]
+__all__ = ["CLIP_THRESHOLD", "CURVATURE_GAIN", "CURVATURE_NOISE", "FIT_SNR_DB", "MAINS_HZ", "MAINS_TOLERANCE", "N_FIT_HARMONICS", "N_SEGMENTS", "copy_frames", "measure_frames"]
 
 MAINS_HZ = np.array([50.0, 60.0, 100.0, 120.0, 150.0, 180.0])
 """Mains hum and its harmonics, Hz: never a note."""
@@ -51,11 +51,13 @@ CLARITY_HOLD = 0.3
 PEAK_SNR_HOLD_DB = 14.0
 FLATNESS_MIN = 0.005  # centre segments within 23 dB of the loudest: level steps pass, knocks (decaying ~10 dB per segment) do not
 CLIP_THRESHOLD = 0.999  # |x| at or above this counts as clipped (full scale is 1.0)
-_SEGMENTS = 8
+N_SEGMENTS = 8
+"""Equal segments of the window whose levels are measured (flatness, newest quarter, end of a note)."""
 _N_PEAKS = 10  # spectral peaks for the coarse match
 _CLARITY_HARMONICS = 40
 _FLOOR_BAND_BINS = 32
 _RELATIVE_FLOOR = 1e-12  # floor never under this share of the strongest bin (digitally clean tones)
+_KEPT_SHARE = 10.0 ** (-15.0 / 10.0)  # harmonics within 15 dB of the strongest count in _kept_db
 
 
 @njit(cache=True, nogil=True)
@@ -90,6 +92,37 @@ def _clarity(power: NDArray[np.float64], f0: float, bin_hz: float, lo_bin: int, 
     n_off = max(top - lo_bin + 1 - n_on, 1.0)
     ratio = (e_off / n_off) / max(e_on / n_on, 1e-300)
     return min(max(1.0 - ratio, 0.0), 1.0)
+
+
+@njit(cache=True, nogil=True)
+def _kept_db(power: NDArray[np.float64], half_power: NDArray[np.float64], f0: float, bin_hz: float, fast_hz: float,
+             limit_hz: float) -> float:
+    """Highest (newest half window / whole window) power ratio over H1..H8 of ``f0``, dB.
+
+    Powers summed over the 3 bins nearest each harmonic (a Hann-windowed sine's sum varies
+    < 0.1 dB with its place between bins, so a steady harmonic reads ~0 dB); ``half_power``
+    holds those bins already (the register evidence reads them); harmonics more than 30 dB
+    under the strongest are left out (_KEPT_SHARE). -inf when none counts.
+    """
+    n_bins = power.size
+    n_half = half_power.size
+    full = np.zeros(8)
+    half = np.zeros(8)
+    top = 0.0
+    for k in range(8):
+        pos = f0 * (k + 1)
+        if pos >= limit_hz:
+            break
+        c = min(max(int(np.rint(pos / bin_hz)), 1), n_bins - 2)
+        full[k] = power[c - 1] + power[c] + power[c + 1]
+        c = min(max(int(np.rint(pos / fast_hz)), 1), n_half - 2)
+        half[k] = max(half_power[c - 1], 0.0) + max(half_power[c], 0.0) + max(half_power[c + 1], 0.0)
+        top = max(top, full[k])
+    best = -np.inf
+    for k in range(8):
+        if full[k] > 0.0 and full[k] >= _KEPT_SHARE * top and half[k] > 0.0:
+            best = max(best, 10.0 * math.log10(half[k] / full[k]))
+    return best
 
 
 @njit(cache=True, nogil=True)
@@ -132,6 +165,8 @@ def measure_frames(
     harm_db_out: NDArray[np.float64],
     odd_even_out: NDArray[np.float64],
     evidence_out: NDArray[np.float64],
+    seg_ms_out: NDArray[np.float64],
+    kept_db_out: NDArray[np.float64],
 ) -> None:
     """Measure ``rect.shape[0]`` frames; frame ``i`` is ``store[first + i hop :][:n]``.
 
@@ -158,6 +193,13 @@ def measure_frames(
         Refined f0 (Hz, nan if none), clarity (0..1), level and newest-quarter level
         (dBFS, -inf for digital silence), clipping, voiced, sustain, H1..H8 (dB re the
         strongest), odd/even (dB), register evidence (n_frames, 3, 4) dB.
+    seg_ms_out : (n_frames, 2 N_SEGMENTS) out
+        Mean square of each eighth of the window, oldest first, then the same of the first
+        difference of the samples (for :mod:`dsp.voicing`).
+    kept_db_out : (n_frames,) out
+        How well the best-kept harmonic of f0 (H1..H8 within 15 dB of the strongest) holds
+        in the newest half window against the whole window, dB: ~0 for a steady tone or a
+        fading subset of harmonics, negative when all fall (for :mod:`dsp.voicing`).
     """
     n_frames = rect.shape[0]
     keep = power.shape[1]
@@ -169,7 +211,7 @@ def measure_frames(
     peak_pow = np.empty(_N_PEAKS)
     amp = np.empty(N_FIT_HARMONICS)
     ev = np.empty((EVIDENCE_MODES, EVIDENCE_HARMONICS))
-    seg = np.empty(_SEGMENTS)
+    seg = np.empty(N_SEGMENTS)
     for i in range(n_frames):
         r = rect[i]
         p = power[i]
@@ -195,11 +237,13 @@ def measure_frames(
         total = 0.0
         top_x = 0.0
         bottom_x = 0.0
-        for s in range(_SEGMENTS):
+        for s in range(N_SEGMENTS):
             # four running sums in a fixed order: the same result wherever the frame lies
-            lo = start + s * n // _SEGMENTS
-            hi = start + (s + 1) * n // _SEGMENTS
+            lo = start + s * n // N_SEGMENTS
+            hi = start + (s + 1) * n // N_SEGMENTS
             a0 = a1 = a2 = a3 = 0.0
+            b0 = b1 = b2 = b3 = 0.0  # the same of the first difference (weights a partial by f^2)
+            prev = store[lo - 1] if s > 0 else store[lo]
             j = lo
             while j + 4 <= hi:
                 v0, v1, v2, v3 = store[j], store[j + 1], store[j + 2], store[j + 3]
@@ -207,29 +251,39 @@ def measure_frames(
                 a1 += v1 * v1
                 a2 += v2 * v2
                 a3 += v3 * v3
+                d0, d1, d2, d3 = v0 - prev, v1 - v0, v2 - v1, v3 - v2
+                b0 += d0 * d0
+                b1 += d1 * d1
+                b2 += d2 * d2
+                b3 += d3 * d3
+                prev = v3
                 top_x = max(top_x, max(max(v0, v1), max(v2, v3)))
                 bottom_x = min(bottom_x, min(min(v0, v1), min(v2, v3)))
                 j += 4
             while j < hi:
                 v0 = store[j]
                 a0 += v0 * v0
+                b0 += (v0 - prev) * (v0 - prev)
+                prev = v0
                 top_x = max(top_x, v0)
                 bottom_x = min(bottom_x, v0)
                 j += 1
             seg[s] = (a0 + a1) + (a2 + a3)
             total += seg[s]
+            seg_ms_out[i, s] = seg[s] / (hi - lo)
+            seg_ms_out[i, N_SEGMENTS + s] = ((b0 + b1) + (b2 + b3)) / (hi - lo)
         peak = max(top_x, -bottom_x)
         ms = total / n
-        ms_fast = (seg[_SEGMENTS - 2] + seg[_SEGMENTS - 1]) / (n - (_SEGMENTS - 2) * n // _SEGMENTS)  # newest quarter (~21 ms)
+        ms_fast = (seg[N_SEGMENTS - 2] + seg[N_SEGMENTS - 1]) / (n - (N_SEGMENTS - 2) * n // N_SEGMENTS)  # newest quarter (~21 ms)
         level = 10.0 * math.log10(ms) if ms > 0.0 else -np.inf
         level_out[i] = level
         fast_level_out[i] = 10.0 * math.log10(ms_fast) if ms_fast > 0.0 else -np.inf
         clip_out[i] = peak >= CLIP_THRESHOLD
         loudest = 1e-300
-        for s in range(_SEGMENTS):
+        for s in range(N_SEGMENTS):
             loudest = max(loudest, seg[s])
         quiet = seg[2]
-        for s in range(3, _SEGMENTS - 2):
+        for s in range(3, N_SEGMENTS - 2):
             quiet = min(quiet, seg[s])
         flat = quiet >= FLATNESS_MIN * loudest
         hum = False
@@ -258,4 +312,5 @@ def measure_frames(
                     best = max(best, half_power[j])
                 ev[m, k] = best
         summarise_row(ev, evidence_out[i])
+        kept_db_out[i] = _kept_db(p, half_power, f0_safe, bin_hz, fast_hz, limit_hz)
 
