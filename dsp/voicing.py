@@ -10,6 +10,15 @@ already holds: the mean squares of its 8 equal segments (:data:`dsp.measure.N_SE
 the same of the samples' first difference (which weights each partial by f^2), and how well
 the best-kept harmonic holds in the newest half window (``kept_db``).
 
+The room's steady noise is taken out of every segment's level before rules 1 and 2 (and the
+steadiness of rule 3) are asked: its mean square is the quietest segment seen, allowed to
+rise :data:`NOISE_RISE_DB_PER_S` while no note sounds (a minimum tracker after Martin, IEEE
+Trans. Speech Audio Process. 9(5), 2001), and a level with the noise out never reads under
+:data:`NOISE_KEEP` of it (a tail sunk into the noise reads ragged, not steady). Without
+this, a tail 5-10 dB over a noisy room's floor falls too slowly to be seen. Where broadband
+noise covers the differenced level (its level before the fall under :data:`DIFF_CLEAR`
+times its noise), rules 1 and 2 ask the plain level alone.
+
 Levels (dB) of a frame: ``pre`` = segments 2-3 (the ~21 ms before the centre), ``at`` =
 segment 4 (the ~11 ms after it), ``after`` = the loudest of segments 5-7.
 
@@ -40,7 +49,10 @@ segment 4 (the ~11 ms after it), ``after`` = the loudest of segments 5-7.
 Handling noise that rings (a thump or a click in a room) ends by rule 2 as it decays.
 
 Constants were set on constructed scenes (tests/dsp/test_voicing_field.py, tuning seeds
-1000-1099 only). Known limits: where the tail is as loud as the direct sound the stop is a
+1000-1099 only). Known limits: a note that weakens into an overblow in a reverberant room
+with vibrato can be ended ~0.1 s before the octave sounds (the room's swing of the kept even
+harmonics hides them), so the octave reads as a new note; a dip as steep as a free decay
+(8 dB in 60 ms) ends the reading until the level climbs back; where the tail is as loud as the direct sound the stop is a
 ~3 dB step and may be found up to ~100 ms late; in rooms with T60 well over 1 s a tail can
 look steady and voice again; staccato gaps shorter than ~60 ms stay partly voiced; the
 rising edge of a low thump (a lone partial, 30-120 Hz) still reads as a tone for a few
@@ -64,9 +76,12 @@ __all__ = [
     "BACK_RISE_DB",
     "DECAY_DB",
     "DECAY_SLOPE_DB_PER_S",
+    "DIFF_CLEAR",
     "FRESH_RISE_DB",
     "KEPT_DB",
     "KEPT_DECAY_DB",
+    "NOISE_KEEP",
+    "NOISE_RISE_DB_PER_S",
     "N_VOICING_STATE",
     "PEAK_FALL_DB_PER_S",
     "QUIET_FRAMES",
@@ -111,15 +126,31 @@ STEADY_FRAMES = 10
 QUIET_FRAMES = 20
 """Frames without a tone that forget an ended note (100 ms at a 5 ms hop)."""
 
-N_VOICING_STATE = 6
-_ENDED, _QUIET, _END_DB, _LOW_DB, _PEAK_D_DB, _STEADY = range(N_VOICING_STATE)
+NOISE_RISE_DB_PER_S = 3.0
+"""Fastest rise of the room-noise estimate while no note sounds, dB/s (it falls at once)."""
+DIFF_CLEAR = 4.0
+"""The differenced level must stand this far over its room noise (6 dB) to be asked (rules 1, 2)."""
+NOISE_KEEP = 0.01
+"""A segment's level with the room noise taken out never reads under this share of the noise
+(-20 dB): a tail that has sunk into the noise reads ragged, not level."""
+
+N_VOICING_STATE = 8
+_ENDED, _QUIET, _END_DB, _LOW_DB, _PEAK_D_DB, _STEADY, _NOISE, _NOISE_D = range(N_VOICING_STATE)
 _PEAK_DB = _END_DB  # while a note sounds, the same slot holds its peak
 _TINY = 1e-30
 
 
 @njit(cache=True, nogil=True)
 def voicing_reset(state: NDArray[np.float64]) -> None:
-    """No note yet."""
+    """No note yet, and no room noise measured."""
+    _forget(state)
+    state[_NOISE] = np.nan
+    state[_NOISE_D] = np.nan
+
+
+@njit(cache=True, nogil=True)
+def _forget(state: NDArray[np.float64]) -> None:
+    """No note (the room noise stays measured)."""
     state[_ENDED] = 0.0
     state[_QUIET] = 0.0
     state[_END_DB] = -np.inf
@@ -149,6 +180,33 @@ def _falls(seg_ms: NDArray[np.float64], first: int, peak_db: float, seg_s: float
             s += (k - 4.5) * _db(seg_ms[first + k])
         decay = s / 17.5 / seg_s <= -DECAY_SLOPE_DB_PER_S
     return stop, decay, pre
+
+
+@njit(cache=True, nogil=True)
+def _without_noise(state: NDArray[np.float64], seg_ms: NDArray[np.float64], voiced: bool,
+                   hop_s: float) -> NDArray[np.float64]:
+    """``seg_ms`` less the room's steady noise, plain and differenced (updates the noise estimate).
+
+    The noise is the quietest segment seen, allowed to rise :data:`NOISE_RISE_DB_PER_S` while
+    no note sounds (a minimum tracker: Martin, IEEE Trans. Speech Audio Process. 9(5), 2001).
+    """
+    out = np.empty(2 * N_SEGMENTS)
+    rise = 10.0 ** (NOISE_RISE_DB_PER_S * hop_s / 10.0)
+    for half, slot in ((0, _NOISE), (N_SEGMENTS, _NOISE_D)):
+        low = seg_ms[half]
+        for k in range(1, N_SEGMENTS):
+            low = min(low, seg_ms[half + k])
+        noise = state[slot]
+        if math.isnan(noise):
+            noise = low
+        elif not voiced:
+            noise = min(noise * rise, low)
+        else:
+            noise = min(noise, low)
+        state[slot] = noise
+        for k in range(N_SEGMENTS):
+            out[half + k] = max(seg_ms[half + k] - noise, NOISE_KEEP * noise)
+    return out
 
 
 @njit(cache=True, nogil=True)
@@ -187,21 +245,22 @@ def end_of_note(state: NDArray[np.float64], f0_hz: float, seg_ms: NDArray[np.flo
     True
     """
     voiced = not math.isnan(f0_hz)
+    tone_ms = _without_noise(state, seg_ms, voiced, hop_s)
     at = _db(seg_ms[4])
     if state[_ENDED] != 0.0:
         state[_QUIET] = 0.0 if voiced else state[_QUIET] + 1.0
         state[_LOW_DB] = min(state[_LOW_DB], at)
         back = at >= state[_LOW_DB] + BACK_RISE_DB and at >= state[_END_DB] - BACK_NEAR_DB
         fresh = at >= _db(max(seg_ms[0], max(seg_ms[1], seg_ms[2]))) + FRESH_RISE_DB
-        lo_db = hi_db = at
-        for k in range(N_SEGMENTS):
-            lo_db = min(lo_db, _db(seg_ms[k]))
-            hi_db = max(hi_db, _db(seg_ms[k]))
+        lo_db = hi_db = _db(tone_ms[0])
+        for k in range(1, N_SEGMENTS):
+            lo_db = min(lo_db, _db(tone_ms[k]))
+            hi_db = max(hi_db, _db(tone_ms[k]))
         # a free decay falls >= 6 dB across the window, and never stays level
         state[_STEADY] = state[_STEADY] + 1.0 if voiced and hi_db - lo_db <= STEADY_DB else 0.0
         steady = state[_STEADY] >= STEADY_FRAMES and at >= state[_END_DB] - STEADY_NEAR_DB
         if state[_QUIET] >= QUIET_FRAMES or (voiced and (back or fresh or steady)):
-            voicing_reset(state)
+            _forget(state)
         else:
             return np.nan
     if not voiced:
@@ -209,13 +268,16 @@ def end_of_note(state: NDArray[np.float64], f0_hz: float, seg_ms: NDArray[np.flo
         state[_PEAK_D_DB] = -np.inf
         return f0_hz
     fall = PEAK_FALL_DB_PER_S * hop_s
-    stop, decay, pre = _falls(seg_ms, 0, state[_PEAK_DB] - fall, seg_s)
-    stop_d, decay_d, pre_d = _falls(seg_ms, N_SEGMENTS, state[_PEAK_D_DB] - fall, seg_s)
+    stop, decay, pre = _falls(tone_ms, 0, state[_PEAK_DB] - fall, seg_s)
+    stop_d, decay_d, pre_d = _falls(tone_ms, N_SEGMENTS, state[_PEAK_D_DB] - fall, seg_s)
     peak = max(pre, state[_PEAK_DB] - fall)
+    # where the room noise covers the differenced level, it cannot show the fall: the plain one decides
+    if 0.5 * (seg_ms[N_SEGMENTS + 2] + seg_ms[N_SEGMENTS + 3]) < DIFF_CLEAR * state[_NOISE_D]:
+        stop_d = decay_d = True
     if (stop and (stop_d or decay_d) and kept_db <= -KEPT_DB) or (decay and decay_d and kept_db <= -KEPT_DECAY_DB):
         state[_ENDED] = 1.0
         state[_QUIET] = 0.0
-        state[_END_DB] = pre if stop else peak
+        state[_END_DB] = _db(0.5 * (seg_ms[2] + seg_ms[3])) if stop else peak
         state[_LOW_DB] = at
         return np.nan
     state[_PEAK_DB] = peak

@@ -100,6 +100,24 @@ def notes_in_room(seed: int) -> Scene:
     return _synth_scene(events, rng, seed)
 
 
+def notes_in_noisy_room(seed: int) -> Scene:
+    """Four notes at -30..-15 dBFS in a room under broadband noise 10-14 dB under the notes.
+
+    White noise at that level covers the differenced signal (which weights a partial by
+    f^2) of every note under ~2 kHz: the fall of the tone shows in the plain level only.
+    """
+    rng = np.random.default_rng(seed)
+    level = float(rng.uniform(-30.0, -15.0))
+    events = [
+        NoteEvent(_flute_hz(rng), float(rng.uniform(0.4, 1.2)), level_dbfs=level, gap_s=float(rng.uniform(0.5, 1.0)),
+                  release_s=float(rng.uniform(0.015, 0.05)), vibrato_cents=float(rng.uniform(0.0, 15.0)))
+        for _ in range(4)
+    ]  # fmt: skip
+    scene = _synth_scene(events, rng, seed)
+    hiss = rng.standard_normal(scene.audio.size) * 10.0 ** ((level - rng.uniform(10.0, 14.0)) / 20.0)
+    return Scene(np.asarray(scene.audio + hiss, dtype=np.float32), scene.inside, scene.outside)
+
+
 def diminuendo(seed: int) -> Scene:
     """Two notes fading by 10-20 dB over 1-1.5 s in a room."""
     rng = np.random.default_rng(seed)
@@ -252,31 +270,35 @@ SEEDS = range(1000, 1010)  # ten of the tuning seeds per kind of scene (~15 s in
 # Figures measured on SEEDS with this rule (dsp.voicing), and without it (the analyser as
 # it was before: a tail goes on reading as long as it stays periodic over the room noise):
 #                  voiced inside notes     voiced outside notes
-#   notes in room    99.87 % (was 99.98)    1.44 % (was 53.0)
-#   diminuendo       99.82 % (100.0)        2.17 % (58.3)
-#   soft notes       99.62 % (99.97)        2.83 % (43.9)
-#   staccato         94.87 % (100.0)       18.1 %  (95.9)
-#   slurred steps    99.18 % (99.48)        1.54 % (43.4)
+#   notes in room    99.89 % (was 99.98)    1.43 % (was 53.0)
+#   noisy room       97.73 % (100.0)        2.36 % (28.1)
+#   diminuendo       99.75 % (100.0)        2.05 % (58.3)
+#   soft notes       99.59 % (99.97)        2.37 % (43.9)
+#   staccato         94.58 % (100.0)       13.7 %  (95.9)
+#   slurred steps    99.25 % (99.48)        1.54 % (43.4)
 #   level dips       96.90 % (99.87)        4.81 % (49.1)
-#   handling noise       -                  0.72 % (13.5)
+#   handling noise       -                  0.69 % (13.5)
 # The rooms here are harsher than the field set of issue #12 (its tails: 7.8 % before): the
 # reverberant tail reaches 0 dB re the direct sound and the room noise is quiet (-78..-68
 # dBFS), so a tail stays periodic for up to ~1 s. Where a tail is as loud as the direct
 # sound the stop is a step of only ~3 dB (or less, at a pitch the room favours): those ends
-# are found 1-20 frames late, which is most of what remains outside. Each bound below is
-# the measured figure plus a margin of about a third of the improvement's noise between
-# seed sets of this size (+-0.5 point on "outside", -0.3 point on "inside").
+# are found 1-20 frames late, which is most of what remains outside. Under loud broadband
+# noise the differenced level cannot be asked, so a room's swing of the level under a
+# vibrato ends a few readings inside notes (noisy room, inside). Each bound below is the
+# measured figure plus a margin of about a third of the improvement's noise between seed
+# sets of this size (+-0.5 point on "outside", -0.3 point on "inside").
 
 
 @pytest.mark.parametrize(
     ("make", "min_inside", "max_outside"),
     [
         (notes_in_room, 0.995, 0.02),
+        (notes_in_noisy_room, 0.974, 0.03),  # SNR 10-14 dB, broadband
         (diminuendo, 0.995, 0.03),  # 10-20 dB/s: far under a room's 75-150 dB/s free decay
         (soft_notes, 0.993, 0.035),  # -50 dBFS over -80 dBFS room noise
         (slurred_steps, 0.985, 0.03),  # level kept at the step: nothing ends
         (level_dips, 0.96, 0.07),  # a 6-10 dB dip may end the reading until it recovers
-        (staccato, 0.94, 0.25),  # 40-90 ms gaps filled by the tail: the hardest case
+        (staccato, 0.94, 0.19),  # 40-90 ms gaps filled by the tail: the hardest case
     ],
     ids=lambda p: getattr(p, "__name__", ""),
 )
