@@ -78,6 +78,7 @@ __all__ = [
     "DECAY_SLOPE_DB_PER_S",
     "DIFF_CLEAR",
     "FRESH_RISE_DB",
+    "KEPT_ALL_DB",
     "KEPT_DB",
     "KEPT_DECAY_DB",
     "NOISE_KEEP",
@@ -128,6 +129,10 @@ QUIET_FRAMES = 20
 
 NOISE_RISE_DB_PER_S = 3.0
 """Fastest rise of the room-noise estimate while no note sounds, dB/s (it falls at once)."""
+KEPT_ALL_DB = 6.0
+"""Fall of every harmonic in the newest half window that stands for the differenced level (rules
+1, 2), dB: a thump's low ring decays 2-9 dB per segment under broadband noise that hides it in
+the differenced level; a room's swing under a vibrato does not take every harmonic this far."""
 DIFF_CLEAR = 4.0
 """The differenced level must stand this far over its room noise (6 dB) to be asked (rules 1, 2)."""
 NOISE_KEEP = 0.01
@@ -273,6 +278,8 @@ def end_of_note(state: NDArray[np.float64], f0_hz: float, seg_ms: NDArray[np.flo
     peak = max(pre, state[_PEAK_DB] - fall)
     # where the room noise covers the differenced level, it cannot show the fall: the plain one decides
     if 0.5 * (seg_ms[N_SEGMENTS + 2] + seg_ms[N_SEGMENTS + 3]) < DIFF_CLEAR * state[_NOISE_D]:
+        stop_d = decay_d = True
+    if kept_db <= -KEPT_ALL_DB:  # every harmonic far down in the newest half: a knock's ring, whatever the noise
         stop_d = decay_d = True
     if (stop and (stop_d or decay_d) and kept_db <= -KEPT_DB) or (decay and decay_d and kept_db <= -KEPT_DECAY_DB):
         state[_ENDED] = 1.0

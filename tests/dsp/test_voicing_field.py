@@ -272,12 +272,12 @@ SEEDS = range(1000, 1010)  # ten of the tuning seeds per kind of scene (~15 s in
 #                  voiced inside notes     voiced outside notes
 #   notes in room    99.89 % (was 99.98)    1.43 % (was 53.0)
 #   noisy room       97.73 % (100.0)        2.36 % (28.1)
-#   diminuendo       99.75 % (100.0)        2.05 % (58.3)
-#   soft notes       99.59 % (99.97)        2.37 % (43.9)
-#   staccato         94.58 % (100.0)       13.7 %  (95.9)
-#   slurred steps    99.25 % (99.48)        1.54 % (43.4)
+#   diminuendo       99.73 % (100.0)        2.05 % (58.3)
+#   soft notes       99.56 % (99.97)        2.37 % (43.9)
+#   staccato         94.50 % (100.0)       13.7 %  (95.9)
+#   slurred steps    99.22 % (99.48)        1.54 % (43.4)
 #   level dips       96.90 % (99.87)        4.81 % (49.1)
-#   handling noise       -                  0.69 % (13.5)
+#   handling noise       -                  0.66 % (13.5)
 # The rooms here are harsher than the field set of issue #12 (its tails: 7.8 % before): the
 # reverberant tail reaches 0 dB re the direct sound and the room noise is quiet (-78..-68
 # dBFS), so a tail stays periodic for up to ~1 s. Where a tail is as loud as the direct
