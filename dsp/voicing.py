@@ -194,6 +194,10 @@ def _without_noise(state: NDArray[np.float64], seg_ms: NDArray[np.float64], voic
 
     The noise is the quietest segment seen, allowed to rise :data:`NOISE_RISE_DB_PER_S` while
     no note sounds (a minimum tracker: Martin, IEEE Trans. Speech Audio Process. 9(5), 2001).
+    It starts at the first frame's quietest segment and falls at once, so it errs high: a
+    stream that starts on a note has its noise measured at the first rest (until then the
+    note itself reads as noise, and only the harmonics' fall can end it). A room that grows
+    louder while notes follow each other without a rest is followed at the next rest.
     """
     out = np.empty(2 * N_SEGMENTS)
     rise = 10.0 ** (NOISE_RISE_DB_PER_S * hop_s / 10.0)
