@@ -161,11 +161,12 @@ def analyse_chunk(
     evidence_a = np.empty((n_frames, EVIDENCE_MODES, 4))
     seg_ms_a = np.empty((n_frames, 2 * N_SEGMENTS))
     kept_db_a = np.empty(n_frames)
+    upper_off_a = np.empty((n_frames, 2))
     measure_frames(
         store, first, hop, n, rect, half_offsets, half_weights, sr, int(params[_P_LO_BIN]), int(params[_P_HI_BIN]),
         int(params[_P_FAST_KEEP]), limit_hz, params[_P_FMIN], params[_P_FMAX], hum_hz[0], hum_hz[1], power, floor,
         f0_a, clarity_a, level_a, fast_level_a, clip_a, voiced_a, sustain_a, harm_db_a, odd_even_a, evidence_a,
-        seg_ms_a, kept_db_a,
+        seg_ms_a, kept_db_a, upper_off_a,
     )  # fmt: skip
     seg_s = n / N_SEGMENTS / sr
     hop_s = hop / sr
@@ -177,7 +178,7 @@ def analyse_chunk(
         if math.isnan(f0) and not math.isnan(prev) and sustain_a[i] and cents_apart(f0_a[i], prev) <= hold:
             f0 = f0_a[i]
         f0 = end_of_note(voicing, f0, seg_ms_a[i], kept_db_a[i], seg_s, hop_s)  # the tail of a stopped note is not the note
-        monitor_update(cfg, st, hist, f0, evidence_a[i], fast_level_a[i])
+        monitor_update(cfg, st, hist, f0, evidence_a[i], fast_level_a[i], upper_off_a[i])
         row = out[i]
         held = st[OUT_HELD]
         harm = row[O_H1 : O_H1 + N_REPORTED]

@@ -57,6 +57,7 @@ _N_PEAKS = 10  # spectral peaks for the coarse match
 _CLARITY_HARMONICS = 40
 _FLOOR_BAND_BINS = 32
 _RELATIVE_FLOOR = 1e-12  # floor never under this share of the strongest bin (digitally clean tones)
+_TINY_POWER = 1e-30
 _KEPT_SHARE = 10.0 ** (-15.0 / 10.0)  # harmonics within 15 dB of the strongest count in _kept_db
 
 
@@ -126,6 +127,45 @@ def _kept_db(power: NDArray[np.float64], half_power: NDArray[np.float64], f0: fl
 
 
 @njit(cache=True, nogil=True)
+def _upper_off_cents(r: NDArray[np.complex64], half_power: NDArray[np.float64], f0: float, fast_hz: float, n: int,
+                     half_offsets: NDArray[np.int64], half_weights: NDArray[np.complex128], limit_hz: float,
+                     out: NDArray[np.float64]) -> None:  # fmt: skip
+    """Where the newest half window's peak near ``m f0`` lies (m = 2, 3), cents from ``m f0``, into ``out``.
+
+    The strongest bin within two of ``m f0`` and its neighbours, parabolic interpolation on
+    their dB (Smith & Serra, PARSHL, 1987; for a Hann main lobe the bias is a few hundredths
+    of a bin). inf where no bin within two of ``m f0`` is a local maximum (nothing sounds
+    there); nan where ``m f0`` is past ``limit_hz`` or too near either end of the spectrum. Reads ``half_power`` bins not yet read (-1) and keeps them.
+    """
+    n_half = half_power.size
+    for idx in range(2):
+        out[idx] = np.nan
+        pos = f0 * (idx + 2)
+        if not math.isfinite(pos) or pos >= limit_hz:
+            continue
+        c = int(np.rint(pos / fast_hz))
+        if c - 3 < 1 or c + 3 > n_half - 1:
+            continue
+        best = -1
+        top = 0.0
+        for j in range(c - 3, c + 4):
+            if half_power[j] < 0.0:
+                half_power[j] = newest_half_power_at(r, j, n, half_offsets, half_weights)
+            if c - 2 <= j <= c + 2 and half_power[j] > top:
+                top = half_power[j]
+                best = j
+        if best < 0 or half_power[best - 1] >= top or half_power[best + 1] >= top:
+            out[idx] = np.inf  # no local maximum within two bins: nothing sounds on m f0
+            continue
+        a = 10.0 * math.log10(half_power[best - 1] + _TINY_POWER)
+        b = 10.0 * math.log10(top + _TINY_POWER)
+        g = 10.0 * math.log10(half_power[best + 1] + _TINY_POWER)
+        den = a - 2.0 * b + g
+        delta = 0.5 * (a - g) / den if den < 0.0 else 0.0
+        out[idx] = 1200.0 * math.log2((best + delta) * fast_hz / pos)
+
+
+@njit(cache=True, nogil=True)
 def copy_frames(store: NDArray[np.float64], first: int, hop: int, out: NDArray[np.float32]) -> None:
     """Frame ``i`` of ``out`` (n_frames, n) = ``store[first + i hop :][:n]`` in single precision."""
     n = out.shape[1]
@@ -167,6 +207,7 @@ def measure_frames(
     evidence_out: NDArray[np.float64],
     seg_ms_out: NDArray[np.float64],
     kept_db_out: NDArray[np.float64],
+    upper_off_out: NDArray[np.float64],
 ) -> None:
     """Measure ``rect.shape[0]`` frames; frame ``i`` is ``store[first + i hop :][:n]``.
 
@@ -200,6 +241,10 @@ def measure_frames(
         How well the best-kept harmonic of f0 (H1..H8 within 15 dB of the strongest) holds
         in the newest half window against the whole window, dB: ~0 for a steady tone or a
         fading subset of harmonics, negative when all fall (for :mod:`dsp.voicing`).
+    upper_off_out : (n_frames, 2) out
+        Where the newest half window's peak near 2 f0 and 3 f0 lies, cents from them (inf
+        where no peak, nan where not measured): a register change sounds on them, a slurred seventh or ninth beside
+        them (for :mod:`dsp.register`).
     """
     n_frames = rect.shape[0]
     keep = power.shape[1]
@@ -313,4 +358,5 @@ def measure_frames(
                 ev[m, k] = best
         summarise_row(ev, evidence_out[i])
         kept_db_out[i] = _kept_db(p, half_power, f0_safe, bin_hz, fast_hz, limit_hz)
+        _upper_off_cents(r, half_power, f0_safe, fast_hz, n, half_offsets, half_weights, limit_hz, upper_off_out[i])
 

@@ -83,6 +83,7 @@ from dsp.frame import JumpKind
 __all__ = [
     "EVIDENCE_HARMONICS",
     "EVIDENCE_MODES",
+    "UPPER_OFF_CENTS",
     "RegisterMonitor",
     "RegisterReading",
     "cents_apart",
@@ -101,6 +102,9 @@ EVIDENCE_MODES = 3
 """Evidence rows: held = sounding / m for m = 1..3."""
 
 _TINY = 1e-30
+UPPER_OFF_CENTS = 50.0
+"""Farthest the sounding upper mode lies from the held note's harmonic, cents: as for the
+pitch reading's relation to the held note (a slurred seventh up is 100 c off the octave)."""
 # Vanishing harmonics at least this far under the kept ones, dB. Benchmark corpus: true jumps
 # read -6.6 dB and lower at detection; a note's end in a reverberant room (its octave
 # outlasting the fundamental) read +1.2 and -0.5 dB, and was taken for a vent at +3 dB.
@@ -373,12 +377,14 @@ def monitor_update(
     f0_hz: float,
     evidence_db: NDArray[np.float64],
     level_dbfs: float,
+    upper_off_c: NDArray[np.float64],
 ) -> None:
     """Advance by one frame; the reading is left in ``st[OUT_REGISTER:OUT_MODE + 1]``.
 
     ``f0_hz``: sounding fundamental (Hz, nan when unvoiced); ``evidence_db`` (3, 4):
     :func:`summarise_row` of the powers at ``k f0 / m`` from a short recent window;
-    ``level_dbfs``: that window's level (dBFS).
+    ``level_dbfs``: that window's level (dBFS); ``upper_off_c`` (2,): where that window's
+    peak near 2 f0 and 3 f0 lies, cents from them (inf where no peak, nan where not measured).
     """
     unlocked = math.isnan(st[_S_TARGET])
     if math.isnan(f0_hz):
@@ -493,7 +499,7 @@ def monitor_update(
         ):
             jump_mode = 0  # no collapse to judge: what _jump_mode finds, without the calls
         else:
-            jump_mode = _jump_mode(cfg, st, hist, m, r2, r3, even_db, mult3_db, off_grid_db)
+            jump_mode = _jump_mode(cfg, st, hist, m, r2, r3, even_db, mult3_db, off_grid_db, upper_off_c)
         if jump_mode:
             # against the settled blowing level, learnt before the breath began to rise
             # or the odd harmonics to fade (_follow_settled): a breath rising over
@@ -685,11 +691,17 @@ def _off_grid_db(cfg: NDArray[np.float64], f0_hz: float, m: int, evidence_db: ND
 
 @njit(cache=True, nogil=True)
 def _jump_mode(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray[np.float64], m: int, r2: float,
-               r3: float, even_db: float, mult3_db: float, off_grid_db: float) -> int:  # fmt: skip
+               r3: float, even_db: float, mult3_db: float, off_grid_db: float,
+               upper_off_c: NDArray[np.float64]) -> int:  # fmt: skip
     """Mode the pipe jumped to (2 or 3) on this frame's evidence, else 0.
 
     ``off_grid_db``: :func:`_off_grid_db`; within ``new_note_db`` of the kept harmonics
-    it is another note arriving (a legato step), no jump.
+    it is another note arriving (a legato step), no jump. ``upper_off_c``: while the
+    pitch still reads the held note (m = 1), the newest half window's peak near its 2nd
+    (3rd) harmonic more than :data:`UPPER_OFF_CENTS` from it, or no peak there at all, is
+    a note a seventh or a ninth (a semitone off the twelfth) up arriving, no jump to mode
+    2 (3): a register change sounds the held note's own harmonics, as the pitch reading's
+    relation to it does (50 c).
     """
     if not math.isnan(st[_S_TARGET]) and (m == 2 or m == 3) and not math.isfinite(st[_S_BASE_R2]):
         # locked, and the note never sounded in the first register: judge the target's
@@ -697,13 +709,13 @@ def _jump_mode(cfg: NDArray[np.float64], st: NDArray[np.float64], hist: NDArray[
         ratio = r2 if m == 2 else r3
         return m if ratio <= cfg[_C_COLLAPSED_RATIO] - cfg[_C_COLLAPSE] else 0
     if (
-        (m == 1 or m == 2)
+        (m == 2 or (m == 1 and not abs(upper_off_c[0]) > UPPER_OFF_CENTS))
         and off_grid_db < even_db - cfg[_C_NEW_NOTE]
         and _collapsed(cfg, st, st[_S_BASE_R2] - r2, r2, even_db, hist[_H_EVEN])
     ):
         return 2
     if (
-        (m == 1 or m == 3)
+        (m == 3 or (m == 1 and not abs(upper_off_c[1]) > UPPER_OFF_CENTS))
         and off_grid_db < mult3_db - cfg[_C_NEW_NOTE]
         and _collapsed(cfg, st, st[_S_BASE_R3] - r3, r3, mult3_db, hist[_H_MULT3])
     ):
@@ -956,7 +968,8 @@ class RegisterMonitor:
         t = float(self._st[_S_TARGET])
         return None if math.isnan(t) else t
 
-    def update(self, f0_hz: float | None, evidence_db: Sequence[Sequence[float]], level_dbfs: float) -> RegisterReading:
+    def update(self, f0_hz: float | None, evidence_db: Sequence[Sequence[float]], level_dbfs: float,
+               upper_off_cents: tuple[float, float] | None = None) -> RegisterReading:
         """Advance by one frame.
 
         Parameters
@@ -968,13 +981,18 @@ class RegisterMonitor:
             the held note's harmonics if the pipe sounds mode m), from a short recent window.
         level_dbfs : float, dBFS
             Level of that short window.
+        upper_off_cents : (float, float) or None, cents
+            Where that window's peak near 2 f0 and 3 f0 lies, cents from them; None when
+            not measured (no veto of a jump by it).
 
         Returns
         -------
         RegisterReading
         """
         ev = np.ascontiguousarray(evidence_db, dtype=np.float64).reshape(EVIDENCE_MODES, 4)
-        monitor_update(self._cfg, self._st, self._hist, math.nan if f0_hz is None else float(f0_hz), ev, float(level_dbfs))
+        off = np.full(2, np.nan) if upper_off_cents is None else np.asarray(upper_off_cents, dtype=np.float64)
+        monitor_update(self._cfg, self._st, self._hist, math.nan if f0_hz is None else float(f0_hz), ev,
+                       float(level_dbfs), off)  # fmt: skip
         return reading_of(self._st)
 
 

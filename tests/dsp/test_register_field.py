@@ -241,13 +241,15 @@ def test_a_plain_attack_is_no_crack():
 
 _SLUR_LIMIT = pytest.mark.xfail(
     strict=True,
-    reason="known limit: a slurred step up 11 or 12 semitones puts the new note's partials on (or within "
-    "the short window's resolution of) the held note's even harmonics, as a vent does; the monitor reports a jump",
+    reason="known limit: a slurred octave up sounds the held note's even harmonics, exactly as a vent does "
+    "(the fingering is not in the sound); the monitor reports a jump",
 )
 
 
-@pytest.mark.parametrize("semitones", [*range(-12, 0), *range(1, 11), pytest.param(11, marks=_SLUR_LIMIT),
-                                       pytest.param(12, marks=_SLUR_LIMIT)])  # fmt: skip
+# 11 (a seventh up, 100 c under the octave) lies within the short window's resolution of the
+# octave: since the monitor asks where the peak near 2 f0 lies (dsp.register.UPPER_OFF_CENTS),
+# it is no jump; it failed here before.
+@pytest.mark.parametrize("semitones", [*range(-12, 0), *range(1, 12), pytest.param(12, marks=_SLUR_LIMIT)])
 def test_a_slurred_step_of_any_interval_is_no_jump(semitones):
     # a slurred step ends one note and begins another (a fingering change, 20 ms release and
     # attack, no silence): no register change of either (common practice), whatever the
@@ -256,6 +258,24 @@ def test_a_slurred_step_of_any_interval_is_no_jump(semitones):
     first = 1000 + 4 * (semitones + 12 - (semitones > 0))  # 4 seeds per interval, 1000-1095
     for seed in range(first, first + 4):
         rng = np.random.default_rng(seed)
+        f0 = float(rng.uniform(300.0, 700.0))
+        parts = []
+        for f in (f0, f0 * 2.0 ** (semitones / 12.0)):
+            level = float(rng.uniform(-26.0, -14.0))
+            parts.append(_tone(f, 0.45, lambda t, lv=level: lv + 0.0 * t, rng))
+        reported += len(_events(StreamingAnalyser(SR).process(_scene(parts, _t60(rng), rng))))
+    assert reported == 0
+
+
+@pytest.mark.parametrize("semitones", [11, 13, 18, 20])
+def test_a_slurred_step_beside_the_octave_or_the_twelfth_is_no_jump(semitones):
+    # a seventh or a minor ninth up (100 c under / over the octave) and a semitone either side
+    # of the twelfth: the new note's fundamental lies within the short window's resolution of
+    # the held note's 2nd or 3rd harmonic, but not on it; a register change sounds on it (the
+    # modes of an open pipe are harmonics of the fingered note: Fletcher & Rossing 1998)
+    reported = 0
+    for seed in range(1096, 1100):  # tuning seeds
+        rng = np.random.default_rng([seed, semitones])
         f0 = float(rng.uniform(300.0, 700.0))
         parts = []
         for f in (f0, f0 * 2.0 ** (semitones / 12.0)):
