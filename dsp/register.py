@@ -62,7 +62,11 @@ window), not on a smoothed pitch track:
 * **no jump** while energy sits *between* the held note's harmonics (at 3/2, 4/3, 5/3 ...
   of it) within ``new_note_db`` of the harmonics a jump would keep: a note a fifth or a
   fourth up, slurred, shares some harmonics with the held note, but a register change
-  sounds none between them. And while a note is still in its warm-up, a higher mode of
+  sounds none between them. Nor while the pitch still reads the held note and the short
+  window's peak near its 2nd (3rd) harmonic lies more than ``UPPER_OFF_CENTS`` (50 c) from
+  it, or is missing: a seventh or a minor ninth up (a semitone beside the twelfth) arriving,
+  whose fundamental the short window cannot part from the held note's harmonic by the
+  power in a few bins alone. And while a note is still in its warm-up, a higher mode of
   it that persists for ``confirm_s`` becomes the held note (the first reading was a
   passing one, such as the common sub-multiple of two overlapping notes in a room).
 """
