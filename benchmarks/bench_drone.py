@@ -18,12 +18,12 @@ import subprocess
 import sys
 import tempfile
 import time
-import uuid
 from pathlib import Path
 
 import numpy as np
 
 ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT / "tests" / "audio"))  # jack_dummy: the JACK dummy server the tests use
 LIVE_CASE = ROOT / "tests" / "audio" / "live_case.py"
 
 
@@ -54,18 +54,14 @@ def main() -> int:
         print("jackd is not installed (apt-get install jackd2)")
         return 1
     import soundfile as sf
+    from jack_dummy import dummy_server
 
-    name = f"bench-drone-{os.getpid()}-{uuid.uuid4().hex[:6]}"
     with tempfile.TemporaryDirectory() as tmp:
         fed = Path(tmp) / "f4.wav"
         t = np.arange(48000 * 2) / 48000
         sf.write(fed, (0.3 * np.sin(2 * np.pi * 349.2282 * t)).astype(np.float32), 48000, subtype="FLOAT")
-        log = open(Path(tmp) / "jackd.log", "wb")  # noqa: SIM115 - closed below
-        server = subprocess.Popen([jackd, "-n", name, "-d", "dummy", "-r", "48000", "-p", "512"], stdout=log,
-                                  stderr=subprocess.STDOUT)  # fmt: skip
-        try:
-            time.sleep(2.0)
-            env = dict(os.environ, JACK_DEFAULT_SERVER=name, BENCH_CONFIG_DIR=tmp, BENCH_LOG_DIR=tmp,
+        with dummy_server(Path(tmp), "bench-drone") as server:
+            env = dict(os.environ, JACK_DEFAULT_SERVER=server.name, BENCH_CONFIG_DIR=tmp, BENCH_LOG_DIR=tmp,
                        PYTHONPATH=os.pathsep.join([str(ROOT), os.environ.get("PYTHONPATH", "")]))  # fmt: skip
             figures = {}
             for drone in (False, True):
@@ -74,10 +70,6 @@ def main() -> int:
                 print(f"{'with' if drone else 'without'} drone: {100 * cpu_s / wall_s:.1f} % of a core "
                       f"({cpu_s:.2f} s CPU in {wall_s:.1f} s, feeder included); bench said: {last}")  # fmt: skip
             print(f"CPU with / without the drone: {figures[True] / figures[False]:.3f}")
-        finally:
-            server.terminate()
-            server.wait(5)
-            log.close()
     return 0
 
 

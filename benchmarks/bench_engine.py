@@ -32,13 +32,13 @@ import sys
 import tempfile
 import threading
 import time
-import uuid
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT / "tests" / "audio"))  # jack_dummy: the JACK dummy server the tests use
 sys.path.insert(0, str(ROOT))
 
-import numpy as np  # noqa: E402
+import numpy as np
 
 
 def _pct(values: list[float], q: float) -> float:
@@ -59,9 +59,9 @@ def analyser_alone_cpu_per_audio_s(audio: np.ndarray, sample_rate: int, block_si
 def run_demo(duration_s: float, block_size: int, sample_rate: int, workflow: bool = False) -> dict:
     from bench.engine import Engine, ReadingCallback
     from bench.heldnotes import HeldNoteCollector
-    from bench.workflow.live import LiveWorkflow
     from bench.sources.demo import DemoSource
     from bench.tuning import TuningSettings
+    from bench.workflow.live import LiveWorkflow
 
     source = DemoSource(sample_rate, block_size=block_size)
     published: list[tuple[float, float]] = []
@@ -80,13 +80,13 @@ def run_demo(duration_s: float, block_size: int, sample_rate: int, workflow: boo
             consumers += [LiveWorkflow(profile="alto"), HeldNoteCollector()]
         engine = Engine(source, TuningSettings(), log_path=log, consumers=consumers)
         engine.start()
-        t0_s = source._pacer._t0_s  # noqa: SLF001 - wall time the demo's first sample "sounded"
+        t0_s = source._pacer._t0_s
         time.sleep(duration_s)
         engine.stop()
         stats = engine.stats
         log_bytes = log.stat().st_size
     latencies = [wall - (t0_s + t) for wall, t in published]
-    alone = analyser_alone_cpu_per_audio_s(source._rendered(), sample_rate, block_size)  # noqa: SLF001
+    alone = analyser_alone_cpu_per_audio_s(source._rendered(), sample_rate, block_size)
     audio_s = published[-1][1] if published else 0.0
     return {
         "source": stats.source,
@@ -114,30 +114,20 @@ def run_jack(duration_s: float, block_size: int, sample_rate: int) -> dict:
     jackd = shutil.which("jackd")
     if jackd is None:
         raise SystemExit("jackd is not installed (apt-get install jackd2)")
-    name = f"bench-bench-{os.getpid()}-{uuid.uuid4().hex[:6]}"
+    from jack_dummy import dummy_server
+
     with tempfile.TemporaryDirectory() as tmp:
         wav = Path(tmp) / "demo.wav"
         loop = render_demo_loop(sample_rate)
         sf.write(wav, loop, sample_rate, subtype="FLOAT")
-        server_log = open(Path(tmp) / "jackd.log", "wb")  # noqa: SIM115
-        server = subprocess.Popen(
-            [jackd, "-n", name, "-d", "dummy", "-r", str(sample_rate), "-p", str(block_size)],
-            stdout=server_log,
-            stderr=subprocess.STDOUT,
-        )
-        try:
-            time.sleep(1.0)
-            env = dict(os.environ, JACK_DEFAULT_SERVER=name, PYTHONPATH=str(ROOT))
+        with dummy_server(Path(tmp), "bench-bench", sample_rate, block_size) as server:
+            env = dict(os.environ, JACK_DEFAULT_SERVER=server.name, PYTHONPATH=str(ROOT))
             done = subprocess.run(
                 [sys.executable, str(ROOT / "tests" / "audio" / "live_case.py"), "jack", "--device", "system",
                  "--wav", str(wav), "--loop", str(duration_s), "--seconds", "5", "--no-readings",
                  "--log", str(Path(tmp) / "bench.csv"), "--block", str(block_size)],
                 env=env, capture_output=True, text=True, check=False, timeout=duration_s + 120,
             )  # fmt: skip
-        finally:
-            server.terminate()
-            server.wait(10)
-            server_log.close()
         xruns = (Path(tmp) / "jackd.log").read_text(errors="replace").count("XRun")
         if done.returncode != 0:
             raise SystemExit(f"live_case.py failed:\n{done.stderr[-2000:]}")

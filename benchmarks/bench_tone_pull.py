@@ -14,11 +14,8 @@ from __future__ import annotations
 import argparse
 import os
 import shutil
-import subprocess
 import sys
 import tempfile
-import time
-import uuid
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -37,30 +34,22 @@ def main() -> int:
     if jackd is None:
         print("jackd is not installed (apt-get install jackd2)")
         return 1
+    from jack_dummy import dummy_server
     from tone_pull import measure
 
-    name = f"bench-pull-{os.getpid()}-{uuid.uuid4().hex[:6]}"
     with tempfile.TemporaryDirectory() as tmp_name:
         tmp = Path(tmp_name)
         os.environ.update(BENCH_CONFIG_DIR=str(tmp), BENCH_LOG_DIR=str(tmp))  # no stored clock, no saved settings
-        log = open(tmp / "jackd.log", "wb")  # noqa: SIM115 - closed below
-        server = subprocess.Popen([jackd, "-n", name, "-d", "dummy", "-r", "48000", "-p", "512"], stdout=log,
-                                  stderr=subprocess.STDOUT)  # fmt: skip
-        try:
-            time.sleep(2.0)
+        with dummy_server(tmp, "bench-pull") as server:
             print(f"{'offset c':>8} {'under dB':>8} {'reading c':>10} {'pull c':>8} {'rows':>5} {'dropped':>7}")
             for offset in args.offsets:
-                base = measure(name, tmp, offset, None, args.seconds)
+                base = measure(server.name, tmp, offset, None, args.seconds)
                 print(f"{offset:8.1f} {'none':>8} {base['cents']:10.3f} {'':>8} {base['rows']:5d} {base['dropped']:7d}")
                 for under in args.levels:
-                    got = measure(name, tmp, offset, under, args.seconds)
+                    got = measure(server.name, tmp, offset, under, args.seconds)
                     pull = got["cents"] - base["cents"]
                     print(f"{offset:8.1f} {under:8.1f} {got['cents']:10.3f} {pull:8.3f} {got['rows']:5d} {got['dropped']:7d}",
                           flush=True)  # fmt: skip
-        finally:
-            server.terminate()
-            server.wait(5)
-            log.close()
     return 0
 
 

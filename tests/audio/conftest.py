@@ -13,12 +13,11 @@ import os
 import shutil
 import subprocess
 import sys
-import time
-import types
-import uuid
+from contextlib import ExitStack
 from pathlib import Path
 
 import pytest
+from jack_dummy import dummy_server
 
 REPO = Path(__file__).resolve().parents[2]
 LIVE_CASE = Path(__file__).with_name("live_case.py")
@@ -35,45 +34,18 @@ def _need_portaudio() -> None:
 def jack_server(tmp_path):
     """A JACK dummy server (48 kHz, 512-frame periods) running for this test: ``.name``, ``.pid``."""
     _need_portaudio()
-    jackd = shutil.which("jackd")
-    if jackd is None:
+    if shutil.which("jackd") is None:
         pytest.skip("jackd is not installed (apt-get install jackd2)")
     try:
-        import jack
+        import jack  # noqa: F401
     except (ImportError, OSError) as exc:
         pytest.skip(f"JACK-Client cannot load libjack: {exc}")
-    name = f"bench-test-{os.getpid()}-{uuid.uuid4().hex[:8]}"
-    server_log = tmp_path / "jackd.log"  # a file, not a pipe: an undrained pipe would stall jackd
-    log_file = server_log.open("wb")
-    proc = subprocess.Popen(
-        [jackd, "-n", name, "-d", "dummy", "-r", str(SAMPLE_RATE), "-p", str(PERIOD)],
-        stdout=log_file,
-        stderr=subprocess.STDOUT,
-    )
-    try:
-        deadline = time.monotonic() + 10.0
-        while True:
-            if proc.poll() is not None:
-                err = server_log.read_text(errors="replace")[-400:]
-                pytest.fail(f"jackd exited with {proc.returncode}: {err}")
-            try:
-                probe = jack.Client("bench-probe", servername=name, no_start_server=True)
-            except jack.JackError:
-                if time.monotonic() > deadline:
-                    pytest.fail("jackd did not come up within 10 s")
-                time.sleep(0.05)
-                continue
-            probe.close()
-            break
-        yield types.SimpleNamespace(name=name, pid=proc.pid)
-    finally:
-        proc.terminate()
+    with ExitStack() as stack:
         try:
-            proc.wait(5)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            proc.wait(5)
-        log_file.close()
+            up = stack.enter_context(dummy_server(tmp_path, "bench-test", SAMPLE_RATE, PERIOD))
+        except RuntimeError as exc:
+            pytest.fail(str(exc))
+        yield up
 
 
 @pytest.fixture

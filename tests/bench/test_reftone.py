@@ -184,13 +184,19 @@ def test_level_keys_step_three_decibels_and_stop_at_the_loudest(tmp_path):
     assert gen.timbre == "sine"
 
 
-def test_a_capture_with_the_tone_on_is_taken_from_input_after_the_tone_paused(tmp_path):
-    out, told = Output(), []
-    c, engine = _controller(tmp_path, out, told)
+def _capturing_with_tone_on_a4(tmp_path: Path) -> tuple[SessionController, StubEngine, Output]:
+    """A controller capturing, locked on A4, with the tone switched on."""
+    out: Output = Output()
+    c, engine = _controller(tmp_path, out, [])
     c.start_workflow()
-    assert c.workflow is not None
     c.lock(69)
     c.toggle_tone()
+    return c, engine, out
+
+
+def test_a_capture_with_the_tone_on_is_taken_from_input_after_the_tone_paused(tmp_path):
+    c, engine, out = _capturing_with_tone_on_a4(tmp_path)
+    assert c.workflow is not None
     gen = out.generator
     assert gen is not None
     assert c.workflow.auto and c.workflow.auto_held  # automatic capture waits while it sounds
@@ -221,12 +227,8 @@ def test_reference_tone_closes_with_the_engine():
 def test_a_note_held_while_the_tone_sounded_is_not_captured_when_it_stops(tmp_path):
     # the note's readings from before the tone stopped hold the tone: only what follows counts
     # (0.2 s here, under the 0.3 s a capture needs), and the next note is captured as usual
-    out, told = Output(), []
-    c, engine = _controller(tmp_path, out, told)
-    c.start_workflow()
+    c, engine, out = _capturing_with_tone_on_a4(tmp_path)
     assert c.workflow is not None
-    c.lock(69)
-    c.toggle_tone()
     engine.play(A4_HZ, 1.0)
     c.toggle_tone()  # off while the note goes on
     engine.play(A4_HZ, 0.2)
