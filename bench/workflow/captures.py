@@ -367,7 +367,13 @@ def _running_median(values: NDArray[np.float64], half: int) -> NDArray[np.float6
     """Median of each value with ``half`` neighbours either side (fewer at the ends)."""
     n = values.size
     out = np.empty(n)
-    for i in range(n):
+    width = 2 * half + 1
+    if n >= width:  # the full windows at once; only the shortened ends one by one
+        out[half : n - half] = np.median(np.lib.stride_tricks.sliding_window_view(values, width), axis=1)
+        ends = [*range(half), *range(n - half, n)]
+    else:
+        ends = list(range(n))
+    for i in ends:
         out[i] = float(np.median(values[max(0, i - half) : i + half + 1]))
     return out
 
