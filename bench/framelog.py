@@ -71,25 +71,17 @@ def number_cell(value: float | None, digits: int) -> str:
 _FIXED = {d: f"{{:.{d}f}}".format for d in range(7)}  # a bound format per precision: no spec parsing per cell
 
 
-_last_settings: tuple[TuningSettings, tuple[str, ...]] | None = None
-
-
-def _settings_cells(settings: TuningSettings) -> tuple[str, ...]:
+@functools.lru_cache(maxsize=16)
+def _settings_cells(key: SettingsKey) -> tuple[str, ...]:
     """Temperament, tonic, A4, air and reference temperature cells, formatted once per settings
-    object (they change a few times a session, the rows come a hundred a second)."""
-    global _last_settings
-    last = _last_settings
-    if last is not None and last[0] is settings:
-        return last[1]
-    cells = (
-        safe_cell(str(settings.temperament)),
-        safe_cell(str(settings.tonic)),
-        number_cell(settings.a4_hz, 2),
-        number_cell(settings.temp_c, 2),
-        number_cell(settings.ref_temp_c, 2),
+    key (they change a few times a session, the rows come a hundred a second)."""
+    return (
+        safe_cell(str(key.temperament)),
+        safe_cell(str(key.tonic)),
+        number_cell(key.a4_hz, 2),
+        number_cell(key.temp_c, 2),
+        number_cell(key.ref_temp_c, 2),
     )
-    _last_settings = (settings, cells)  # one reference swap: any thread sees a whole pair
-    return cells
 
 
 def frame_row(reading: Reading, clock_ppm: float | None = None) -> list[str]:
@@ -114,7 +106,7 @@ def frame_row(reading: Reading, clock_ppm: float | None = None) -> list[str]:
         reading.jump,
         number_cell(frame.odd_even_db, 2) if voiced else "",
         *(number_cell(h, 2) if h is not None else "" for h in harm),
-        *_settings_cells(settings),
+        *_settings_cells(reading.key),
         "1" if frame.clipped else "0",
         number_cell(frame.held_f0_hz, 4) if voiced else "",
         safe_cell(reading.locked_note or "") if reading.locked_midi is not None else "",
